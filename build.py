@@ -1,0 +1,109 @@
+#!/usr/bin/env python3
+"""RatioDesk build driver (standard library only).
+
+    python3 build.py demo       reduce the demo workbook with the engine, write report + results
+    python3 build.py test       lint + every test (LibreOffice integration tests included when present)
+    python3 build.py bench      benchmarks (speed and memory targets live here, never in tests)
+    python3 build.py oxt        build dist/ratiodesk-<version>.oxt
+    python3 build.py install    build the .oxt and install it into this user's LibreOffice
+    python3 build.py template   write the template and demo workbooks (.ods, .xlsx) to dist/
+
+Each command first makes (or refreshes) the virtual environment ``.venv`` with the project and
+its development tools installed, so a fresh clone needs nothing but Python >= 3.9.
+"""
+from __future__ import annotations
+
+import hashlib
+import os
+import subprocess
+import sys
+import venv
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent
+VENV = ROOT / ".venv"
+PY = VENV / ("Scripts/python.exe" if os.name == "nt" else "bin/python")
+STAMP = VENV / ".ratiodesk-installed"
+
+
+def run(*cmd: object, check: bool = True, **kw: object) -> int:
+    print("+", " ".join(str(c) for c in cmd), flush=True)
+    rc = subprocess.call([str(c) for c in cmd], cwd=kw.pop("cwd", ROOT), **kw)  # type: ignore[arg-type]
+    if check and rc != 0:
+        sys.exit(rc)
+    return rc
+
+
+def bootstrap() -> None:
+    """Create .venv and install the project with its dev extras when pyproject.toml changed."""
+    want = hashlib.sha256((ROOT / "pyproject.toml").read_bytes()).hexdigest()
+    if PY.exists() and STAMP.exists() and STAMP.read_text().strip() == want:
+        return
+    if not PY.exists():
+        print(f"creating {VENV}", flush=True)
+        venv.EnvBuilder(with_pip=True).create(VENV)
+    run(PY, "-m", "pip", "install", "--quiet", "--disable-pip-version-check", "-e", ".[dev]")
+    STAMP.write_text(want)
+
+
+def cmd_demo(args: list) -> int:
+    return run(PY, "-m", "reduction", "demo", *args, check=False)
+
+
+def cmd_oxt(args: list) -> int:
+    return run(PY, ROOT / "macros" / "package.py", *args, check=False)
+
+
+def cmd_install(args: list) -> int:
+    rc = cmd_oxt([])
+    if rc:
+        return rc
+    # Installing talks to LibreOffice through UNO, importable only from the system Python.
+    return run("/usr/bin/python3", ROOT / "macros" / "install.py", *args, check=False)
+
+
+def cmd_template(args: list) -> int:
+    return run(PY, ROOT / "templates" / "build_template.py", *args, check=False)
+
+
+def cmd_test(args: list) -> int:
+    rc = run(PY, "-m", "ruff", "check", ".", check=False)
+    if rc:
+        print("ruff found problems (above); fix them before the tests run", flush=True)
+        return rc
+    if (ROOT / "macros" / "package.py").exists():
+        rc = cmd_oxt([])
+        if rc:
+            return rc
+    rc = run(PY, "-m", "pytest", *(args or ["tests"]), check=False)
+    if rc == 5:
+        print("pytest collected no tests: that is a failure here, not a pass", flush=True)
+        return 1
+    return rc
+
+
+def cmd_bench(args: list) -> int:
+    benches = sorted((ROOT / "tests" / "bench").glob("bench_*.py"))
+    if args:
+        benches = [b for b in benches if any(a in b.name for a in args)]
+    worst = 0
+    for b in benches:
+        print(f"\n=== {b.name} ===", flush=True)
+        worst = max(worst, run(PY, b, check=False))
+    return worst
+
+
+COMMANDS = {"demo": cmd_demo, "test": cmd_test, "bench": cmd_bench, "oxt": cmd_oxt,
+            "install": cmd_install, "template": cmd_template}
+
+
+def main() -> int:
+    if len(sys.argv) < 2 or sys.argv[1] not in COMMANDS:
+        print(__doc__)
+        return 2
+    bootstrap()
+    return COMMANDS[sys.argv[1]](sys.argv[2:])
+
+
+if __name__ == "__main__":
+    sys.exit(main())
