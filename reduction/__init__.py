@@ -8,8 +8,8 @@ from __future__ import annotations
 __version__ = "0.1.0"
 
 from .constants import (
-    RefValue,
     ReferenceSet,
+    RefValue,
     atomic_weight,
     isotope_fraction,
     isotope_mass,
@@ -22,7 +22,7 @@ from .constants import (
 from .errors import ConvergenceError, InputError, RatioDeskError, UndefinedResultError
 from .systems import SYSTEMS, IsotopeSystem, get_system
 
-__all__ = sorted([
+__all__ = [
     "ConvergenceError",
     "InputError",
     "IsotopeSystem",
@@ -41,4 +41,4 @@ __all__ = sorted([
     "normalising_ratio",
     "reference_material",
     "reference_set",
-])
+]

@@ -24,7 +24,8 @@ SUBCOMMANDS = {
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="ratiodesk", description="Isotope-lab data reduction: raw ratios to isochron ages.")
+    parser = argparse.ArgumentParser(prog="ratiodesk",
+                                     description="Isotope-lab data reduction: raw ratios to isochron ages.")
     parser.add_argument("--version", action="version", version=f"ratiodesk {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module, help_text) in SUBCOMMANDS.items():
@@ -52,7 +53,8 @@ def main(argv: Optional[List[str]] = None) -> int:
         print(f"ratiodesk {args.command}: error: {exc}", file=sys.stderr)
         return 1
     except OSError as exc:
-        print(f"ratiodesk {args.command}: error: {exc.strerror or exc}: {exc.filename or ''}".rstrip(": "), file=sys.stderr)
+        detail = f"{exc.strerror or exc}: {exc.filename or ''}".rstrip(": ")
+        print(f"ratiodesk {args.command}: error: {detail}", file=sys.stderr)
         return 1
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field, replace
-from functools import lru_cache
+from functools import cache
 from pathlib import Path
 from typing import Any, Dict, List, Mapping, Optional, Tuple, Union
 
@@ -56,7 +56,7 @@ class RefValue:
         return self.sigma_1s / self.value if self.value else float("inf")
 
 
-@lru_cache(maxsize=None)
+@cache
 def _load(name: str) -> Dict[str, Any]:
     with open(_DATA / f"{name}.json", encoding="utf-8") as fh:
         return json.load(fh)
@@ -126,7 +126,7 @@ class ReferenceSet:
         except KeyError:
             raise InputError("reservoir", f"{k} of set {self.name!r} has no {ratio}") from None
 
-    def with_overrides(self, overrides: Mapping[str, Override]) -> "ReferenceSet":
+    def with_overrides(self, overrides: Mapping[str, Override]) -> ReferenceSet:
         """Return a copy with single values replaced.
 
         Keys are ``"decay.Sm147"`` or ``"CHUR.143Nd/144Nd"`` (also ``DM.``, ``UR.``); values are a
@@ -171,11 +171,11 @@ def reference_set(name: Optional[str] = None, overrides: Optional[Mapping[str, O
     >>> reference_set("iupac", {"decay.Lu176": (1.865e-11, 0.0075e-11)}).decay_constant("Lu176").value
     1.865e-11
     """
-    return _reference_set_cached(name or _load("sets")["default"]).with_overrides(overrides or {}) \
-        if overrides else _reference_set_cached(name or _load("sets")["default"])
+    base = _reference_set_cached(name or _load("sets")["default"])
+    return base.with_overrides(overrides) if overrides else base
 
 
-@lru_cache(maxsize=None)
+@cache
 def _reference_set_cached(name: str) -> ReferenceSet:
     sets = _load("sets")["sets"]
     if name not in sets:

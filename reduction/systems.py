@@ -47,7 +47,7 @@ SYSTEMS: Dict[str, IsotopeSystem] = {
 }
 
 
-def get_system(key: "str | IsotopeSystem") -> IsotopeSystem:
+def get_system(key: str | IsotopeSystem) -> IsotopeSystem:
     """Look up a system by ``"sm-nd"``, ``"Sm-Nd"``, ``"smnd"`` or ``"Sm_Nd"`` (case-insensitive)."""
     if isinstance(key, IsotopeSystem):
         return key
