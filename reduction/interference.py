@@ -1,0 +1,232 @@
+"""Isobaric interference stripping, cycle by cycle.
+
+An isobar of another element sits on the analyte's mass (144Sm on 144Nd, 176Yb and 176Lu on 176Hf,
+87Rb on 87Sr). Its size is inferred from an interference-free monitor isotope of the same element
+(147Sm, 173Yb, 175Lu, 85Rb) and the interfering element's true isotope ratio, fractionated with
+that element's own mass bias:
+
+    I_target = I_total − I_monitor · (R_true(interferent/monitor) fractionated by β_interferent)
+
+Stripping is done on every cycle before the cycles are averaged (common practice), so that a
+drifting interference does not bias the mean. Inputs are beam intensities (V, A or counts) or
+ratios to one common, interference-free isotope; both behave identically.
+
+NaN is passed through untouched as a missing cycle (the 2-D cycle form of :mod:`reduction.cycles`).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Dict, Mapping, Optional, Tuple, Union
+
+import numpy as np
+
+from .constants import isotope_mass, natural_ratio, normalising_ratio
+from .errors import InputError, UndefinedResultError
+from .massbias import bias_apply
+from .systems import get_system
+
+__all__ = [
+    "INTERFERENCES",
+    "BeamStrip",
+    "Stripped",
+    "interferent_ratio",
+    "strip_beams",
+    "strip_isobar",
+]
+
+#: system key -> (target isotope, interfering isotope, monitor isotope) for each isobar stripped.
+INTERFERENCES: Dict[str, Tuple[Tuple[str, str, str], ...]] = {
+    "sm-nd": (("144Nd", "144Sm", "147Sm"),),
+    "lu-hf": (("176Hf", "176Yb", "173Yb"), ("176Hf", "176Lu", "175Lu")),
+    "rb-sr": (("87Sr", "87Rb", "85Rb"),),
+}
+
+
+def _element(iso: str) -> str:
+    return iso.lstrip("0123456789")
+
+
+def interferent_ratio(interferent: str, monitor: str) -> float:
+    """True ratio interferent/monitor of the interfering element.
+
+    Taken from ``reduction/data/normalising.json`` when listed there (directly or inverted), otherwise
+    computed from the CIAAW representative composition (:func:`reduction.constants.natural_ratio`).
+    """
+    if _element(interferent) != _element(monitor):
+        raise InputError("monitor", f"{monitor!r} is not an isotope of the interfering element of {interferent!r}")
+    name = f"{interferent}/{monitor}"
+    try:
+        return normalising_ratio(name).value
+    except InputError:
+        pass
+    try:
+        return 1.0 / normalising_ratio(f"{monitor}/{interferent}").value
+    except InputError:
+        pass
+    return natural_ratio(name).value
+
+
+@dataclass(frozen=True)
+class Stripped:
+    """One stripped beam.
+
+    Attributes
+    ----------
+    corrected : ndarray or float
+        Total beam minus the interference.
+    correction : ndarray or float
+        The subtracted interference (same unit as the beam).
+    correction_rel : ndarray or float
+        ``correction / total`` (dimensionless).
+    """
+
+    corrected: Any
+    correction: Any
+    correction_rel: Any
+
+
+def _beam(name: str, x: Any) -> np.ndarray:
+    try:
+        a = np.array(x, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(name, "could not be read as numbers") from None
+    if np.any(np.isinf(a)):
+        raise InputError(name, "contains inf")
+    return a
+
+
+def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: str, *,
+                 bias_factor: Any = 0.0, law: str = "exponential",
+                 true_ratio: Optional[float] = None) -> Stripped:
+    """Subtract one isobaric interference from a beam, using a monitor isotope.
+
+    Parameters
+    ----------
+    total : array_like
+        Beam at the interfered mass (analyte + isobar), per cycle; any shape, NaN = missing cycle.
+    monitor : array_like
+        Beam of the monitor isotope of the interfering element, same shape (broadcasts).
+    interferent : str
+        Interfering isotope, e.g. ``"144Sm"``.
+    monitor_isotope : str
+        Monitor isotope of the same element, e.g. ``"147Sm"``.
+    bias_factor : array_like, default 0
+        Mass-bias factor of the interfering element (β for the exponential law), scalar or per cycle.
+    law : str
+        Mass-bias law of ``bias_factor`` (see :mod:`reduction.massbias`).
+    true_ratio : float, optional
+        True interferent/monitor ratio; default from :func:`interferent_ratio`.
+
+    Returns
+    -------
+    Stripped
+
+    Raises
+    ------
+    UndefinedResultError
+        If the interference is larger than the total beam in any cycle.
+    """
+    t = _beam("total", total)
+    m = _beam("monitor", monitor)
+    if np.any(m < 0):
+        raise InputError("monitor", "beam intensities must be >= 0")
+    r_true = interferent_ratio(interferent, monitor_isotope) if true_ratio is None else float(true_ratio)
+    if not r_true > 0:
+        raise InputError("true_ratio", f"must be > 0, got {true_ratio!r}")
+    r_meas = bias_apply(r_true, isotope_mass(interferent).value, isotope_mass(monitor_isotope).value,
+                        bias_factor, law)
+    corr = m * r_meas
+    out = t - corr
+    with np.errstate(invalid="ignore"):
+        bad = out <= 0
+    if np.any(bad):
+        i = int(np.flatnonzero(np.ravel(bad))[0])
+        raise UndefinedResultError(
+            f"total: the {interferent} interference ({np.ravel(corr)[i]!r}) is not smaller than the beam "
+            f"({np.ravel(t)[i]!r}) at element {i + 1}")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        rel = corr / t
+    if out.ndim == 0:
+        return Stripped(float(out), float(corr), float(rel))
+    return Stripped(out, np.broadcast_to(corr, out.shape).copy(), rel)
+
+
+@dataclass(frozen=True)
+class BeamStrip:
+    """All isobars of one system stripped from a set of beams.
+
+    Attributes
+    ----------
+    beams : dict of str to ndarray
+        The beams, with each target beam replaced by its stripped value (copies).
+    corrections : dict of str to ndarray
+        Absolute correction per cycle, keyed ``"144Sm on 144Nd"``.
+    correction_rel_mean : dict of str to float or ndarray
+        Mean over cycles (last axis; NaN cycles skipped) of correction / total beam, per row.
+    """
+
+    beams: Dict[str, np.ndarray]
+    corrections: Dict[str, np.ndarray]
+    correction_rel_mean: Dict[str, Any]
+
+
+def strip_beams(beams: Mapping[str, Any], system: Any, *,
+                bias_factors: Optional[Mapping[str, Union[float, Any]]] = None,
+                law: str = "exponential", require_monitors: bool = True) -> BeamStrip:
+    """Strip every isobar of ``system`` (see :data:`INTERFERENCES`) from raw beams, cycle by cycle.
+
+    Parameters
+    ----------
+    beams : mapping of str to array_like
+        Beam intensity per cycle keyed by isotope (``"143Nd"``, ``"144Nd"``, ``"147Sm"``, ...). The total
+        beam at an interfered mass is keyed by the target isotope (``"144Nd"`` holds all of mass 144).
+        1-D (cycles) or 2-D (analyses x cycles, NaN = missing).
+    system : str or IsotopeSystem
+        ``"sm-nd"``, ``"lu-hf"`` or ``"rb-sr"``.
+    bias_factors : mapping of str to float or array, optional
+        Mass-bias factor of each interfering element (``"Sm"``, ``"Yb"``, ``"Lu"``, ``"Rb"``), scalar or per
+        cycle; a missing element gets 0 (no bias).
+    law : str
+        Mass-bias law for the factors.
+    require_monitors : bool, default True
+        Missing monitor beam -> InputError. With False, that interference is skipped (reported as 0).
+
+    Returns
+    -------
+    BeamStrip
+    """
+    sysm = get_system(system)
+    work: Dict[str, np.ndarray] = {k: _beam(f"beams[{k!r}]", v) for k, v in beams.items()}
+    factors = dict(bias_factors or {})
+    corrections: Dict[str, np.ndarray] = {}
+    rel_mean: Dict[str, Any] = {}
+    original = {t: work[t] for t, _, _ in INTERFERENCES[sysm.key] if t in work}
+    for target, interferent, monitor in INTERFERENCES[sysm.key]:
+        key = f"{interferent} on {target}"
+        if target not in work:
+            raise InputError("beams", f"no beam for {target!r} (needed for the {sysm.label} reduction)")
+        if monitor not in work:
+            if require_monitors:
+                raise InputError("beams", f"monitor isotope {monitor!r} is missing: cannot strip {interferent} "
+                                 f"from {target}")
+            corrections[key] = np.zeros_like(work[target])
+            rel_mean[key] = _row_mean(corrections[key])
+            continue
+        total = work[target]
+        s = strip_isobar(total, work[monitor], interferent, monitor,
+                         bias_factor=factors.get(_element(interferent), 0.0), law=law)
+        corrections[key] = np.asarray(s.correction)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            rel_mean[key] = _row_mean(np.asarray(s.correction) / original[target])
+        work[target] = np.asarray(s.corrected)
+    return BeamStrip(work, corrections, rel_mean)
+
+
+def _row_mean(a: np.ndarray) -> Any:
+    if a.ndim == 0:
+        return float(a)
+    with np.errstate(invalid="ignore"):
+        finite = np.isfinite(a)
+        n = finite.sum(axis=-1)
+        m = np.where(finite, a, 0.0).sum(axis=-1) / np.maximum(n, 1)
+    return float(m) if np.ndim(m) == 0 else m
