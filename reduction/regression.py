@@ -1,0 +1,797 @@
+"""Straight-line fits with errors in both coordinates, and weighted means.
+
+* :func:`york_fit` — the York et al. (2004) best straight line with per-point σx, σy and error
+  correlation ρ; :func:`york_fit_batch` fits many datasets at once (Monte Carlo).
+* :func:`fit_isochron` — the same with a choice of scatter treatment and an optional anchor
+  (a fixed intercept ± σ).
+* :func:`weighted_mean` — inverse-variance weighted mean with MSWD, an optional external scatter
+  estimated by maximum likelihood, and outlier flags.
+* :func:`wendt_carl_limits` — acceptable range of the MSWD (Wendt & Carl 1991).
+* :func:`ellipse_points` — outline of a point's error ellipse for a chart.
+
+All inputs and outputs are 1σ absolute unless a name says otherwise. Probabilities use the
+χ² distribution with the fit's degrees of freedom.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Optional, Tuple
+
+import numpy as np
+from scipy import optimize, special
+
+from ._validate import as_array, as_scalar, require_correlation, require_positive, require_same_length
+from .errors import ConvergenceError, InputError, UndefinedResultError
+
+__all__ = [
+    "TREATMENTS",
+    "IsochronFit",
+    "WeightedMean",
+    "YorkBatch",
+    "ellipse_points",
+    "fit_isochron",
+    "weighted_mean",
+    "wendt_carl_limits",
+    "york_fit",
+    "york_fit_batch",
+]
+
+#: Scatter treatments understood by :func:`fit_isochron` (names of our own).
+TREATMENTS: Tuple[str, ...] = ("analytical", "expanded", "equal-weights", "excess-variance")
+
+_ATOL = 1e-300  # absolute floor of the convergence test, only matters for a slope of exactly 0
+
+
+# --------------------------------------------------------------------------------------------
+# result types
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class IsochronFit:
+    """Result of a straight-line fit ``y = intercept + slope * x``.
+
+    Every ``*_sigma_1s`` is a 1σ absolute standard error of the stated treatment; for
+    ``"analytical"`` it is York's unscaled error (not multiplied by √MSWD). ``sigma_scale`` is the
+    factor by which the analytical errors were multiplied (√MSWD for ``"expanded"`` when
+    MSWD > 1, else 1), so the unscaled errors are always ``slope_sigma_1s / sigma_scale``.
+    ``mswd``, ``p_value`` and ``mswd_limits_95`` describe the scatter of the data about the line
+    relative to the analytical errors; they are ``None`` for two points (no degrees of freedom).
+    The ``*_95_expanded`` errors are ``t95 * sqrt(max(MSWD, 1))`` times the analytical 1σ
+    errors (95 % limits, Student-t with ``dof`` degrees of freedom; common practice).
+    """
+
+    n: int
+    dof: int
+    slope: float
+    slope_sigma_1s: float
+    intercept: float
+    intercept_sigma_1s: float
+    cov_slope_intercept: float
+    rho_slope_intercept: float
+    mswd: Optional[float]
+    p_value: Optional[float]
+    mswd_limits_95: Optional[Tuple[float, float]]
+    treatment: str
+    x_centroid: float
+    y_centroid: float
+    iterations: int
+    excess_sigma_y_1s: float = 0.0
+    excess_sigma_y_sigma_1s: Optional[float] = None
+    t95: Optional[float] = None
+    slope_sigma_95_expanded: Optional[float] = None
+    intercept_sigma_95_expanded: Optional[float] = None
+    sigma_scale: float = 1.0
+    chi2: Optional[float] = None
+    anchor: Optional[Tuple[float, float]] = None
+
+    @property
+    def slope_sigma_1s_unscaled(self) -> float:
+        """Slope standard error before any √MSWD scaling (1σ)."""
+        return self.slope_sigma_1s / self.sigma_scale
+
+    @property
+    def intercept_sigma_1s_unscaled(self) -> float:
+        """Intercept standard error before any √MSWD scaling (1σ)."""
+        return self.intercept_sigma_1s / self.sigma_scale
+
+
+@dataclass(frozen=True)
+class YorkBatch:
+    """Results of :func:`york_fit_batch`: one array element per dataset (unscaled 1σ errors)."""
+
+    slope: np.ndarray
+    slope_sigma_1s: np.ndarray
+    intercept: np.ndarray
+    intercept_sigma_1s: np.ndarray
+    cov_slope_intercept: np.ndarray
+    mswd: np.ndarray
+    iterations: np.ndarray
+
+
+@dataclass(frozen=True)
+class WeightedMean:
+    """Result of :func:`weighted_mean`.
+
+    ``mean_sigma_1s`` is the 1σ standard error of the mean; with ``external_scatter`` it includes
+    the external scatter ``external_sigma_1s`` (an added variance estimated by maximum
+    likelihood), otherwise it is the analytical ``1/sqrt(sum(1/sigma**2))`` and
+    ``external_sigma_1s`` is 0. ``mswd`` and ``p_value`` always refer to the analytical errors;
+    they are ``None`` for a single value. ``outliers[i]`` is True when value i fails ``rule``.
+    """
+
+    n: int
+    mean: float
+    mean_sigma_1s: float
+    mswd: Optional[float]
+    p_value: Optional[float]
+    external_sigma_1s: float
+    outliers: Tuple[bool, ...]
+    rule: str
+    external_sigma_sigma_1s: Optional[float] = None
+    dof: int = 0
+
+
+# --------------------------------------------------------------------------------------------
+# small statistics helpers (scipy.special keeps these fast; scipy.stats objects are slow)
+# --------------------------------------------------------------------------------------------
+def _chi2_sf(s: float, dof: int) -> float:
+    return float(special.chdtrc(dof, s))
+
+
+def _t975(dof: int) -> float:
+    return float(special.stdtrit(dof, 0.975))
+
+
+def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = False) -> Tuple[float, float]:
+    """Acceptable range of the MSWD for ``dof`` degrees of freedom.
+
+    Wendt & Carl (1991) show that for data scattering only by their analytical errors the MSWD
+    has expectation 1 and standard deviation ``sqrt(2/dof)``, and propose ``1 ± 2*sqrt(2/dof)``
+    as the 95 % range. Exactly, MSWD·dof follows χ² with ``dof`` degrees of freedom; this function
+    returns the exact one-sided limits ``chi2.ppf(1 - level, dof)/dof`` and
+    ``chi2.ppf(level, dof)/dof`` (an MSWD above ``upper`` has probability ``1 - level`` for a true
+    line), or with ``approximate=True`` the Wendt & Carl form ``1 ± 2*sqrt(2/dof)`` (lower
+    limit clipped at 0).
+
+    Parameters
+    ----------
+    dof : int
+        Degrees of freedom, ≥ 1.
+    level : float
+        Confidence level in (0, 1).
+    approximate : bool
+        Return the Wendt & Carl approximation instead of the exact χ² limits.
+
+    References
+    ----------
+    Wendt, I. & Carl, C. 1991, Chem. Geol. (Isot. Geosci.) 86, 275–285.
+
+    Examples
+    --------
+    >>> round(wendt_carl_limits(8)[1], 3)
+    1.938
+    """
+    if isinstance(dof, bool) or int(dof) != dof or dof < 1:
+        raise InputError("dof", f"must be a whole number >= 1, got {dof!r}")
+    level = as_scalar("level", level)
+    if not 0 < level < 1:
+        raise InputError("level", f"must lie strictly between 0 and 1, got {level!r}")
+    f = int(dof)
+    if approximate:
+        half = 2.0 * math.sqrt(2.0 / f)
+        return max(0.0, 1.0 - half), 1.0 + half
+    return float(special.chdtri(f, level)) / f, float(special.chdtri(f, 1.0 - level)) / f
+
+
+# --------------------------------------------------------------------------------------------
+# York core (works on the last axis, so one code path serves a single fit and a batch)
+# --------------------------------------------------------------------------------------------
+def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r: np.ndarray,
+                max_iter: int, rtol: float) -> Tuple[np.ndarray, ...]:
+    """Iterate York's slope equation; return (slope, intercept, σb, σa, cov_ab, S, iterations, x̄, ȳ).
+
+    Arrays have the points on the last axis (shape ``(n,)`` or ``(m, n)``).
+    """
+    add = np.add.reduce
+    vx = sx * sx
+    vy = sy * sy
+    cxy = r * sx * sy
+    # start from ordinary least squares of y on x (York et al. 2004, step 1)
+    xm = add(x, axis=-1) / x.shape[-1]
+    ym = add(y, axis=-1) / y.shape[-1]
+    dx = x - xm[..., None]
+    sxx = add(dx * dx, axis=-1)
+    if np.any(sxx <= 0):
+        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    b = add(dx * (y - ym[..., None]), axis=-1) / sxx
+
+    batch = x.ndim == 2
+    if batch:
+        def dot(p: np.ndarray, q: np.ndarray) -> np.ndarray:
+            return add(p * q, axis=-1)
+    else:
+        dot = np.dot
+    iterations = np.zeros(b.shape, dtype=int) if batch else 0
+    idx = np.arange(b.shape[0]) if batch else None
+    wx, wsx, wy, wsy, wr = x, vx, y, vy, cxy   # working set (compacted in batch mode)
+    bw = b if batch else float(b)
+    b_prev = h_prev = None
+    fin = np.zeros(b.shape, dtype=bool)
+    for _ in range(max_iter):
+        bb = bw[..., None] if batch else bw
+        # with A = σy² − bρσxσy and B = bσx² − ρσxσy: W = 1/(A + bB), β = W(UA + VB)
+        aa = wsy - bb * wr
+        bq = bb * wsx - wr
+        w = 1.0 / (aa + bb * bq)
+        sw = add(w, axis=-1)
+        xb = dot(w, wx) / sw
+        yb = dot(w, wy) / sw
+        u = wx - (xb[..., None] if batch else xb)
+        v = wy - (yb[..., None] if batch else yb)
+        wb = w * w * (u * aa + v * bq)
+        g = dot(wb, v) / dot(wb, u)          # York's update of the slope
+        h = g - bw
+        # next iterate: secant step on h(b) = g(b) - b (same fixed point, fewer steps), or
+        # York's plain update where the secant is undefined or would step further than 4 updates
+        if not batch:
+            g = float(g)
+            h = float(h)
+            iterations += 1
+            if abs(h) <= rtol * abs(g) + _ATOL:
+                b = g
+                break
+            nxt = g
+            if h_prev is not None and h != h_prev:
+                sec = bw - h * (bw - b_prev) / (h - h_prev)
+                if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h):
+                    nxt = sec
+            b_prev, h_prev, bw = bw, h, nxt
+            continue
+        done = abs(h) <= rtol * abs(g) + _ATOL
+        if h_prev is None:
+            nxt = g
+        else:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                sec = bw - h * (bw - b_prev) / (h - h_prev)
+            ok = np.isfinite(sec) & (abs(sec - bw) <= 4.0 * abs(h))
+            nxt = np.where(ok, sec, g)
+        iterations[idx] += ~fin
+        b[idx] = np.where(fin, b[idx], g)
+        fin = fin | done
+        if fin.all():
+            break
+        b_prev, h_prev = bw, h
+        bw = np.where(fin, bw, nxt)
+        if fin.sum() * 2 > fin.size:   # most rows have converged: drop them from the working set
+            keep = ~fin
+            idx = idx[keep]
+            wx, wsx, wy, wsy, wr = wx[keep], wsx[keep], wy[keep], wsy[keep], wr[keep]
+            bw, b_prev, h_prev, fin = bw[keep], b_prev[keep], h_prev[keep], fin[keep]
+    else:
+        raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
+    if not np.all(np.isfinite(b)):
+        raise UndefinedResultError("the York slope is not finite (degenerate data)")
+
+    # final quantities at the converged slope (York et al. 2004, steps 5-8)
+    def col(z: Any) -> Any:
+        return z[..., None] if batch else z
+
+    bb = col(b)
+    aa = vy - bb * cxy
+    bq = bb * vx - cxy
+    w = 1.0 / (aa + bb * bq)
+    sw = add(w, axis=-1)
+    xbar = dot(w, x) / sw
+    ybar = dot(w, y) / sw
+    u = x - col(xbar)
+    v = y - col(ybar)
+    beta = w * (u * aa + v * bq)
+    a = ybar - b * xbar
+    xadj_bar = xbar + dot(w, beta) / sw
+    uu = col(xbar - xadj_bar) + beta
+    swuu = dot(w, uu * uu)
+    if np.any(swuu <= 0):
+        raise UndefinedResultError("all adjusted x values are equal: the slope error is undefined")
+    var_b = 1.0 / swuu
+    var_a = 1.0 / sw + xadj_bar * xadj_bar * var_b
+    cov_ab = -xadj_bar * var_b
+    res = v - bb * u     # y - b x - a, since a = ȳ - b x̄
+    s = dot(w, res * res)
+    return b, a, np.sqrt(var_b), np.sqrt(var_a), cov_ab, s, iterations, xbar, ybar
+
+
+def _check_points(x: Any, sx: Any, y: Any, sy: Any, rho: Any, ndim: int = 1,
+                  names: Tuple[str, str, str, str, str] = ("x", "sx", "y", "sy", "rho")) -> Tuple[np.ndarray, ...]:
+    """Validate the five point arrays (copies; the caller's arrays are never modified)."""
+    xa = as_array(names[0], x, ndim=ndim)
+    sxa = as_array(names[1], sx, ndim=ndim)
+    ya = as_array(names[2], y, ndim=ndim)
+    sya = as_array(names[3], sy, ndim=ndim)
+    ra = np.zeros_like(xa) if rho is None else as_array(names[4], np.broadcast_to(rho, np.shape(xa)), ndim=ndim)
+    if ndim == 1:
+        require_same_length(**{names[0]: xa, names[1]: sxa, names[2]: ya, names[3]: sya, names[4]: ra})
+    else:
+        for nm, arr in zip(names[1:], (sxa, ya, sya, ra)):
+            if arr.shape != xa.shape:
+                raise InputError(nm, f"has shape {arr.shape} but {names[0]} has shape {xa.shape}")
+    require_positive(names[1], sxa)
+    require_positive(names[3], sya)
+    require_correlation(names[4], ra)
+    return xa, sxa, ya, sya, ra
+
+
+def _two_point(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r: np.ndarray
+               ) -> Tuple[float, float, float, float, float]:
+    """Exact line through two points; errors by linear propagation of both points' covariances."""
+    dx = x[1] - x[0]
+    if dx == 0:
+        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    b = (y[1] - y[0]) / dx
+    a = y[0] - b * x[0]
+    # d(b, a)/d(x1, y1, x2, y2)
+    jb = np.array([b / dx, -1.0 / dx, -b / dx, 1.0 / dx])
+    ja = np.array([-b - x[0] * jb[0], 1.0 - x[0] * jb[1], -x[0] * jb[2], -x[0] * jb[3]])
+    cov = np.zeros((4, 4))
+    for i in range(2):
+        k = 2 * i
+        cov[k, k] = sx[i] ** 2
+        cov[k + 1, k + 1] = sy[i] ** 2
+        cov[k, k + 1] = cov[k + 1, k] = r[i] * sx[i] * sy[i]
+    vb = float(jb @ cov @ jb)
+    va = float(ja @ cov @ ja)
+    cab = float(ja @ cov @ jb)
+    return float(b), float(a), math.sqrt(vb), math.sqrt(va), cab
+
+
+def _make_fit(n: int, dof: int, b: float, a: float, sb: float, sa: float, cab: float, s: Optional[float],
+              treatment: str, xbar: float, ybar: float, iterations: int, scale_by_mswd: bool = False,
+              anchor: Optional[Tuple[float, float]] = None) -> IsochronFit:
+    if dof > 0 and s is not None:
+        mswd: Optional[float] = s / dof
+        p: Optional[float] = _chi2_sf(s, dof)
+        limits: Optional[Tuple[float, float]] = wendt_carl_limits(dof)
+        t95: Optional[float] = _t975(dof)
+        expand = t95 * math.sqrt(max(mswd, 1.0))
+        sb95: Optional[float] = expand * sb
+        sa95: Optional[float] = expand * sa
+    else:
+        mswd = p = limits = t95 = sb95 = sa95 = None
+    scale = 1.0
+    if scale_by_mswd and mswd is not None and mswd > 1.0:
+        scale = math.sqrt(mswd)
+    rab = cab / (sb * sa) if sb > 0 and sa > 0 else 0.0
+    return IsochronFit(
+        n=n, dof=dof, slope=float(b), slope_sigma_1s=float(sb) * scale, intercept=float(a),
+        intercept_sigma_1s=float(sa) * scale, cov_slope_intercept=float(cab) * scale * scale,
+        rho_slope_intercept=float(max(-1.0, min(1.0, rab))), mswd=mswd, p_value=p, mswd_limits_95=limits,
+        treatment=treatment, x_centroid=float(xbar), y_centroid=float(ybar), iterations=int(iterations),
+        t95=t95, slope_sigma_95_expanded=sb95, intercept_sigma_95_expanded=sa95, sigma_scale=scale,
+        chi2=None if s is None or dof == 0 else float(s), anchor=anchor)
+
+
+# --------------------------------------------------------------------------------------------
+# public fits
+# --------------------------------------------------------------------------------------------
+def york_fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int = 500,
+             rtol: float = 1e-15) -> IsochronFit:
+    """Best straight line through points with errors in x and y (York et al. 2004).
+
+    Parameters
+    ----------
+    x, y : array_like, shape (n,)
+        Coordinates (e.g. ¹⁴⁷Sm/¹⁴⁴Nd and ¹⁴³Nd/¹⁴⁴Nd).
+    sx, sy : array_like, shape (n,)
+        1σ absolute errors of x and y, all > 0.
+    rho : array_like or float, optional
+        Correlation of the x and y errors of each point, in (−1, 1); default 0.
+    max_iter : int
+        Iteration limit of the slope equation.
+    rtol : float
+        Relative convergence tolerance of the slope.
+
+    Returns
+    -------
+    IsochronFit
+        Slope, intercept, their unscaled 1σ standard errors and covariance, MSWD = S/(n − 2),
+        p = P(χ²_{n−2} > S), the Wendt & Carl (1991) MSWD range, Student-t expanded 95 % errors.
+
+    Notes
+    -----
+    The slope is found by fixed-point iteration of York et al.'s (2004) equation
+    ``b = Σ W β V / Σ W β U``, starting from the ordinary least-squares slope of y on x.
+    **Convergence rule:** iteration stops at the first step with
+    ``|b_k − b_{k−1}| ≤ rtol·|b_k| + 1e-300``; after ``max_iter`` steps without that,
+    :class:`~reduction.errors.ConvergenceError` is raised. The standard errors are York et al.'s
+    (2004) unified formulas (σ_b² = 1/Σ W u², σ_a² = 1/Σ W + x̄² σ_b², cov(a, b) = −x̄ σ_b², with
+    x̄ the weighted mean of the adjusted x); they are not multiplied by √MSWD.
+    Two points give the exact line through them (dof = 0, MSWD ``None``), its errors by linear
+    propagation of both points' error ellipses; fewer than two points are rejected.
+
+    References
+    ----------
+    York, D., Evensen, N.M., López Martínez, M. & De Basabe Delgado, J. 2004, Am. J. Phys. 72,
+    367–375. Wendt, I. & Carl, C. 1991, Chem. Geol. 86, 275–285.
+
+    Examples
+    --------
+    >>> fit = york_fit([1.0, 2.0, 3.0], [0.01] * 3, [2.0, 4.1, 5.9], [0.1] * 3)
+    >>> round(fit.slope, 3), fit.dof
+    (1.951, 1)
+    """
+    xa, sxa, ya, sya, ra = _check_points(x, sx, y, sy, rho)
+    return _york_checked(xa, sxa, ya, sya, ra, max_iter, rtol, "analytical")
+
+
+def _york_checked(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarray, ra: np.ndarray,
+                  max_iter: int, rtol: float, treatment: str, scale_by_mswd: bool = False,
+                  anchor: Optional[Tuple[float, float]] = None, n_report: Optional[int] = None) -> IsochronFit:
+    n = xa.size
+    if n < 2:
+        raise InputError("x", f"a line needs at least 2 points, got {n}")
+    if not (isinstance(max_iter, int) and max_iter >= 1):
+        raise InputError("max_iter", f"must be a whole number >= 1, got {max_iter!r}")
+    if not (rtol > 0):
+        raise InputError("rtol", f"must be > 0, got {rtol!r}")
+    n_report = n if n_report is None else n_report
+    if n == 2:
+        b, a, sb, sa, cab = _two_point(xa, sxa, ya, sya, ra)
+        w = 1.0 / (sya ** 2 + b * b * sxa ** 2 - 2 * b * ra * sxa * sya)
+        xbar = float(w @ xa / w.sum())
+        return _make_fit(n_report, 0, b, a, sb, sa, cab, None, treatment, xbar, a + b * xbar, 0, anchor=anchor)
+    b, a, sb, sa, cab, s, it, xbar, ybar = _york_solve(xa, sxa, ya, sya, ra, max_iter, rtol)
+    return _make_fit(n_report, n - 2, float(b), float(a), float(sb), float(sa), float(cab), float(s), treatment,
+                     float(xbar), float(ybar), int(it), scale_by_mswd=scale_by_mswd, anchor=anchor)
+
+
+def york_fit_batch(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int = 500,
+                   rtol: float = 1e-15) -> YorkBatch:
+    """York et al. (2004) fits of many datasets at once, e.g. Monte Carlo trials.
+
+    Parameters
+    ----------
+    x, sx, y, sy : array_like, shape (m, n)
+        One dataset per row (m datasets of n ≥ 3 points), 1σ absolute errors.
+    rho : array_like, optional
+        Error correlations, broadcastable to (m, n); default 0.
+    max_iter, rtol
+        As in :func:`york_fit`; the convergence rule is applied row by row and a row that has
+        converged is no longer updated.
+
+    Returns
+    -------
+    YorkBatch
+        Arrays of shape (m,): slope, intercept, unscaled 1σ errors, covariance, MSWD, iterations.
+
+    References
+    ----------
+    York et al. 2004, Am. J. Phys. 72, 367–375.
+    """
+    xa, sxa, ya, sya, ra = _check_points(x, sx, y, sy, rho, ndim=2)
+    if xa.shape[1] < 3:
+        raise InputError("x", f"each dataset needs at least 3 points, got {xa.shape[1]}")
+    b, a, sb, sa, cab, s, it, _, _ = _york_solve(xa, sxa, ya, sya, ra, max_iter, rtol)
+    return YorkBatch(b, sb, a, sa, cab, s / (xa.shape[1] - 2), it)
+
+
+def _equal_weights(xa: np.ndarray, ya: np.ndarray) -> Tuple[float, float, float, float, float]:
+    """Ordinary least squares of y on x; errors from the residual scatter (s² = RSS/(n − 2))."""
+    n = xa.size
+    xm = xa.mean()
+    dx = xa - xm
+    sxx = float(dx @ dx)
+    if sxx <= 0:
+        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    b = float(dx @ (ya - ya.mean())) / sxx
+    a = float(ya.mean() - b * xm)
+    res = ya - a - b * xa
+    s2 = float(res @ res) / (n - 2)
+    vb = s2 / sxx
+    va = s2 * (1.0 / n + xm * xm / sxx)
+    return b, a, math.sqrt(vb), math.sqrt(va), -xm * vb
+
+
+def _excess_nll(p: np.ndarray, xc: np.ndarray, vx: np.ndarray, yc: np.ndarray, vy: np.ndarray,
+                cxy: np.ndarray) -> float:
+    """−2 ln L (up to a constant) of the line with an added variance p[2]² on y."""
+    a, b, s = p
+    var = vy + s * s + b * (b * vx - 2.0 * cxy)
+    res = yc - a - b * xc
+    return float(np.sum(res * res / var + np.log(var)))
+
+
+def _num_hessian(f: Any, p: np.ndarray, h: np.ndarray) -> np.ndarray:
+    k = p.size
+    hess = np.empty((k, k))
+    for i in range(k):
+        for j in range(i, k):
+            ei = np.zeros(k)
+            ej = np.zeros(k)
+            ei[i] = h[i]
+            ej[j] = h[j]
+            val = (f(p + ei + ej) - f(p + ei - ej) - f(p - ei + ej) + f(p - ei - ej)) / (4 * h[i] * h[j])
+            hess[i, j] = hess[j, i] = val
+    return hess
+
+
+def _excess_variance(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarray, ra: np.ndarray,
+                     york: IsochronFit) -> Tuple[float, float, float, float, float, float, Optional[float]]:
+    """Maximum-likelihood line with an added (excess) variance on y; returns b, a, σb, σa, cov, s, σs."""
+    xm, ym = float(xa.mean()), float(ya.mean())
+    sc_x = float(np.std(xa)) or 1.0
+    sc_y = float(np.median(sya))
+    # work in centred, scaled coordinates so the optimiser sees numbers of order 1
+    xc = (xa - xm) / sc_x
+    yc = (ya - ym) / sc_y
+    vx = (sxa / sc_x) ** 2
+    vy = (sya / sc_y) ** 2
+    cxy = ra * (sxa / sc_x) * (sya / sc_y)
+    b0 = york.slope * sc_x / sc_y
+    a0 = (york.intercept + york.slope * xm - ym) / sc_y
+    s0 = math.sqrt(max(york.mswd or 1.0, 1.0) - 1.0 + 0.1)
+    args = (xc, vx, yc, vy, cxy)
+    best = None
+    for start in (s0, 3.0 * s0, 0.3 * s0):
+        r = optimize.minimize(_excess_nll, np.array([a0, b0, start]), args=args, method="Nelder-Mead",
+                              options={"xatol": 1e-12, "fatol": 1e-14, "maxiter": 20000, "maxfev": 40000})
+        if best is None or r.fun < best.fun:
+            best = r
+    r = optimize.minimize(_excess_nll, best.x, args=args, method="BFGS", options={"gtol": 1e-10})
+    p = r.x if r.fun <= best.fun else best.x
+    if not np.all(np.isfinite(p)):
+        raise ConvergenceError("maximum-likelihood fit with excess variance did not converge")
+    p[2] = abs(p[2])
+    h = np.maximum(1e-4 * np.abs(p), 1e-5)
+    hess = _num_hessian(lambda q: _excess_nll(q, *args), p, h)
+    # −2 ln L: the covariance is the inverse of half its Hessian (observed Fisher information)
+    try:
+        cov = np.linalg.inv(0.5 * hess)
+    except np.linalg.LinAlgError:
+        raise UndefinedResultError("the excess-variance likelihood is flat: errors undefined") from None
+    a_c, b_c, s_c = p
+    b = b_c * sc_y / sc_x
+    a = ym + a_c * sc_y - b * xm
+    jb = np.array([0.0, sc_y / sc_x])
+    ja = np.array([sc_y, -xm * sc_y / sc_x])
+    cab2 = cov[:2, :2]
+    vb = float(jb @ cab2 @ jb)
+    va = float(ja @ cab2 @ ja)
+    cab = float(ja @ cab2 @ jb)
+    s = float(s_c * sc_y)
+    var_s = float(cov[2, 2])
+    ss: Optional[float] = math.sqrt(var_s) * sc_y if var_s > 0 and s_c > 1e-6 else None
+    if vb <= 0 or va <= 0:
+        raise UndefinedResultError("the excess-variance fit has no positive-definite error matrix")
+    return b, a, math.sqrt(vb), math.sqrt(va), cab, s, ss
+
+
+def fit_isochron(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, treatment: str = "analytical",
+                 anchor: Optional[Tuple[float, float]] = None, max_iter: int = 500,
+                 rtol: float = 1e-15) -> IsochronFit:
+    """Fit an isochron with a chosen treatment of scatter beyond the analytical errors.
+
+    Parameters
+    ----------
+    x, sx, y, sy, rho
+        As in :func:`york_fit` (1σ absolute errors).
+    treatment : {"analytical", "expanded", "equal-weights", "excess-variance"}
+        ``"analytical"``: York et al. (2004) with the analytical errors only; the result also
+        carries Student-t × √MSWD expanded 95 % limits (``*_95_expanded``).
+        ``"expanded"``: the same line, its 1σ errors (and covariance) multiplied by √MSWD when
+        MSWD > 1 (``sigma_scale`` records the factor; common practice).
+        ``"equal-weights"``: ordinary least squares of y on x with every point weighted
+        equally; errors from the residual scatter, s² = RSS/(n − 2).
+        ``"excess-variance"``: maximum-likelihood fit with an added variance s² on y, i.e. the
+        residual of point i has variance ``σy² + b²σx² − 2bρσxσy + s²``; the line and s
+        maximise the full likelihood ``−2 ln L = Σ [r²/var + ln var]`` (random-effects model,
+        cf. Kelly 2007, ApJ 665, 1489, recalled from memory), errors from the observed Fisher
+        information (numerical Hessian). ``excess_sigma_y_1s`` is s and
+        ``excess_sigma_y_sigma_1s`` its 1σ error (``None`` when s is at 0).
+        In every treatment ``mswd`` and ``p_value`` describe the analytical York fit.
+    anchor : (float, float), optional
+        ``(initial_value, initial_sigma_1s)``: the fit also passes through the intercept
+        ``initial_value ± initial_sigma_1s`` (σ > 0), entered as one more point at x = 0 with
+        σx = 0; this adds one degree of freedom (dof = n − 1). Only with ``"analytical"`` and
+        ``"expanded"``.
+
+    Returns
+    -------
+    IsochronFit
+
+    References
+    ----------
+    York et al. 2004, Am. J. Phys. 72, 367–375; Wendt & Carl 1991, Chem. Geol. 86, 275–285.
+    """
+    if treatment not in TREATMENTS:
+        raise InputError("treatment", f"unknown treatment {treatment!r}; use one of {', '.join(TREATMENTS)}")
+    xa, sxa, ya, sya, ra = _check_points(x, sx, y, sy, rho)
+    n = xa.size
+    if n < 2:
+        raise InputError("x", f"a line needs at least 2 points, got {n}")
+    if anchor is not None:
+        if treatment not in ("analytical", "expanded"):
+            raise InputError("anchor", f"an anchored fit is available with treatment 'analytical' or 'expanded', "
+                                       f"not {treatment!r}")
+        try:
+            a0, s0 = anchor
+        except (TypeError, ValueError):
+            raise InputError("anchor", f"must be (initial_value, initial_sigma_1s), got {anchor!r}") from None
+        a0 = as_scalar("anchor value", a0)
+        s0 = as_scalar("anchor sigma", s0)
+        if s0 <= 0:
+            raise InputError("anchor sigma", f"must be > 0, got {s0!r}")
+        if np.all(xa == xa[0]) and xa[0] == 0:
+            raise UndefinedResultError("all x values and the anchor are at x = 0: the slope is undefined")
+        xs = np.append(xa, 0.0)
+        sxs = np.append(sxa, 0.0)
+        ys = np.append(ya, a0)
+        sys_ = np.append(sya, s0)
+        rs = np.append(ra, 0.0)
+        return _york_checked(xs, sxs, ys, sys_, rs, max_iter, rtol, treatment,
+                             scale_by_mswd=treatment == "expanded", anchor=(a0, s0), n_report=n)
+    york = _york_checked(xa, sxa, ya, sya, ra, max_iter, rtol, treatment,
+                         scale_by_mswd=treatment == "expanded")
+    if treatment in ("analytical", "expanded"):
+        return york
+    if n < 3:
+        raise InputError("treatment", f"{treatment!r} needs at least 3 points, got {n}")
+    if treatment == "equal-weights":
+        b, a, sb, sa, cab = _equal_weights(xa, ya)
+        extra = {}
+    else:
+        b, a, sb, sa, cab, s, ss = _excess_variance(xa, sxa, ya, sya, ra, york)
+        extra = {"excess_sigma_y_1s": s, "excess_sigma_y_sigma_1s": ss}
+    t95 = york.t95
+    fields = dict(york.__dict__)
+    fields.update(slope=float(b), intercept=float(a), slope_sigma_1s=float(sb), intercept_sigma_1s=float(sa),
+                  cov_slope_intercept=float(cab), rho_slope_intercept=float(max(-1.0, min(1.0, cab / (sb * sa)))),
+                  slope_sigma_95_expanded=t95 * sb if t95 else None,
+                  intercept_sigma_95_expanded=t95 * sa if t95 else None, sigma_scale=1.0, **extra)
+    return IsochronFit(**fields)
+
+
+# --------------------------------------------------------------------------------------------
+# weighted mean
+# --------------------------------------------------------------------------------------------
+def _ml_excess_1d(v: np.ndarray, var: np.ndarray) -> Tuple[float, float, Optional[float]]:
+    """ML mean and added variance τ² of values with variances ``var`` (random-effects model)."""
+
+    def nll(t2: float) -> float:
+        w = 1.0 / (var + t2)
+        m = float(w @ v / w.sum())
+        return float(np.sum(w * (v - m) ** 2) + np.sum(np.log(var + t2)))
+
+    spread = float(np.var(v)) + float(var.max())
+    r = optimize.minimize_scalar(nll, bounds=(0.0, 10.0 * spread), method="bounded",
+                                 options={"xatol": 1e-14 * spread})
+    t2 = float(r.x)
+    if nll(0.0) <= r.fun:
+        t2 = 0.0
+    w = 1.0 / (var + t2)
+    mean = float(w @ v / w.sum())
+    tau = math.sqrt(t2)
+    sig_tau: Optional[float] = None
+    if tau > 0:
+        # Fisher information of τ² in the random-effects model: ½ Σ w²  -> σ(τ) = σ(τ²)/(2τ)
+        var_t2 = 2.0 / float(np.sum(w * w))
+        sig_tau = math.sqrt(var_t2) / (2.0 * tau)
+    return mean, tau, sig_tau
+
+
+def _flag_outliers(v: np.ndarray, var: np.ndarray, k: float) -> Tuple[bool, ...]:
+    """Iterative leave-one-out outlier flags (see :func:`weighted_mean`)."""
+    flagged = np.zeros(v.size, dtype=bool)
+    while (~flagged).sum() >= 3:
+        w = np.where(flagged, 0.0, 1.0 / var)
+        sw = w.sum()
+        swv = float(w @ v)
+        others_w = sw - w
+        others_mean = (swv - w * v) / others_w
+        z = np.abs(v - others_mean) / np.sqrt(var + 1.0 / others_w)
+        z[flagged] = -1.0
+        i = int(np.argmax(z))
+        if z[i] <= k:
+            break
+        flagged[i] = True
+    return tuple(bool(f) for f in flagged)
+
+
+def weighted_mean(values: Any, sigma_1s: Any, *, external_scatter: bool = False,
+                  outlier_k: Optional[float] = None) -> WeightedMean:
+    """Inverse-variance weighted mean with MSWD, probability of fit and outlier flags.
+
+    Parameters
+    ----------
+    values, sigma_1s : array_like, shape (n,)
+        Values and their 1σ absolute errors (> 0).
+    external_scatter : bool
+        Also estimate an external scatter τ (an added variance τ² common to all values) by
+        maximum likelihood, and weight by ``1/(σ² + τ²)``; τ = 0 when the data do not need it.
+    outlier_k : float, optional
+        Flag outliers by an iterative leave-one-out rule: the value farthest from the weighted
+        mean of the other unflagged values is flagged when
+        ``|v_i − mean_others| > k·sqrt(σ_i² + τ² + σ_mean_others²)``, and the test is repeated
+        on the unflagged values until none exceeds k (or fewer than 3 remain). Values are
+        flagged, never removed from the mean (common practice: the analyst decides).
+
+    Returns
+    -------
+    WeightedMean
+
+    Notes
+    -----
+    mean = Σ v/σ² / Σ 1/σ², σ_mean = (Σ 1/σ²)^−½, MSWD = Σ (v − mean)²/σ² / (n − 1),
+    p = P(χ²_{n−1} > (n − 1)·MSWD) (standard; e.g. Wendt & Carl 1991).
+
+    Examples
+    --------
+    >>> wm = weighted_mean([10.0, 10.2, 9.9], [0.1, 0.1, 0.1])
+    >>> round(wm.mean, 4), round(wm.mean_sigma_1s, 4)
+    (10.0333, 0.0577)
+    """
+    v = as_array("values", values, ndim=1, min_len=1)
+    s = as_array("sigma_1s", sigma_1s, ndim=1, min_len=1)
+    require_same_length(values=v, sigma_1s=s)
+    require_positive("sigma_1s", s)
+    n = v.size
+    var = s * s
+    w = 1.0 / var
+    mean = float(w @ v / w.sum())
+    chi = float(np.sum(w * (v - mean) ** 2))
+    mswd = chi / (n - 1) if n > 1 else None
+    p = _chi2_sf(chi, n - 1) if n > 1 else None
+    tau, sig_tau = 0.0, None
+    sigma_mean = 1.0 / math.sqrt(float(w.sum()))
+    if external_scatter:
+        if n < 2:
+            raise InputError("external_scatter", "needs at least 2 values")
+        mean, tau, sig_tau = _ml_excess_1d(v, var)
+        sigma_mean = 1.0 / math.sqrt(float(np.sum(1.0 / (var + tau * tau))))
+    if outlier_k is None:
+        flags = tuple(False for _ in range(n))
+        rule = "no outlier test"
+    else:
+        k = as_scalar("outlier_k", outlier_k)
+        if k <= 0:
+            raise InputError("outlier_k", f"must be > 0, got {k!r}")
+        flags = _flag_outliers(v, var + tau * tau, k)
+        rule = (f"iterative leave-one-out test at k = {k:g}: the value farthest from the weighted mean of the "
+                f"other unflagged values is flagged if |value - mean_others| > {k:g} * sqrt(sigma^2 + "
+                "external^2 + sigma_mean_others^2), and the test repeats on the rest; flagged values are "
+                "kept in the mean")
+    return WeightedMean(n=n, mean=mean, mean_sigma_1s=sigma_mean, mswd=mswd, p_value=p, external_sigma_1s=tau,
+                        outliers=flags, rule=rule, external_sigma_sigma_1s=sig_tau, dof=n - 1)
+
+
+# --------------------------------------------------------------------------------------------
+# error ellipse
+# --------------------------------------------------------------------------------------------
+def ellipse_points(x: float, sx: float, y: float, sy: float, rho: float = 0.0, *, n_points: int = 48,
+                   confidence: float = 0.95) -> Tuple[np.ndarray, np.ndarray]:
+    """Outline of a point's error ellipse as a closed polygon (``n_points + 1`` vertices).
+
+    The ellipse is the ``confidence`` region of a bivariate normal with the point's covariance
+    matrix, i.e. the Mahalanobis radius is ``sqrt(chi2.ppf(confidence, 2))`` (2.448 for 95 %).
+    """
+    x = as_scalar("x", x)
+    y = as_scalar("y", y)
+    sx = as_scalar("sx", sx)
+    sy = as_scalar("sy", sy)
+    rho = as_scalar("rho", rho)
+    require_positive("sx", np.asarray(sx))
+    require_positive("sy", np.asarray(sy))
+    require_correlation("rho", np.asarray(rho))
+    if isinstance(n_points, bool) or int(n_points) != n_points or n_points < 3:
+        raise InputError("n_points", f"must be a whole number >= 3, got {n_points!r}")
+    confidence = as_scalar("confidence", confidence)
+    if not 0 < confidence < 1:
+        raise InputError("confidence", f"must lie strictly between 0 and 1, got {confidence!r}")
+    k = math.sqrt(float(special.chdtri(2, 1.0 - confidence)))
+    cov = np.array([[sx * sx, rho * sx * sy], [rho * sx * sy, sy * sy]])
+    chol = np.linalg.cholesky(cov)
+    theta = np.linspace(0.0, 2.0 * math.pi, int(n_points) + 1)
+    circle = np.vstack([np.cos(theta), np.sin(theta)]) * k
+    pts = chol @ circle
+    xs = x + pts[0]
+    ys = y + pts[1]
+    xs[-1], ys[-1] = xs[0], ys[0]
+    return xs, ys
