@@ -416,7 +416,7 @@ def york_fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int
     --------
     >>> fit = york_fit([1.0, 2.0, 3.0], [0.01] * 3, [2.0, 4.1, 5.9], [0.1] * 3)
     >>> round(fit.slope, 3), fit.dof
-    (1.951, 1)
+    (1.95, 1)
     """
     xa, sxa, ya, sya, ra = _check_points(x, sx, y, sy, rho)
     return _york_checked(xa, sxa, ya, sya, ra, max_iter, rtol, "analytical")
