@@ -1,0 +1,664 @@
+"""Isotope dilution with a single (or mixed) spike, the iterative spike-stripping normalisation,
+and spike calibration by reverse isotope dilution.
+
+The ID equation (atom-fraction form of Smith 2000, "Isotope dilution mass spectrometry", in Barshick,
+Duckworth & Smith (eds.), *Inorganic Mass Spectrometry*, Marcel Dekker, ch. 5; equivalent to the
+ratio form in Faure & Mensing 2005, *Isotopes: Principles and Applications*):
+
+    R_mix = (R_s + a_k,t·u) / (1 + a_r,t·u),   u = N_t / n_r,s
+
+where ratios R are k/r (k = spike isotope, r = reference isotope of the sample), a are the spike's atom
+fractions, N_t the moles of spike element and n_r,s the moles of the reference isotope in the sample.
+Solving for u,
+
+    u = (R_mix − R_s) / (a_k,t − R_mix·a_r,t),      n_r,s = N_t / u,   N_t = c_k,t·W_t / a_k,t
+
+(c_k,t = spike-isotope concentration of the spike solution in µmol/g, W_t the spike mass in g).
+Every other isotope i of the sample then follows from R_s,i = R_mix,i(1 + a_r,t·u) − a_i,t·u.
+
+Error magnification (how a relative error in R_mix grows in n_r,s; e.g. Webster 1960, and common
+practice) is M = R_mix·|R_s − R_t| / (|R_mix − R_s|·|R_t − R_mix|), smallest (M_min =
+(√R_t + √R_s)/|√R_t − √R_s|) at R_mix = √(R_s·R_t).
+"""
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any, Dict, Mapping, Optional, Sequence, Tuple
+
+import numpy as np
+
+from . import constants
+from .constants import isotope_fraction, isotope_mass, normalising_ratio
+from .errors import ConvergenceError, InputError, UndefinedResultError
+from .massbias import bias_correct
+from .massbias import bias_factor as _bias_factor_of
+
+__all__ = [
+    "Dilution",
+    "Spike",
+    "SpikeCalibration",
+    "calibrate_spike",
+    "element_isotopes",
+    "forward_mixture",
+    "id_amount",
+    "id_concentration",
+    "isotope_dilution",
+    "load_demo_spikes",
+    "magnification",
+    "magnification_min",
+    "make_spike",
+    "sample_composition",
+]
+
+#: Spikes whose best possible mixture would still magnify ratio errors more than this are refused.
+SINGULAR_MAGNIFICATION = 100.0
+#: A mixture is flagged as poor when its magnification exceeds this multiple of the optimum.
+POOR_MIX_FACTOR = 2.0
+
+
+def _split(ratio: str, name: str = "ratio") -> Tuple[str, str]:
+    num, sep, den = str(ratio).partition("/")
+    if not sep or not num.strip() or not den.strip():
+        raise InputError(name, f"must be written 'num/den' like '150Nd/144Nd', got {ratio!r}")
+    return num.strip(), den.strip()
+
+
+def _el(iso: str) -> str:
+    return iso.lstrip("0123456789")
+
+
+def element_isotopes(element: str) -> Tuple[str, ...]:
+    """Isotopes of an element listed in the reference data (``reduction/data/isotopes.json``)."""
+    # the isotope table is the single source; constants exposes entries one at a time only
+    table = constants._load("isotopes")["isotopes"]  # noqa: SLF001 - same package, read-only
+    isos = tuple(k for k in table if _el(k) == element)
+    if not isos:
+        raise InputError("element", f"no isotope data for element {element!r}")
+    return isos
+
+
+def sample_composition(element: str, reference_isotope: str,
+                       overrides: Optional[Mapping[str, Any]] = None) -> Dict[str, Any]:
+    """Ratios i/reference of every isotope of a natural element (CIAAW), with optional overrides.
+
+    Parameters
+    ----------
+    element : str
+        ``"Nd"``, ``"Sm"``, ``"Hf"``, ``"Lu"``, ``"Sr"``, ``"Rb"``, ...
+    reference_isotope : str
+        Denominator, e.g. ``"144Nd"``.
+    overrides : mapping of str to float or array, optional
+        Ratio name -> value, e.g. ``{"143Nd/144Nd": 0.5121, "146Nd/144Nd": 0.7219}``.
+    """
+    isos = element_isotopes(element)
+    if reference_isotope not in isos:
+        raise InputError("reference_isotope", f"{reference_isotope!r} is not an isotope of {element}")
+    fr = isotope_fraction(reference_isotope).value
+    comp: Dict[str, Any] = {f"{i}/{reference_isotope}": isotope_fraction(i).value / fr for i in isos}
+    for k, v in (overrides or {}).items():
+        num, den = _split(k, "sample_ratios")
+        if den != reference_isotope or f"{num}/{den}" not in comp:
+            raise InputError("sample_ratios", f"{k!r} is not a ratio of {element} to {reference_isotope}")
+        a = _pos_array(f"sample_ratios[{k!r}]", v)
+        comp[f"{num}/{den}"] = float(a) if a.ndim == 0 else a
+    return comp
+
+
+def _pos_array(name: str, x: Any) -> np.ndarray:
+    try:
+        a = np.array(x, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(name, "could not be read as numbers") from None
+    if not np.all(np.isfinite(a)):
+        raise InputError(name, "must be finite numbers (got NaN or inf)")
+    if np.any(a <= 0):
+        raise InputError(name, f"must be > 0, got {a.ravel()[int(np.flatnonzero(a.ravel() <= 0)[0])]!r}")
+    return a
+
+
+def _out(a: Any) -> Any:
+    a = np.asarray(a, dtype=float)
+    return float(a) if a.ndim == 0 else a
+
+
+# --------------------------------------------------------------------------------------------- spikes
+@dataclass(frozen=True)
+class Spike:
+    """Isotopic composition and concentration of a spike (tracer) solution, for one element.
+
+    A mixed spike (e.g. 149Sm-150Nd or 176Lu-180Hf) is two ``Spike`` records with the same label:
+    one per element, weighed once.
+
+    Attributes
+    ----------
+    label : str
+        Name of the spike solution.
+    element : str
+        Element of this record.
+    isotopes, abundances : tuple
+        Isotopes and their atom fractions (sum 1).
+    spike_isotope : str
+        The enriched isotope whose concentration is given.
+    concentration_umol_g : float
+        Concentration of ``spike_isotope`` in µmol per g of spike solution.
+    concentration_sigma_1s : float
+        Its 1σ absolute uncertainty (from the calibration; a systematic error of every analysis).
+    calibrated : str
+        Calibration date or reference.
+    """
+
+    label: str
+    element: str
+    isotopes: Tuple[str, ...]
+    abundances: Tuple[float, ...]
+    spike_isotope: str
+    concentration_umol_g: float
+    concentration_sigma_1s: float = 0.0
+    calibrated: str = ""
+
+    def abundance(self, iso: str) -> float:
+        """Atom fraction of ``iso`` in the spike (0 if not listed)."""
+        return dict(zip(self.isotopes, self.abundances)).get(iso, 0.0)
+
+    def ratio(self, num: str, den: str) -> float:
+        """Atom ratio num/den of the spike."""
+        d = self.abundance(den)
+        if d <= 0:
+            raise UndefinedResultError(f"spike {self.label!r} contains no {den}: ratio {num}/{den} undefined")
+        return self.abundance(num) / d
+
+    @property
+    def element_umol_g(self) -> float:
+        """Total element concentration of the spike solution in µmol/g."""
+        return self.concentration_umol_g / self.abundance(self.spike_isotope)
+
+
+def make_spike(element: str, isotopes: Sequence[str], abundances: Sequence[float], spike_isotope: str,
+               concentration_umol_g: float, concentration_sigma_1s: float = 0.0, label: str = "",
+               calibrated: str = "") -> Spike:
+    """Build a :class:`Spike` from plain numbers.
+
+    Parameters
+    ----------
+    element : str
+        Element symbol, e.g. ``"Nd"``.
+    isotopes : sequence of str
+        Isotopes of that element present in the spike, e.g. ``["144Nd", "146Nd", "150Nd"]``.
+    abundances : sequence of float
+        Their relative amounts (atom fractions or any proportional numbers; normalised here).
+    spike_isotope : str
+        Enriched isotope (must be listed, abundance > 0).
+    concentration_umol_g : float
+        µmol of ``spike_isotope`` per g of spike solution (> 0).
+    concentration_sigma_1s : float, default 0
+        1σ absolute uncertainty of that concentration.
+    """
+    isos = tuple(str(i).strip() for i in isotopes)
+    try:
+        ab = np.array(abundances, dtype=float).ravel()
+    except (TypeError, ValueError):
+        raise InputError("abundances", "could not be read as numbers") from None
+    if len(isos) != ab.size or not isos:
+        raise InputError("abundances", f"has {ab.size} values but isotopes has {len(isos)}")
+    if not np.all(np.isfinite(ab)) or np.any(ab < 0) or ab.sum() <= 0:
+        raise InputError("abundances", "must be finite, >= 0 and not all zero")
+    known = set(element_isotopes(element))
+    for i in isos:
+        if i not in known:
+            raise InputError("isotopes", f"{i!r} is not an isotope of {element}")
+    if len(set(isos)) != len(isos):
+        raise InputError("isotopes", "lists an isotope twice")
+    if spike_isotope not in isos or ab[isos.index(spike_isotope)] <= 0:
+        raise InputError("spike_isotope", f"{spike_isotope!r} must be one of the isotopes with abundance > 0")
+    c = float(concentration_umol_g)
+    s = float(concentration_sigma_1s)
+    if not (np.isfinite(c) and c > 0):
+        raise InputError("concentration_umol_g", f"must be > 0, got {concentration_umol_g!r}")
+    if not (np.isfinite(s) and s >= 0):
+        raise InputError("concentration_sigma_1s", f"must be >= 0, got {concentration_sigma_1s!r}")
+    ab = ab / ab.sum()
+    return Spike(label or f"{spike_isotope} spike", element, isos, tuple(float(a) for a in ab), spike_isotope,
+                 c, s, calibrated)
+
+
+def load_demo_spikes() -> Dict[str, Spike]:
+    """Demo spikes from ``reduction/data/spikes.json`` — INVENTED compositions, for examples and tests only."""
+    with open(Path(__file__).with_name("data") / "spikes.json", encoding="utf-8") as fh:
+        data = json.load(fh)
+    out: Dict[str, Spike] = {}
+    for key, d in data.items():
+        if key.startswith("_"):
+            continue
+        out[key] = make_spike(d["element"], list(d["abundances"]), list(d["abundances"].values()),
+                              d["spike_isotope"], d["concentration_umol_g"], d["concentration_sigma_1s"],
+                              d["label"], d.get("calibrated", ""))
+    return out
+
+
+# ------------------------------------------------------------------------------------ ID equation
+def magnification(mix_ratio: Any, sample_ratio: Any, spike_ratio: Any) -> Any:
+    """Error magnification |d ln n_sample / d ln R_mix| of a single-spike mixture (ratios k/r).
+
+    ``spike_ratio`` may be ``inf`` (spike free of the reference isotope); then M = R_mix/|R_mix − R_s|.
+    """
+    rm = np.asarray(mix_ratio, dtype=float)
+    rs = np.asarray(sample_ratio, dtype=float)
+    rt = np.asarray(spike_ratio, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv_t = np.where(np.isinf(rt), 0.0, 1.0 / (rt - rm))
+        m = rm * np.abs(inv_t - 1.0 / (rs - rm))
+    return _out(m)
+
+
+def magnification_min(sample_ratio: Any, spike_ratio: Any) -> Any:
+    """Smallest possible magnification for a sample/spike pair: (√R_t + √R_s)/|√R_t − √R_s| (1 if R_t = ∞)."""
+    rs = np.sqrt(np.asarray(sample_ratio, dtype=float))
+    rt = np.asarray(spike_ratio, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = np.where(np.isinf(rt), 0.0, rs / np.sqrt(np.where(np.isinf(rt), 1.0, rt)))
+        m = (1 + q) / np.abs(1 - q)
+    return _out(m)
+
+
+def _spike_u(rs_k: Any, rm_k: Any, a_k: float, a_r: float) -> np.ndarray:
+    """u = N_spike / n_r,sample from the spike-isotope ratio of the mixture (Smith 2000)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        u = (rm_k - rs_k) / (a_k - rm_k * a_r)
+    u = np.asarray(u, dtype=float)
+    if np.any(~np.isfinite(u)) or np.any(u <= 0):
+        i = int(np.flatnonzero(~(np.isfinite(u) & (u > 0)).ravel())[0])
+        raise UndefinedResultError(
+            f"mix ratio: the mixture's spike ratio {float(np.ravel(rm_k * np.ones_like(u))[i]):.6g} "
+            f"(element {i + 1}) does not lie strictly between the sample's and the spike's: "
+            "no positive amount solves the ID equation")
+    return u
+
+
+def id_amount(mix_ratio: Any, sample_ratio: Any, spike_ratio: Any, spike_ref_umol: Any) -> Any:
+    """Moles of the reference isotope in the sample, ratio form of the ID equation (ratios k/r).
+
+    n_r,sample = n_r,spike · (R_spike − R_mix) / (R_mix − R_sample)  (Faure & Mensing 2005 form).
+
+    Parameters
+    ----------
+    mix_ratio, sample_ratio, spike_ratio : array_like
+        k/r ratios of the (bias-corrected) mixture, the sample and the spike.
+    spike_ref_umol : array_like
+        µmol of the reference isotope r added with the spike.
+    """
+    rm = _pos_array("mix_ratio", mix_ratio)
+    rs = _pos_array("sample_ratio", sample_ratio)
+    rt = _pos_array("spike_ratio", spike_ratio)
+    n = _pos_array("spike_ref_umol", spike_ref_umol)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x = n * (rt - rm) / (rm - rs)
+    if np.any(~np.isfinite(x)) or np.any(x <= 0):
+        raise UndefinedResultError("mix_ratio: not strictly between sample_ratio and spike_ratio")
+    return _out(x)
+
+
+@dataclass(frozen=True)
+class Dilution:
+    """Result of one isotope-dilution reduction (fields are floats, or arrays over analyses).
+
+    Attributes
+    ----------
+    element, reference_isotope : str
+    conc_umol_g, conc_ug_g : float or ndarray
+        Element concentration of the sample (µmol/g, µg/g), before blank correction.
+    ref_umol_g : float or ndarray
+        µmol of the reference isotope per g of sample.
+    sample_ratios : dict of str to float or ndarray
+        The sample's true (unspiked, bias-corrected) ratios i/reference of every isotope.
+    atomic_weight : float or ndarray
+        Atomic weight of the sample's element from its composition and AME2020 masses (g/mol).
+    bias_factor : float or ndarray
+        Mass-bias factor used (found by iteration with internal normalisation).
+    law : str
+    spike_sample_ratio : float or ndarray
+        u = moles of spike element / moles of the sample's reference isotope.
+    mix_ratio_corrected : float or ndarray
+        Bias-corrected spike-isotope ratio k/r of the mixture.
+    magnification, magnification_min : float or ndarray
+        Error magnification of this mixture and the best attainable with this spike.
+    poor_mix : bool or ndarray of bool
+        ``magnification > 2 · magnification_min`` (rule of this program).
+    iterations : int
+        Spike-stripping iterations (1 with an external bias factor).
+    convergence_rule : str
+    """
+
+    element: str
+    reference_isotope: str
+    conc_umol_g: Any
+    conc_ug_g: Any
+    ref_umol_g: Any
+    sample_ratios: Dict[str, Any]
+    atomic_weight: Any
+    bias_factor: Any
+    law: str
+    spike_sample_ratio: Any
+    mix_ratio_corrected: Any
+    magnification: Any
+    magnification_min: Any
+    poor_mix: Any
+    iterations: int
+    convergence_rule: str
+
+
+def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: Any, spike_mass_g: Any, *,
+                     reference_isotope: Optional[str] = None, norm_ratio: Optional[str] = None,
+                     norm_true: Optional[float] = None, bias_factor: Any = None, law: str = "exponential",
+                     sample_ratios: Optional[Mapping[str, Any]] = None, tol: float = 1e-13,
+                     max_iter: int = 100) -> Dilution:
+    """Concentration and unspiked composition of a sample from its spiked mixture.
+
+    Parameters
+    ----------
+    measured : mapping of str to array_like
+        Mixture ratios to ``reference_isotope`` as measured (interference-stripped, not bias-corrected),
+        e.g. ``{"143Nd/144Nd": .., "146Nd/144Nd": .., "150Nd/144Nd": ..}``. Must contain the spike
+        isotope's ratio. Values are floats or arrays over analyses (broadcast together).
+    spike : Spike
+        The spike's record for this element.
+    sample_mass_g, spike_mass_g : array_like
+        Weighed masses of sample and spike solution (g, > 0).
+    reference_isotope : str, optional
+        Denominator of every ratio; default: that of the first ratio in ``measured``.
+    norm_ratio : str, optional
+        Internal normalisation: name of a ratio with a known true value (e.g. ``"146Nd/144Nd"``; true
+        value from ``normalising.json`` or ``norm_true``). Must be in ``measured``.
+    bias_factor : array_like, optional
+        External mass-bias factor (e.g. from a standard); excludes ``norm_ratio``.
+    law : str
+        Mass-bias law (:mod:`reduction.massbias`).
+    sample_ratios : mapping, optional
+        Known true sample ratios (e.g. 143Nd/144Nd from a separate unspiked aliquot); these are used and
+        not solved. Isotopes neither measured nor given are taken as natural (CIAAW).
+    tol : float, default 1e-13
+        Convergence: stop when |R_norm,sample / R_norm,true − 1| < tol for every analysis.
+    max_iter : int, default 100
+
+    Returns
+    -------
+    Dilution
+
+    Raises
+    ------
+    InputError
+        Masses or ratios <= 0, spike ratio missing, spike composition too close to the sample's (best
+        attainable magnification > 100: the ID equation is singular).
+    UndefinedResultError
+        Mixture ratio outside the sample–spike interval.
+    ConvergenceError
+        The spike-stripping iteration did not reach ``tol`` in ``max_iter`` passes.
+
+    Notes
+    -----
+    Iterative solution with internal normalisation (common practice for single-spike TIMS runs; see
+    Smith 2000): (1) β from the mixture's normalising ratio as if unspiked; (2) correct the mixture with
+    β, solve the ID equation for u from the spike-isotope ratio (Smith 2000); (3) subtract the spike from
+    the corrected normalising ratio; (4) update β by the bias that would bring that spike-free ratio to
+    its true value; repeat (2)-(4) until the spike-free normalising ratio matches to ``tol``.
+    """
+    if not isinstance(spike, Spike):
+        raise InputError("spike", "must be a Spike (see make_spike)")
+    if not measured:
+        raise InputError("measured", "no ratios given")
+    names = list(measured)
+    split = {k: _split(k, "measured") for k in names}
+    ref = reference_isotope or split[names[0]][1]
+    element = _el(ref)
+    if element != spike.element:
+        raise InputError("spike", f"is a {spike.element} spike but the ratios are of {element}")
+    for k, (num, den) in split.items():
+        if den != ref or _el(num) != element:
+            raise InputError("measured", f"{k!r} is not a ratio of {element} to {ref}")
+    meas = {split[k][0]: _pos_array(f"measured[{k!r}]", v) for k, v in measured.items()}
+    ws = _pos_array("sample_mass_g", sample_mass_g)
+    wt = _pos_array("spike_mass_g", spike_mass_g)
+    k_iso = spike.spike_isotope
+    if k_iso not in meas:
+        raise InputError("measured", f"needs the spike-isotope ratio {k_iso}/{ref}")
+    if k_iso == ref:
+        raise InputError("reference_isotope", "must not be the spike isotope")
+    comp = sample_composition(element, ref, sample_ratios)
+    n_iso = None
+    if norm_ratio is not None:
+        n_iso, n_den = _split(norm_ratio, "norm_ratio")
+        if n_den != ref or n_iso not in meas:
+            raise InputError("norm_ratio", f"{norm_ratio!r} must be one of the measured ratios to {ref}")
+        if n_iso == k_iso:
+            raise InputError("norm_ratio", "cannot be the spike-isotope ratio")
+        if bias_factor is not None:
+            raise InputError("bias_factor", "give either norm_ratio (internal normalisation) or bias_factor")
+        r_true = normalising_ratio(norm_ratio).value if norm_true is None else float(norm_true)
+        if not r_true > 0:
+            raise InputError("norm_true", f"must be > 0, got {norm_true!r}")
+        comp[f"{n_iso}/{ref}"] = r_true
+    elif bias_factor is None:
+        raise InputError("bias_factor", "give norm_ratio (internal normalisation) or an external bias_factor")
+    a = {i: spike.abundance(i) for i in element_isotopes(element)}
+    a_k, a_r = a[k_iso], a[ref]
+    rs_k = comp[f"{k_iso}/{ref}"]
+    rt_k = np.inf if a_r == 0 else a_k / a_r
+    m_min = magnification_min(rs_k, rt_k)
+    if np.any(np.asarray(m_min) > SINGULAR_MAGNIFICATION):
+        raise InputError("spike", f"its {k_iso}/{ref} ({rt_k:.6g}) is too close to the sample's "
+                         f"({float(np.ravel(rs_k)[0]):.6g}): the ID equation is near-singular "
+                         "(best attainable magnification "
+                         f"{float(np.max(m_min)):.3g} > {SINGULAR_MAGNIFICATION:g})")
+    mass = {i: isotope_mass(i).value for i in meas}
+    m_r = isotope_mass(ref).value
+    fixed_free = set(sample_ratios or {})
+    free = [i for i in meas if i not in (k_iso, n_iso) and f"{i}/{ref}" not in fixed_free]
+
+    def corr(i: str, beta: Any) -> Any:
+        return bias_correct(meas[i], mass[i], m_r, beta, law)
+
+    rule = (f"iterate until |({n_iso}/{ref})_sample / true - 1| < {tol:g} (max {max_iter} passes)"
+            if n_iso else "external bias factor: no iteration")
+    if n_iso is not None:
+        beta = np.asarray(_bias_factor_of(meas[n_iso], comp[f"{n_iso}/{ref}"], mass[n_iso], m_r, law))
+        r_true = comp[f"{n_iso}/{ref}"]
+        it = 0
+        while True:
+            it += 1
+            rc_k = corr(k_iso, beta)
+            u = _spike_u(rs_k, rc_k, a_k, a_r)
+            s_n = corr(n_iso, beta) * (1 + a_r * u) - a[n_iso] * u
+            if np.any(s_n <= 0):
+                raise UndefinedResultError(f"{norm_ratio}: the spike-free normalising ratio is <= 0; the spike holds "
+                                           f"too much {n_iso} for internal normalisation")
+            mis = np.abs(s_n / r_true - 1)
+            if np.all(mis < tol):
+                break
+            if it >= max_iter:
+                raise ConvergenceError(f"isotope dilution: spike stripping with {norm_ratio} did not converge in "
+                                       f"{max_iter} iterations (worst misfit {float(np.max(mis)):.3g}; rule: {rule})")
+            beta = beta + np.asarray(_bias_factor_of(s_n, r_true, mass[n_iso], m_r, law))
+    else:
+        beta = np.asarray(bias_factor, dtype=float)
+        if not np.all(np.isfinite(beta)):
+            raise InputError("bias_factor", "must be finite")
+        it = 1
+        rc_k = corr(k_iso, beta)
+        u = _spike_u(rs_k, rc_k, a_k, a_r)
+    for i in free:
+        s_i = corr(i, beta) * (1 + a_r * u) - a[i] * u
+        if np.any(s_i <= 0):
+            raise UndefinedResultError(f"measured[{i}/{ref}]: spike-free sample ratio is <= 0")
+        comp[f"{i}/{ref}"] = _out(s_i)
+    n_spike = spike.concentration_umol_g * wt / a_k
+    ref_umol_g = n_spike / u / ws
+    isos = element_isotopes(element)
+    sum_r = sum(np.asarray(comp[f"{i}/{ref}"]) for i in isos)
+    sum_rm = sum(np.asarray(comp[f"{i}/{ref}"]) * isotope_mass(i).value for i in isos)
+    mag = magnification(rc_k, rs_k, rt_k)
+    poor = np.asarray(mag) > POOR_MIX_FACTOR * np.asarray(m_min)
+    return Dilution(element, ref, _out(ref_umol_g * sum_r), _out(ref_umol_g * sum_rm), _out(ref_umol_g),
+                    comp, _out(sum_rm / sum_r), _out(beta), law, _out(u), _out(rc_k), mag, m_min,
+                    bool(poor) if poor.ndim == 0 else poor, it, rule)
+
+
+def id_concentration(mix_ratio: Any, ratio: str, sample_mass_g: Any, spike_mass_g: Any, spike: Spike, *,
+                     bias_factor: Any = 0.0, law: str = "exponential") -> Any:
+    """Element concentration (µg/g) of a sample of natural composition: float-in / float-out front.
+
+    Parameters
+    ----------
+    mix_ratio : array_like
+        Measured spike-isotope ratio of the mixture, e.g. 150Nd/144Nd.
+    ratio : str
+        Its name, ``"150Nd/144Nd"`` (numerator = the spike isotope).
+    bias_factor : array_like, default 0
+        External mass-bias factor applied to ``mix_ratio``.
+    """
+    return isotope_dilution({ratio: mix_ratio}, spike, sample_mass_g, spike_mass_g,
+                            bias_factor=bias_factor, law=law).conc_ug_g
+
+
+# ---------------------------------------------------------------------------- spike calibration
+@dataclass(frozen=True)
+class SpikeCalibration:
+    """Spike concentration from reverse isotope dilution.
+
+    Attributes
+    ----------
+    concentration_umol_g : float
+        Mean spike-isotope concentration of the spike solution (µmol/g).
+    sigma_1s : float
+        Total 1σ (random and systematic in quadrature).
+    sigma_1s_random : float
+        Replicate standard error (SD/√n) for n >= 2, else the propagated mixture-ratio σ.
+    sigma_1s_systematic : float
+        From the gravimetric standard's concentration and the weighings.
+    n : int
+    values : ndarray
+        Per-replicate concentrations.
+    magnification : ndarray
+        Error magnification of each calibration mixture.
+    spike : Spike
+        The input spike with the calibrated concentration and σ.
+    """
+
+    concentration_umol_g: float
+    sigma_1s: float
+    sigma_1s_random: float
+    sigma_1s_systematic: float
+    n: int
+    values: np.ndarray
+    magnification: np.ndarray
+    spike: Spike
+
+
+def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: Any, spike_mass_g: Any,
+                    spike: Spike, *, ratio: str, standard_conc_sigma_1s: float = 0.0,
+                    standard_mass_sigma_1s: float = 0.0, spike_mass_sigma_1s: float = 0.0,
+                    mix_ratio_sigma_1s: Any = 0.0, calibrated: str = "") -> SpikeCalibration:
+    """Calibrate a spike's concentration by reverse ID against a gravimetric natural-composition solution.
+
+    Parameters
+    ----------
+    mix_ratio : array_like
+        Bias-corrected spike-isotope ratio k/r of each spike + standard mixture (1-D: replicates).
+    standard_mass_g, spike_mass_g : array_like
+        Masses of standard solution and spike solution in each mixture (g).
+    standard_conc_umol_g : float
+        Element concentration of the gravimetric standard (µmol/g), natural (CIAAW) composition.
+    spike : Spike
+        Spike composition (its concentration is ignored and replaced).
+    ratio : str
+        Name of ``mix_ratio``, e.g. ``"150Nd/144Nd"``.
+
+    Notes
+    -----
+    The ID equation of Smith (2000) solved for the spike: u = (R_mix − R_s)/(a_k,t − R_mix·a_r,t),
+    N_spike = u·n_r,standard, c_k = a_k,t·N_spike/W_spike.
+    """
+    k_iso, ref = _split(ratio)
+    if k_iso != spike.spike_isotope or _el(ref) != spike.element:
+        raise InputError("ratio", f"must be {spike.spike_isotope}/<{spike.element} isotope>, got {ratio!r}")
+    rm = np.atleast_1d(_pos_array("mix_ratio", mix_ratio)).astype(float)
+    wstd = _pos_array("standard_mass_g", standard_mass_g)
+    wt = _pos_array("spike_mass_g", spike_mass_g)
+    cstd = _pos_array("standard_conc_umol_g", standard_conc_umol_g)
+    for nm, v in (("standard_conc_sigma_1s", standard_conc_sigma_1s), ("standard_mass_sigma_1s",
+                  standard_mass_sigma_1s), ("spike_mass_sigma_1s", spike_mass_sigma_1s)):
+        if not (np.isfinite(v) and v >= 0):
+            raise InputError(nm, f"must be >= 0, got {v!r}")
+    comp = sample_composition(spike.element, ref)
+    isos = element_isotopes(spike.element)
+    n_ref_std = cstd * wstd / sum(comp[f"{i}/{ref}"] for i in isos)
+    a_k, a_r = spike.abundance(k_iso), spike.abundance(ref)
+    rs_k = comp[ratio]
+    rt_k = np.inf if a_r == 0 else a_k / a_r
+    if magnification_min(rs_k, rt_k) > SINGULAR_MAGNIFICATION:
+        raise InputError("spike", "spike and standard ratios too close: reverse ID equation near-singular")
+    u = _spike_u(rs_k, rm, a_k, a_r)
+    vals = np.broadcast_to(a_k * u * n_ref_std / wt, rm.shape).astype(float)
+    mag = np.atleast_1d(magnification(rm, rs_k, rt_k))
+    n = vals.size
+    mean = float(vals.mean())
+    if n >= 2:
+        rnd = float(vals.std(ddof=1) / np.sqrt(n))
+    else:
+        srm = float(np.max(np.asarray(mix_ratio_sigma_1s, dtype=float)))
+        rnd = float(mean * mag[0] * srm / rm[0])
+    rel_sys = np.sqrt((standard_conc_sigma_1s / float(np.mean(cstd))) ** 2
+                      + (standard_mass_sigma_1s / float(np.mean(wstd))) ** 2 / n
+                      + (spike_mass_sigma_1s / float(np.mean(wt))) ** 2 / n)
+    sys_ = float(mean * rel_sys)
+    tot = float(np.hypot(rnd, sys_))
+    new = replace(spike, concentration_umol_g=mean, concentration_sigma_1s=tot,
+                  calibrated=calibrated or spike.calibrated)
+    return SpikeCalibration(mean, tot, rnd, sys_, n, vals.copy(), mag, new)
+
+
+# ------------------------------------------------------------------------------ forward model
+def forward_mixture(element: str, reference_isotope: str, sample_conc_umol_g: Any, sample_mass_g: Any,
+                    spike: Spike, spike_mass_g: Any, *, sample_ratios: Optional[Mapping[str, Any]] = None,
+                    bias_factor: Any = 0.0, law: str = "exponential", blank_umol: Any = 0.0,
+                    blank_ratios: Optional[Mapping[str, Any]] = None) -> Dict[str, Any]:
+    """Forward model of a spiked mixture as it would be measured (for synthetic and demo data).
+
+    Adds the moles of every isotope of sample (+ optional blank) and spike, forms the ratios to
+    ``reference_isotope`` and fractionates them with ``bias_factor`` (:func:`reduction.massbias.bias_apply`).
+
+    Parameters
+    ----------
+    sample_conc_umol_g : array_like
+        Element concentration of the sample (µmol/g).
+    sample_ratios, blank_ratios : mapping, optional
+        Compositions as ratios to ``reference_isotope`` (unlisted isotopes natural, CIAAW).
+    blank_umol : array_like
+        µmol of element added by the procedural blank.
+
+    Returns
+    -------
+    dict of str to float or ndarray
+        Every ratio i/reference of the mixture (fractionated).
+    """
+    from .massbias import bias_apply
+
+    comp = sample_composition(element, reference_isotope, sample_ratios)
+    bcomp = sample_composition(element, reference_isotope, blank_ratios)
+    isos = element_isotopes(element)
+    tot_s = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) for i in isos)
+    tot_b = sum(np.asarray(bcomp[f"{i}/{reference_isotope}"]) for i in isos)
+    n_el = np.asarray(sample_conc_umol_g, dtype=float) * np.asarray(sample_mass_g, dtype=float)
+    nb = np.asarray(blank_umol, dtype=float)
+    n_sp = spike.element_umol_g * np.asarray(spike_mass_g, dtype=float)
+    amount = {i: n_el * np.asarray(comp[f"{i}/{reference_isotope}"]) / tot_s
+              + nb * np.asarray(bcomp[f"{i}/{reference_isotope}"]) / tot_b
+              + n_sp * spike.abundance(i) for i in isos}
+    m_r = isotope_mass(reference_isotope).value
+    out: Dict[str, Any] = {}
+    for i in isos:
+        if i == reference_isotope:
+            continue
+        r = amount[i] / amount[reference_isotope]
+        out[f"{i}/{reference_isotope}"] = _out(bias_apply(r, isotope_mass(i).value, m_r, bias_factor, law))
+    return out
