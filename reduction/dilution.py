@@ -369,7 +369,8 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
         Denominator of every ratio; default: that of the first ratio in ``measured``.
     norm_ratio : str, optional
         Internal normalisation: name of a ratio with a known true value (e.g. ``"146Nd/144Nd"``; true
-        value from ``normalising.json`` or ``norm_true``). Must be in ``measured``.
+        value from ``normalising.json`` or ``norm_true``). It, or its inverse (``"86Sr/88Sr"`` with reference
+        86Sr is used as 88Sr/86Sr), must be in ``measured``.
     bias_factor : array_like, optional
         External mass-bias factor (e.g. from a standard); excludes ``norm_ratio``.
     law : str
@@ -428,15 +429,18 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     n_iso = None
     if norm_ratio is not None:
         n_iso, n_den = _split(norm_ratio, "norm_ratio")
+        if norm_true is not None and not (np.isfinite(norm_true) and norm_true > 0):
+            raise InputError("norm_true", f"must be > 0, got {norm_true!r}")
+        r_true = normalising_ratio(norm_ratio).value if norm_true is None else float(norm_true)
+        if n_iso == ref:  # e.g. 86Sr/88Sr with reference 86Sr: use 88Sr/86Sr = 1/0.1194
+            n_iso, n_den, r_true = n_den, n_iso, 1.0 / r_true
         if n_den != ref or n_iso not in meas:
-            raise InputError("norm_ratio", f"{norm_ratio!r} must be one of the measured ratios to {ref}")
+            raise InputError("norm_ratio", f"{norm_ratio!r} (or its inverse) must be one of the measured ratios "
+                             f"to {ref}")
         if n_iso == k_iso:
             raise InputError("norm_ratio", "cannot be the spike-isotope ratio")
         if bias_factor is not None:
             raise InputError("bias_factor", "give either norm_ratio (internal normalisation) or bias_factor")
-        r_true = normalising_ratio(norm_ratio).value if norm_true is None else float(norm_true)
-        if not r_true > 0:
-            raise InputError("norm_true", f"must be > 0, got {norm_true!r}")
         comp[f"{n_iso}/{ref}"] = r_true
     elif bias_factor is None:
         raise InputError("bias_factor", "give norm_ratio (internal normalisation) or an external bias_factor")
