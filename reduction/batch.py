@@ -1,0 +1,288 @@
+"""The batch path: reduce a filled RatioDesk workbook without LibreOffice.
+
+``ratiodesk reduce BOOK.xlsx|BOOK.ods -o DIR`` reads the workbook (openpyxl or the ODS reader in
+:mod:`reduction.workbook`), evaluates the template definition with the engine — the very
+functions the grid's cells call — and writes ``DIR/results.xlsx`` (values and a provenance sheet)
+and ``DIR/report.pdf``. ``ratiodesk demo`` writes the invented demo workbook first and reduces it
+into ``out/demo/``.
+
+Bad input stops the run with exit status 1 and one line per problem naming the sheet, row and
+column; the input workbook is never written to.
+"""
+from __future__ import annotations
+
+import argparse
+import datetime as _dt
+import hashlib
+import os
+import platform
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Dict, List, Mapping, Sequence, Tuple
+
+from . import __version__
+from .errors import RatioDeskError
+from .workbook import (
+    CONSTANTS,
+    FIRST_ROW,
+    ISOCHRON,
+    ISOCHRON_BLOCK,
+    ISOCHRON_FIRST_Q_ROW,
+    ISOCHRON_QUANTITIES,
+    ISOCHRON_SUMMARY_COL,
+    ISOCHRON_SYSTEMS,
+    ISOCHRON_TREATMENT_ROW,
+    KEY_ROW,
+    RESULTS,
+    SHEET_BY_NAME,
+    SPIKES,
+    Evaluation,
+    WorkbookData,
+    build_layout,
+    check_sheets,
+    evaluate,
+    fill_values,
+    formula_drift,
+    read_workbook,
+    sheet_block,
+    write_xlsx,
+)
+
+__all__ = ["BatchError", "ReduceOutcome", "add_arguments_demo", "add_arguments_reduce", "reduce_workbook",
+           "run_demo", "run_reduce", "tables_from_grid", "write_demo_workbook"]
+
+
+class BatchError(RatioDeskError):
+    """The workbook has problems; ``problems`` lists them (sheet, row and column named in each)."""
+
+    def __init__(self, path: str, problems: Sequence[str]) -> None:
+        self.problems = tuple(problems)
+        head = f"{path}: {len(problems)} problem(s); nothing was written"
+        super().__init__(head + "".join(f"\n  {p}" for p in problems))
+
+
+@dataclass(frozen=True)
+class ReduceOutcome:
+    results_xlsx: Path
+    report_pdf: Path
+    evaluation: Evaluation
+    warnings: Tuple[str, ...]
+
+
+def tables_from_grid(grid: Mapping[str, Sequence[Sequence[Any]]]) -> Tuple[Dict[str, List[Dict[str, Any]]],
+                                                                           List[Dict[str, Any]],
+                                                                           Dict[str, List[Tuple[Any, Any]]],
+                                                                           Dict[str, Any]]:
+    """Input tables of a read workbook as row dicts (by the key row), for rewriting it as values."""
+    tables: Dict[str, List[Dict[str, Any]]] = {}
+    for name in ("Spikes", "Standards", "Samples", "Measured", "Constants"):
+        sh = SHEET_BY_NAME[name]
+        block = sheet_block(grid, name, KEY_ROW, 0, sh.last_row, len(sh.columns) - 1)
+        keys = [str(k) for k in block[0]]
+        rows = []
+        for r in block[1:]:
+            rows.append({k: v for k, v in zip(keys, r) if k})
+        while rows and all(v == "" for v in rows[-1].values()):
+            rows.pop()
+        tables[name] = rows
+    selection: Dict[str, List[Tuple[Any, Any]]] = {}
+    for system, (first, last) in ISOCHRON_BLOCK.items():
+        block = sheet_block(grid, "Isochron", first, 0, last, 1)
+        selection[system] = [(a, u) for a, u in block]
+    treatments = {}
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        col = ISOCHRON_SUMMARY_COL + 1 + k
+        treatments[system] = sheet_block(grid, "Isochron", ISOCHRON_TREATMENT_ROW, col, ISOCHRON_TREATMENT_ROW,
+                                         col)[0][0] or "analytical"
+    constants = tables.pop("Constants")
+    return tables, constants, selection, treatments
+
+
+def _provenance(data: WorkbookData, constants: Sequence[Mapping[str, Any]], spikes: Sequence[Mapping[str, Any]],
+                now: str, drift: Sequence[str]) -> List[Tuple[Any, ...]]:
+    import numpy
+    import scipy
+
+    digest = hashlib.sha256(Path(data.path).read_bytes()).hexdigest()
+    rows: List[Tuple[Any, ...]] = [
+        ("Provenance", "", "", "", "", ""),
+        ("Input workbook", os.path.basename(data.path), "", "", "", ""),
+        ("Input SHA-256", digest, "", "", "", ""),
+        ("Software", f"RatioDesk {__version__} (batch path, engine evaluated without LibreOffice)", "", "", "", ""),
+        ("Python / numpy / scipy", f"{platform.python_version()} / {numpy.__version__} / {scipy.__version__}",
+         "", "", "", ""),
+        ("Date (UTC)", now, "", "", "", ""),
+        ("Formulas edited by hand", f"{len(drift)} cell(s)" if drift else "none", "", "", "", ""),
+        ("", "", "", "", "", ""),
+        ("Reference values (Constants sheet)", "", "", "", "", ""),
+        ("Key", "Quantity", "Value", "1σ (abs)", "Unit", "Source"),
+    ]
+    for r in constants:
+        rows.append(tuple(r.get(k, "") for k in ("key", "quantity", "value", "sigma_1s", "unit", "source")))
+    rows += [("", "", "", "", "", ""), ("Spike calibrations (Spikes sheet)", "", "", "", "", ""),
+             ("Spike", "Element", "Calibrated on", "Spike isotope", "µmol/g", "1σ (abs, µmol/g)")]
+    for s in spikes:
+        rows.append(tuple(s.get(k, "") for k in ("spike", "element", "calibrated", "spike_isotope", "conc_umol_g",
+                                                  "conc_sigma_1s")))
+    rows += [("", "", "", "", "", ""), ("Caution", "Results depend on the spike calibrations and the "
+                                                   "reference-material accepted values above.", "", "", "", "")]
+    for d in drift:
+        rows.append(("Edited formula", d, "", "", "", ""))
+    return rows
+
+
+def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], constants: Sequence[Mapping],
+                 selection: Mapping[str, Sequence[Tuple[Any, Any]]], treatments: Mapping[str, Any],
+                 now: str) -> Any:
+    from .report import IsochronPanel, ReportData, _axis_labels
+
+    def cell(sheet: str, row: int, col: int) -> Any:
+        return ev.cells.get((sheet, row, col), "")
+
+    header = tuple(c.header for c in RESULTS.columns if c.key not in ("check",))
+    idx = [j for j, c in enumerate(RESULTS.columns) if c.key not in ("check",)]
+    rows = []
+    for row in range(FIRST_ROW, RESULTS.last_row + 1):
+        if cell("Results", row, 0) in ("", None):
+            continue
+        rows.append(tuple(cell("Results", row, j) for j in idx))
+    panels = []
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        col = ISOCHRON_SUMMARY_COL + 1 + k
+        summary = {q: cell("Isochron", ISOCHRON_FIRST_Q_ROW + i, col) for i, (q, _l, _u) in
+                   enumerate(ISOCHRON_QUANTITIES)}
+        first, last = ISOCHRON_BLOCK[system]
+        pts = []
+        for row in range(first, last + 1):
+            a = sheet_block(data.grid, "Isochron", row, 0, row, 1)[0]
+            if a[0] == "":
+                continue
+            vals = [cell("Isochron", row, ISOCHRON.col_index(key)) for key in ("x", "x_1s", "y", "y_1s", "rho")]
+            if not all(isinstance(v, float) for v in vals):
+                continue
+            pts.append((str(a[0]), *vals, a[1] == 1.0))
+        if not pts:
+            continue
+        xl, yl = _axis_labels(system)
+        panels.append(IsochronPanel(system, xl, yl, tuple(pts), summary, str(treatments.get(system, ""))))
+    const_rows = tuple(tuple(r.get(k, "") for k in ("key", "quantity", "value", "sigma_1s", "unit", "source"))
+                       for r in constants)
+    spike_rows = tuple(tuple(s.get(k, "") for k in ("spike", "element", "calibrated", "spike_isotope", "conc_umol_g",
+                                                     "conc_sigma_1s")) for s in tables.get("Spikes", ()))
+    return ReportData(os.path.basename(data.path), os.path.basename(data.path), __version__, now, header,
+                      tuple(rows), tuple(panels), const_rows, spike_rows, tuple(ev.warnings))
+
+
+def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str], None]) -> List[Tuple[Any, ...]]:
+    """Monte Carlo σ of every analysis (seeded), reported beside the linear σ."""
+    from .workbook import MEASURED, SAMPLES, STANDARDS, analysis_result, table_ref
+    from .workbook import _block as block
+
+    ins = {s.name: block(ev_grid, table_ref(s)) for s in (SAMPLES, MEASURED, SPIKES, STANDARDS, CONSTANTS)}
+    ids = [r[0] for r in ins["Samples"][1:] if r and r[0] != ""]
+    out: List[Tuple[Any, ...]] = [("Analysis", "P/D 1σ linear", "P/D 1σ Monte Carlo", "D ratio 1σ linear",
+                                   "D ratio 1σ Monte Carlo", "ρ linear", "ρ Monte Carlo", "draws")]
+    for k, a in enumerate(ids, start=1):
+        progress(f"Monte Carlo {k}/{len(ids)}: {a} ({draws} draws)")
+        res = analysis_result(str(a), ins["Samples"], ins["Measured"], ins["Spikes"], ins["Standards"],
+                              ins["Constants"], mc_draws=draws)
+        mc = res.mc_sigma_1s or {}
+        out.append((a, res.parent_ratio_sigma_1s, mc.get("parent_ratio", ""), res.daughter_ratio_sigma_1s,
+                    mc.get("daughter_ratio", ""), res.rho, res.mc_rho if res.mc_rho is not None else "", draws))
+    return out
+
+
+def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
+                    progress: Callable[[str], None] = lambda s: None) -> ReduceOutcome:
+    """Reduce one workbook; write results.xlsx and report.pdf into ``out_dir``."""
+    from .report import write_report
+
+    data = read_workbook(path)
+    check_sheets(data)
+    drift = formula_drift(data.formulas)
+    progress(f"read {data.path}: {sum(len(g) for g in data.grid.values())} rows on {len(data.grid)} sheets")
+    ev = evaluate(data.grid, strict=False)
+    if ev.errors:
+        raise BatchError(data.path, [str(e) for e in ev.errors])
+    tables, constants, selection, treatments = tables_from_grid(data.grid)
+    now = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    lay = build_layout(tables, constants, selection)
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        lay["Isochron"][(ISOCHRON_TREATMENT_ROW, ISOCHRON_SUMMARY_COL + 1 + k)].value = treatments[system]
+    fill_values(lay, ev)
+    extra = {"Provenance": _provenance(data, constants, tables.get("Spikes", ()), now, drift)}
+    if mc_draws:
+        extra["Monte Carlo"] = _monte_carlo(data.grid, mc_draws, progress)
+    results = out / "results.xlsx"
+    write_xlsx(lay, results, values_only=True, extra_sheets=extra)
+    report = out / "report.pdf"
+    progress("drawing the report")
+    write_report(_report_data(data, ev, tables, constants, selection, treatments, now), report)
+    return ReduceOutcome(results, report, ev, tuple(drift) + tuple(ev.warnings))
+
+
+# --------------------------------------------------------------------------------------------
+# command line
+# --------------------------------------------------------------------------------------------
+def add_arguments_reduce(p: argparse.ArgumentParser) -> None:
+    p.add_argument("workbook", help="filled RatioDesk workbook (.xlsx or .ods)")
+    p.add_argument("-o", "--out", default="out/reduce", help="output directory (default: out/reduce)")
+    p.add_argument("--mc", type=int, default=0, metavar="N",
+                   help="also run a seeded Monte Carlo with N draws per analysis (progress is shown)")
+
+
+def _progress(msg: str) -> None:
+    print(msg, file=sys.stderr, flush=True)
+
+
+def _summarise(outcome: ReduceOutcome) -> None:
+    ev = outcome.evaluation
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        col = ISOCHRON_SUMMARY_COL + 1 + k
+        age = ev.cells.get(("Isochron", ISOCHRON_FIRST_Q_ROW + 1, col))
+        a2 = ev.cells.get(("Isochron", ISOCHRON_FIRST_Q_ROW + 2, col))
+        mswd = ev.cells.get(("Isochron", ISOCHRON_FIRST_Q_ROW + 9, col))
+        if isinstance(age, float):
+            m = f"{mswd:.2f}" if isinstance(mswd, float) else str(mswd)
+            print(f"  {system} isochron: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), MSWD {m}")
+    for w in outcome.warnings:
+        print(f"  warning: {w}")
+    print(f"wrote {outcome.results_xlsx}")
+    print(f"wrote {outcome.report_pdf}")
+
+
+def run_reduce(args: argparse.Namespace) -> int:
+    outcome = reduce_workbook(args.workbook, args.out, mc_draws=args.mc, progress=_progress)
+    _summarise(outcome)
+    return 0
+
+
+def add_arguments_demo(p: argparse.ArgumentParser) -> None:
+    p.add_argument("-o", "--out", default="out/demo", help="output directory (default: out/demo)")
+    p.add_argument("--mc", type=int, default=0, metavar="N", help="also run a seeded Monte Carlo with N draws")
+
+
+def write_demo_workbook(path: Any) -> Path:
+    """Write the invented demo workbook (.xlsx) with cached values computed by the engine."""
+    from .demo import demo_layout
+
+    lay = demo_layout()
+    write_xlsx(lay, path)
+    return Path(path)
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    out = Path(args.out)
+    out.mkdir(parents=True, exist_ok=True)
+    book = write_demo_workbook(out / "demo-workbook.xlsx")
+    print(f"wrote {book} (invented demo scenario, forward-modelled)")
+    outcome = reduce_workbook(book, out, mc_draws=args.mc, progress=_progress)
+    _summarise(outcome)
+    from .demo import TRUE_AGES_MA
+
+    print("  true ages of the invented scenario: " + ", ".join(f"{k} {v:.1f} Ma" for k, v in TRUE_AGES_MA.items()))
+    return 0
+

@@ -1,0 +1,264 @@
+"""The demo scenario: an invented garnet study, forward-modelled from chosen true ages.
+
+Everything here is invented: the terrane, the samples, the laboratory, the spikes and the session
+offsets. Nothing is a real sample or a real dataset. The numbers are made the way an instrument
+would make them: a sample of known composition is weighed, spiked and contaminated by a blank; the
+mixture's isotope ratios are fractionated by the exponential mass-bias law (Russell,
+Papanastassiou & Tombrello 1978, Geochim. Cosmochim. Acta 42, 1075-1090), offset by a session
+bias that the reference-material runs reveal, and perturbed by seeded Gaussian noise of the stated
+1σ. Reducing these numbers with the engine must give back the chosen ages within their
+uncertainties (``tests/engine/test_demo.py``).
+
+Scenario
+--------
+The *Harrowmere eclogite belt* of the fictional *Quillon terrane*: an eclogite (sample HM-07) and a
+garnet amphibolite (HM-12), analysed by the invented *Lantern Hill Isotope Laboratory*. True ages:
+Sm-Nd garnet growth 412.0 Ma, Lu-Hf 418.0 Ma (Lu-Hf records earlier, prograde growth, as is common
+practice to expect from Lu's strong partitioning into garnet cores).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Dict, List, Mapping, Tuple
+
+import numpy as np
+
+from .constants import isotope_mass, normalising_ratio, reference_material, reference_set
+from .dilution import Spike, element_isotopes, forward_mixture, make_spike, sample_composition
+from .systems import get_system
+
+__all__ = ["DEMO_SEED", "FRACTIONS", "SCENARIO", "TRUE_AGES_MA", "DemoFraction", "demo_spikes", "demo_tables",
+           "true_values"]
+
+DEMO_SEED = 5
+TRUE_AGES_MA: Dict[str, float] = {"sm-nd": 412.0, "lu-hf": 418.0}
+TRUE_INITIAL: Dict[str, float] = {"sm-nd": 0.511850, "lu-hf": 0.282410}
+
+SCENARIO = {
+    "terrane": "Quillon terrane (fictional)",
+    "unit": "Harrowmere eclogite belt (fictional)",
+    "lab": "Lantern Hill Isotope Laboratory (fictional)",
+    "analyst": "demo analyst",
+    "note": "Invented demonstration data, forward-modelled from chosen true ages "
+            "(Sm-Nd 412.0 Ma, Lu-Hf 418.0 Ma). Not real samples or measurements.",
+}
+
+# Invented spikes: (label, element, calibrated, spike isotope, µmol/g of spike isotope, 1σ, abundances)
+SPIKES = (
+    ("LH-SmNd-3", "Sm", "2025-11-03", "149Sm", 0.0150, 0.0150 * 0.0008,
+     {"144Sm": 0.0004, "147Sm": 0.0062, "148Sm": 0.0071, "149Sm": 0.9711, "150Sm": 0.0086,
+      "152Sm": 0.0047, "154Sm": 0.0019}),
+    ("LH-SmNd-3", "Nd", "2025-11-03", "150Nd", 0.0250, 0.0250 * 0.0008,
+     {"142Nd": 0.0059, "143Nd": 0.0031, "144Nd": 0.0066, "145Nd": 0.0028, "146Nd": 0.0061,
+      "148Nd": 0.0085, "150Nd": 0.9670}),
+    ("LH-LuHf-2", "Lu", "2025-09-18", "176Lu", 0.00060, 0.00060 * 0.0010,
+     {"175Lu": 0.2410, "176Lu": 0.7590}),
+    ("LH-LuHf-2", "Hf", "2025-09-18", "180Hf", 0.0040, 0.0040 * 0.0010,
+     {"174Hf": 0.0002, "176Hf": 0.0016, "177Hf": 0.0061, "178Hf": 0.0108, "179Hf": 0.0093,
+      "180Hf": 0.9720}),
+)
+
+
+@dataclass(frozen=True)
+class DemoFraction:
+    """One invented analysis: its true composition and how it was weighed."""
+
+    analysis: str
+    sample: str
+    fraction: str
+    system: str
+    session: str
+    x_true: float          # true parent/daughter ratio (147Sm/144Nd or 176Lu/177Hf)
+    daughter_ug_g: float   # Nd or Hf concentration, µg/g
+    sample_mass_g: float
+    spike_mass_g: float
+    parent_blank_ng: float
+    daughter_blank_ng: float
+
+
+FRACTIONS = (
+    DemoFraction("SN-01", "HM-07", "whole rock", "sm-nd", "N-2026-03A", 0.1385, 14.2, 0.0512, 0.2050, 0.004, 0.020),
+    DemoFraction("SN-02", "HM-07", "garnet", "sm-nd", "N-2026-03A", 0.9210, 0.92, 0.2104, 0.0860, 0.004, 0.020),
+    DemoFraction("SN-03", "HM-07", "garnet", "sm-nd", "N-2026-03A", 1.2730, 0.71, 0.2356, 0.0950, 0.004, 0.020),
+    DemoFraction("SN-04", "HM-07", "garnet leachate", "sm-nd", "N-2026-03B", 0.4120, 2.35, 0.0820, 0.0900, 0.004,
+                 0.020),
+    DemoFraction("SN-05", "HM-07", "garnet", "sm-nd", "N-2026-03B", 1.6480, 0.55, 0.2618, 0.1120, 0.004, 0.020),
+    DemoFraction("SN-06", "HM-12", "omphacite", "sm-nd", "N-2026-03B", 0.2210, 6.80, 0.0755, 0.2300, 0.004, 0.020),
+    DemoFraction("LH-01", "HM-07", "whole rock", "lu-hf", "H-2026-04A", 0.0125, 2.10, 0.1020, 0.1150, 0.003, 0.030),
+    DemoFraction("LH-02", "HM-07", "garnet", "lu-hf", "H-2026-04A", 0.7850, 0.24, 0.2210, 0.1240, 0.003, 0.030),
+    DemoFraction("LH-03", "HM-07", "garnet", "lu-hf", "H-2026-04A", 1.1420, 0.19, 0.2405, 0.1330, 0.003, 0.030),
+    DemoFraction("LH-04", "HM-07", "garnet leachate", "lu-hf", "H-2026-04B", 0.3160, 0.52, 0.1210, 0.0990, 0.003,
+                 0.030),
+    DemoFraction("LH-05", "HM-07", "garnet", "lu-hf", "H-2026-04B", 1.5230, 0.16, 0.2650, 0.1450, 0.003, 0.030),
+)
+
+# Session offsets of the normalised radiogenic ratio (relative), seen in the reference-material runs.
+SESSION_OFFSET = {"N-2026-03A": +18e-6, "N-2026-03B": -9e-6, "H-2026-04A": +25e-6, "H-2026-04B": +12e-6}
+SESSION_MATERIAL = {"N-2026-03A": ("JNdi-1", "143Nd/144Nd"), "N-2026-03B": ("JNdi-1", "143Nd/144Nd"),
+                    "H-2026-04A": ("JMC-475", "176Hf/177Hf"), "H-2026-04B": ("JMC-475", "176Hf/177Hf")}
+SESSION_DATE = {"N-2026-03A": "2026-03-10", "N-2026-03B": "2026-03-12", "H-2026-04A": "2026-04-02",
+                "H-2026-04B": "2026-04-03"}
+STANDARD_RUNS_PER_SESSION = 6
+STANDARD_SD_REL = {"143Nd/144Nd": 9e-6, "176Hf/177Hf": 14e-6}
+
+# Measured ratios per element run: (ratio, relative 1σ of the run mean). Ratios are to the reference isotope.
+RUN_RATIOS: Dict[str, Tuple[Tuple[str, float], ...]] = {
+    "Nd": (("143Nd/144Nd", 4e-6), ("146Nd/144Nd", 5e-6), ("150Nd/144Nd", 15e-6)),
+    "Sm": (("147Sm/152Sm", 20e-6), ("149Sm/152Sm", 25e-6)),
+    "Lu": (("176Lu/175Lu", 60e-6),),
+    "Hf": (("176Hf/177Hf", 6e-6), ("179Hf/177Hf", 6e-6), ("180Hf/177Hf", 15e-6)),
+}
+BIAS_FACTOR = {"Nd": -1.92, "Sm": -1.88, "Lu": -1.75, "Hf": -1.80}  # exponential-law β of the invented instrument
+SYSTEM_ELEMENTS = {"sm-nd": ("Sm", "Nd"), "lu-hf": ("Lu", "Hf")}
+NORMALISING = {"Nd": "146Nd/144Nd", "Sm": "147Sm/152Sm", "Hf": "179Hf/177Hf"}
+SPIKE_OF_SYSTEM = {"sm-nd": "LH-SmNd-3", "lu-hf": "LH-LuHf-2"}
+REFERENCE_ISOTOPE = {"Nd": "144Nd", "Sm": "152Sm", "Hf": "177Hf", "Lu": "175Lu"}
+BLANK_DAUGHTER_RATIO: Dict[str, float] = {}  # blanks of natural composition, as the chain assumes
+
+
+def _sample_ratios(element: str, reference: str, ratios: Mapping[str, float]) -> Dict[str, float]:
+    """A sample's ratios to ``reference``: natural (CIAAW), with the element's normalising ratio at its
+    conventional value (a sample is, by definition of internal normalisation, on that value) and
+    ``ratios`` laid over them."""
+    out: Dict[str, float] = {}
+    norm = NORMALISING.get(element)
+    if norm is not None:
+        num, den = norm.split("/")
+        v = normalising_ratio(norm).value
+        if den == reference:
+            out[norm] = v
+        else:   # e.g. 147Sm/152Sm with 152Sm as reference: fine; other orientations by inversion
+            out[f"{den}/{num}"] = 1.0 / v
+    out.update(ratios)
+    return out
+
+
+def _composition(element: str, reference: str, ratios: Mapping[str, float]) -> Dict[str, float]:
+    """Atom fractions of a sample element (see :func:`_sample_ratios`)."""
+    comp = sample_composition(element, reference, _sample_ratios(element, reference, ratios))
+    total = sum(float(comp[f"{iso}/{reference}"]) for iso in element_isotopes(element))
+    return {iso: float(comp[f"{iso}/{reference}"]) / total for iso in element_isotopes(element)}
+
+
+def _molar_mass(fractions: Mapping[str, float]) -> float:
+    return sum(isotope_mass(i).value * f for i, f in fractions.items())
+
+
+def demo_spikes() -> Dict[Tuple[str, str], Spike]:
+    """The invented laboratory's spikes, keyed by (label, element)."""
+    return {(lab, el): make_spike(el, tuple(ab), tuple(ab.values()), iso, conc, s, label=lab, calibrated=date)
+            for lab, el, date, iso, conc, s, ab in SPIKES}
+
+
+def _lambda(system: str) -> float:
+    return reference_set().decay_constant(get_system(system).decay_key).value
+
+
+def true_values(fr: DemoFraction) -> Dict[str, float]:
+    """True ratios and concentrations (µg/g) of a demo fraction, before any blank or spike."""
+    system = get_system(fr.system)
+    y = TRUE_INITIAL[fr.system] + fr.x_true * math.expm1(_lambda(fr.system) * TRUE_AGES_MA[fr.system] * 1e6)
+    d_comp = _composition(system.daughter_element, system.reference, {system.daughter_ratio: y})
+    d_umol_g = fr.daughter_ug_g / _molar_mass(d_comp)
+    p_ref = REFERENCE_ISOTOPE[system.parent_element]
+    p_comp = _composition(system.parent_element, p_ref, {})
+    p_umol_g = fr.x_true * d_umol_g * d_comp[system.reference] / p_comp[system.parent]
+    return {"x": fr.x_true, "y": y, "daughter_ug_g": fr.daughter_ug_g, "daughter_umol_g": d_umol_g,
+            "parent_umol_g": p_umol_g, "parent_ug_g": p_umol_g * _molar_mass(p_comp)}
+
+
+def _measured_mixtures(fr: DemoFraction, betas: Mapping[str, float]) -> Dict[str, Dict[str, float]]:
+    """Fractionated mixture ratios of both element runs (before the session offset and noise)."""
+    system = get_system(fr.system)
+    tv = true_values(fr)
+    spikes = demo_spikes()
+    label = SPIKE_OF_SYSTEM[fr.system]
+    out = {}
+    for el, conc, ratios, blank_ng in (
+            (system.parent_element, tv["parent_umol_g"], {}, fr.parent_blank_ng),
+            (system.daughter_element, tv["daughter_umol_g"], {system.daughter_ratio: tv["y"]},
+             fr.daughter_blank_ng)):
+        ref = REFERENCE_ISOTOPE[el]
+        blank_ratios = {system.daughter_ratio: BLANK_DAUGHTER_RATIO[el]} if el in BLANK_DAUGHTER_RATIO else {}
+        blank_umol = blank_ng * 1e-3 / _molar_mass(_composition(el, ref, blank_ratios))
+        out[el] = forward_mixture(el, ref, conc, fr.sample_mass_g, spikes[(label, el)], fr.spike_mass_g,
+                                  sample_ratios=_sample_ratios(el, ref, ratios) or None, bias_factor=betas[el], blank_umol=blank_umol,
+                                  blank_ratios=blank_ratios or None)
+    return out
+
+
+def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
+    """Rows of every input sheet of the demo workbook, keyed by the template's column keys.
+
+    Returns a mapping ``sheet name -> list of row dicts`` for the Spikes, Standards, Samples,
+    Measured and Isochron selection tables (Constants come from the default reference set).
+    """
+    rng = np.random.default_rng(seed)
+    spikes = []
+    for lab, el, date, iso, conc, s, ab in SPIKES:
+        row: Dict[str, object] = {"spike": lab, "element": el, "calibrated": date, "spike_isotope": iso,
+                                  "conc_umol_g": conc, "conc_sigma_1s": s}
+        for k, (i, a) in enumerate(ab.items(), start=1):
+            row[f"iso{k}"] = i
+            row[f"ab{k}"] = a
+        spikes.append(row)
+
+    standards = []
+    for session, (material, ratio) in SESSION_MATERIAL.items():
+        accepted = reference_material(material, ratio).value
+        sd = STANDARD_SD_REL[ratio]
+        for k in range(STANDARD_RUNS_PER_SESSION):
+            v = accepted * (1 + SESSION_OFFSET[session]) * (1 + sd * rng.standard_normal())
+            standards.append({"session": session, "material": material, "ratio": ratio,
+                              "measured": float(f"{v:.7f}"), "sigma_1s": float(f"{accepted * 4e-6:.7f}"),
+                              "date": SESSION_DATE[session], "run": f"{material} #{k + 1}"})
+
+    samples, measured = [], []
+    for fr in FRACTIONS:
+        label = SPIKE_OF_SYSTEM[fr.system]
+        samples.append({"analysis": fr.analysis, "sample": fr.sample, "fraction": fr.fraction,
+                        "system": "Sm-Nd" if fr.system == "sm-nd" else "Lu-Hf", "session": fr.session,
+                        "sample_mass_g": fr.sample_mass_g, "spike": label, "spike_mass_g": fr.spike_mass_g,
+                        "parent_blank_ng": fr.parent_blank_ng, "daughter_blank_ng": fr.daughter_blank_ng})
+        system = get_system(fr.system)
+        betas = {el: BIAS_FACTOR[el] + 0.02 * rng.standard_normal() for el in SYSTEM_ELEMENTS[fr.system]}
+        mix = _measured_mixtures(fr, betas)
+        for el in SYSTEM_ELEMENTS[fr.system]:
+            row = {"analysis": fr.analysis, "element": el, "run_date": SESSION_DATE[fr.session]}
+            beta = betas[el]
+            for k, (ratio, rel) in enumerate(RUN_RATIOS[el], start=1):
+                r = float(mix[el][ratio])
+                if ratio == system.daughter_ratio:
+                    # the session bias the reference material reveals, and the run-to-run scatter
+                    # (external reproducibility) that the standards' SD measures
+                    r *= (1 + SESSION_OFFSET[fr.session]) * (1 + STANDARD_SD_REL[ratio] * rng.standard_normal())
+                r_meas = r * (1 + rel * rng.standard_normal())
+                row[f"r{k}_name"] = ratio
+                row[f"r{k}"] = float(f"{r_meas:.9g}")
+                row[f"r{k}_sigma_1s"] = float(f"{r_meas * rel:.3g}")
+            if len(RUN_RATIOS[el]) == 1:   # two-isotope element: external bias factor (common practice)
+                row["bias_factor"] = round(beta, 5)
+            measured.append(row)
+    return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured}
+
+
+def demo_selection() -> Dict[str, List[Tuple[str, int]]]:
+    """Rows chosen for each isochron of the demo workbook (all of them)."""
+    out: Dict[str, List[Tuple[str, int]]] = {"Sm-Nd": [], "Lu-Hf": []}
+    for fr in FRACTIONS:
+        out["Sm-Nd" if fr.system == "sm-nd" else "Lu-Hf"].append((fr.analysis, 1))
+    return out
+
+
+def demo_layout(seed: int = DEMO_SEED) -> Any:
+    """The demo workbook's cells (inputs filled, computed cells carrying engine values)."""
+    from .workbook import ABOUT_LINES, build_layout, evaluate, fill_values, layout_grid
+
+    about = (("RatioDesk demo workbook — invented data", "title"),
+             (SCENARIO["note"], "note"), ("", "plain"),
+             (f"Terrane: {SCENARIO['terrane']}; unit: {SCENARIO['unit']}; laboratory: {SCENARIO['lab']}.",
+              "plain")) + ABOUT_LINES[3:]
+    lay = build_layout(demo_tables(seed), isochron_selection=demo_selection(), about=about)
+    fill_values(lay, evaluate(layout_grid(lay), strict=False))
+    return lay

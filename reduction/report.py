@@ -1,0 +1,204 @@
+"""The PDF report of a reduced workbook (matplotlib, Agg backend: no display needed).
+
+Pages: one isochron diagram per system (error ellipses from
+:func:`reduction.regression.ellipse_points`, the fitted line, the age with its levels stated, and a
+panel of deviations from the line in ppm where the ellipses are visible), the result tables with
+every uncertainty's level and form, and the reference values and spike calibrations the numbers
+rest on, with the caution that the results depend on them.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, List, Mapping, Optional, Sequence, Tuple
+
+__all__ = ["CAUTION", "IsochronPanel", "ReportData", "write_report"]
+
+CAUTION = ("Caution: these results depend on the spike calibrations and on the accepted values of the "
+           "reference materials listed here, and on the decay constants used. Report them with the ages; "
+           "a change in any of them changes every concentration, ratio and age.")
+
+
+@dataclass(frozen=True)
+class IsochronPanel:
+    """One isochron to draw: the points used and left out, and the summary quantities."""
+
+    system: str
+    x_label: str
+    y_label: str
+    points: Tuple[Tuple[str, float, float, float, float, float, bool], ...]  # id, x, sx, y, sy, rho, used
+    summary: Mapping[str, Any]
+    treatment: str = "analytical"
+
+
+@dataclass(frozen=True)
+class ReportData:
+    title: str
+    source: str
+    version: str
+    date: str
+    results_header: Tuple[str, ...]
+    results_rows: Tuple[Tuple[Any, ...], ...]
+    isochrons: Tuple[IsochronPanel, ...]
+    constants: Tuple[Tuple[str, str, Any, Any, str, str], ...]
+    spikes: Tuple[Tuple[Any, ...], ...]
+    notes: Tuple[str, ...] = field(default=())
+
+
+def _fmt(v: Any, nd: int = 6) -> str:
+    if isinstance(v, float):
+        if v == 0:
+            return "0"
+        a = abs(v)
+        if a >= 1e4 or a < 1e-3:
+            return f"{v:.3e}"
+        return f"{v:.{nd}g}"
+    return str(v)
+
+
+def _axis_labels(system: str) -> Tuple[str, str]:
+    if system.lower().startswith("sm"):
+        return "$^{147}$Sm/$^{144}$Nd", "$^{143}$Nd/$^{144}$Nd"
+    if system.lower().startswith("lu"):
+        return "$^{176}$Lu/$^{177}$Hf", "$^{176}$Hf/$^{177}$Hf"
+    return "parent/daughter", "daughter ratio"
+
+
+def _age_text(p: IsochronPanel) -> str:
+    s = p.summary
+    lines = [f"{p.system} isochron, {p.treatment} treatment"]
+    if isinstance(s.get("age"), float):
+        lines.append(f"age = {s['age']:.2f} ± {s['age_2s']:.2f} Ma (2σ, slope only)")
+        lines.append(f"      ± {s['age_2s_lambda']:.2f} Ma (2σ, with decay constant)")
+        if isinstance(s.get("age_95"), float):
+            lines.append(f"      ± {s['age_95']:.2f} Ma (95 %, t·√MSWD)")
+        lines.append(f"initial = {s['initial']:.7f} ± {s['initial_2s']:.7f} (2σ)")
+        if isinstance(s.get("eps_t"), float):
+            lines.append(f"ε(t) = {s['eps_t']:.2f} ± {s['eps_t_2s']:.2f} (2σ)")
+        m, pv = s.get("mswd"), s.get("p")
+        lines.append(f"MSWD = {_fmt(m, 3)}, p = {_fmt(pv, 3)}, n = {int(s.get('n', 0))}")
+    else:
+        lines.append(str(s.get("message", "no fit")))
+    return "\n".join(lines)
+
+
+def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
+    import matplotlib.pyplot as plt
+    import numpy as np
+    from matplotlib.patches import Polygon
+
+    from .regression import ellipse_points
+
+    fig, (ax, axr) = plt.subplots(2, 1, figsize=(8.27, 11.69), gridspec_kw={"height_ratios": [3, 1.4]})
+    xl, yl = _axis_labels(p.system)
+    pts = [q for q in p.points]
+    xs = np.array([q[1] for q in pts])
+    slope = p.summary.get("slope")
+    inter = p.summary.get("initial")
+    have_fit = isinstance(slope, float) and isinstance(inter, float)
+    for aid, x, sx, y, sy, rho, used in pts:
+        ex, ey = ellipse_points(x, sx, y, sy, rho, n_points=64, confidence=0.95)
+        face = "#4c72b0" if used else "none"
+        ax.add_patch(Polygon(np.column_stack([ex, ey]), closed=True, facecolor=face, alpha=0.55 if used else 1,
+                             edgecolor="#1f3a68" if used else "#999999", lw=0.8))
+        ax.annotate(aid, (x, y), xytext=(6, -10), textcoords="offset points", fontsize=7, color="#333333")
+        if have_fit:
+            dev = (ey - (inter + slope * ex)) / (inter + slope * ex) * 1e6
+            axr.add_patch(Polygon(np.column_stack([ex, dev]), closed=True, facecolor=face, alpha=0.55 if used else 1,
+                                  edgecolor="#1f3a68" if used else "#999999", lw=0.8))
+            axr.annotate(aid, (x, float(np.mean(dev))), xytext=(6, 0), textcoords="offset points", fontsize=7)
+    span = xs.max() - xs.min() if len(xs) > 1 else 1.0
+    lo, hi = xs.min() - 0.08 * span, xs.max() + 0.08 * span
+    xx = np.linspace(max(lo, 0.0) if xs.min() >= 0 else lo, hi, 50)
+    if have_fit:
+        ax.plot(xx, inter + slope * xx, color="#c44e52", lw=1.0, label="York fit")
+        axr.axhline(0.0, color="#c44e52", lw=1.0)
+    ax.set_xlim(xx[0], xx[-1])
+    ys = np.array([q[3] for q in pts])
+    yspan = ys.max() - ys.min() if len(ys) > 1 else abs(ys[0]) * 1e-3
+    ax.set_ylim(ys.min() - 0.08 * yspan, ys.max() + 0.12 * yspan)
+    ax.set_xlabel(xl)
+    ax.set_ylabel(yl)
+    ax.ticklabel_format(useOffset=False)
+    ax.set_title(f"{p.system} isochron — {data.title}", fontsize=11)
+    ax.text(0.02, 0.98, _age_text(p), transform=ax.transAxes, va="top", ha="left", fontsize=8.5,
+            family="monospace", bbox={"boxstyle": "round", "facecolor": "white", "edgecolor": "#bbbbbb"})
+    ax.text(0.98, 0.02, "ellipses: 95 % confidence (2-D); open = not used in the fit", transform=ax.transAxes,
+            ha="right", va="bottom", fontsize=7, color="#555555")
+    axr.set_xlim(xx[0], xx[-1])
+    axr.autoscale(axis="y")
+    axr.set_xlabel(xl)
+    axr.set_ylabel("deviation from the line (ppm)")
+    axr.set_title("Deviations from the fitted line, same ellipses magnified", fontsize=9)
+    fig.text(0.5, 0.015, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center", fontsize=7,
+             color="#666666")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    pdf.savefig(fig)
+    plt.close(fig)
+
+
+def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Sequence[Any]], data: ReportData,
+                 notes: Sequence[str] = (), rows_per_page: int = 26, col_widths: Optional[Sequence[float]] = None,
+                 fontsize: float = 6.5, landscape: bool = True) -> None:
+    import matplotlib.pyplot as plt
+
+    size = (11.69, 8.27) if landscape else (8.27, 11.69)
+    chunks = [rows[i:i + rows_per_page] for i in range(0, max(len(rows), 1), rows_per_page)] or [[]]
+    for k, chunk in enumerate(chunks):
+        fig = plt.figure(figsize=size)
+        fig.text(0.04, 0.96, title + (f" (continued {k + 1})" if k else ""), fontsize=12, weight="bold")
+        ax = fig.add_axes((0.03, 0.12, 0.94, 0.80))
+        ax.axis("off")
+        cells = [[_fmt(v) for v in r] for r in chunk] or [["" for _ in header]]
+        tab = ax.table(cellText=cells, colLabels=list(header), loc="upper center", cellLoc="right",
+                       colWidths=list(col_widths) if col_widths else None)
+        tab.auto_set_font_size(False)
+        tab.set_fontsize(fontsize)
+        tab.scale(1, 1.25)
+        for (r, _c), cell in tab.get_celld().items():
+            cell.set_linewidth(0.3)
+            if r == 0:
+                cell.set_facecolor("#e8e8e8")
+                cell.set_text_props(weight="bold", wrap=True)
+                cell.set_height(cell.get_height() * 2.2)
+        y = 0.10
+        for n in notes:
+            fig.text(0.04, y, n, fontsize=7, wrap=True)
+            y -= 0.022
+        fig.text(0.5, 0.01, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center", fontsize=7,
+                 color="#666666")
+        pdf.savefig(fig)
+        plt.close(fig)
+
+
+def write_report(data: ReportData, path: Any) -> None:
+    """Write the PDF report to ``path``."""
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    from matplotlib.backends.backend_pdf import PdfPages
+
+    meta = {"Title": f"RatioDesk report: {data.title}", "Creator": f"RatioDesk {data.version}"}
+    with PdfPages(str(path), metadata=meta) as pdf:
+        for p in data.isochrons:
+            _isochron_page(pdf, p, data)
+        _table_pages(pdf, "Results per analysis", data.results_header, data.results_rows, data,
+                     notes=("Parent/daughter ratio: 147Sm/144Nd or 176Lu/177Hf; daughter ratio: 143Nd/144Nd or "
+                            "176Hf/177Hf. 1σ abs = one standard deviation, absolute; 2σ (%) / (ppm) = two "
+                            "standard deviations, relative. ρ = error correlation of the two ratios.",
+                            CAUTION) + tuple(data.notes))
+        iso_rows: List[Tuple[Any, ...]] = []
+        from .workbook import ISOCHRON_QUANTITIES
+
+        for q, label, unit in ISOCHRON_QUANTITIES:
+            iso_rows.append((label, *[p.summary.get(q, "") for p in data.isochrons], unit))
+        _table_pages(pdf, "Isochron summaries", ("Quantity", *[p.system for p in data.isochrons], "Unit / level"),
+                     iso_rows, data, col_widths=(0.32, 0.2, 0.2, 0.28)[: 2 + len(data.isochrons)] if
+                     len(data.isochrons) == 2 else None, fontsize=8, landscape=False,
+                     notes=("Fit: York et al. 2004 (Am. J. Phys. 72, 367). Scatter treatment as stated on each "
+                            "isochron page.", CAUTION))
+        _table_pages(pdf, "Reference values used (Constants sheet)", ("Key", "Quantity", "Value", "1σ (abs)", "Unit",
+                                                                      "Source"), data.constants, data,
+                     col_widths=(0.14, 0.18, 0.1, 0.08, 0.06, 0.44), fontsize=6, notes=(CAUTION,))
+        _table_pages(pdf, "Spike calibrations used (Spikes sheet)", ("Spike", "Element", "Calibrated on",
+                                                                     "Spike isotope", "µmol/g", "1σ (abs, µmol/g)"),
+                     data.spikes, data, fontsize=8, notes=(CAUTION,))

@@ -1,0 +1,1352 @@
+"""The RatioDesk workbook: one template definition, two evaluators.
+
+The template is defined here once — its sheets, their input columns, and every computed column as
+(engine function, the inputs it reads, the formula written into the grid). Two things use that
+definition:
+
+* the build (``templates/build_template.py``) writes it into ``.xlsx`` and ``.ods`` workbooks whose
+  computed cells are Calc add-in formulas (the ``rd*`` functions of ``macros/functions.py``);
+* the batch path (``ratiodesk reduce``) reads the same workbook with :func:`read_workbook` and
+  evaluates the same definition with :func:`evaluate`, calling the very functions the add-in calls
+  (:func:`analysis_value`, :func:`isochron_value`) on the same cell values. The grid and the batch
+  path therefore cannot drift apart; a workbook whose formulas were edited is reported by
+  :func:`formula_drift`.
+
+Tables are read by the machine-readable column keys in row :data:`KEY_ROW` (small grey text under
+the headers), not by position, so a user may insert a column without breaking anything. Every
+problem is reported as a :class:`CellError` naming the sheet, row and column.
+
+Sheets (names of our own): ``Constants`` (the live reference values), ``Spikes``, ``Standards``
+(reference-material runs per session), ``Samples``, ``Measured`` (raw mixture ratios per element
+run), ``Results`` (one formula row per analysis), ``Isochron`` (selection, fit, age, chart data).
+"""
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+from functools import lru_cache
+from typing import Any, Callable, Dict, List, Mapping, Optional, Sequence, Tuple
+
+from .errors import InputError, RatioDeskError
+
+__all__ = [
+    "ANALYSIS_QUANTITIES",
+    "CellError",
+    "Column",
+    "ISOCHRON_QUANTITIES",
+    "SHEETS",
+    "Sheet",
+    "analysis_value",
+    "constants_rows",
+    "isochron_value",
+]
+
+TITLE_ROW, NOTE_ROW, HEADER_ROW, KEY_ROW, FIRST_ROW = 1, 2, 3, 4, 5
+SERVICE = "ORG.RATIODESK.CALCFUNCTIONS"   # internal add-in name stored in files (macros/functions.py)
+MARKER = "\u26a0 "                         # leading marker of a cell message (macros/functions.py)
+
+Cell = Any           # float | str ('' = empty)
+Rows = Tuple[Tuple[Cell, ...], ...]
+
+
+class CellError(InputError):
+    """A problem at one cell of the workbook: sheet, 1-based row, column letter and header."""
+
+    def __init__(self, sheet: str, row: Optional[int], column: Optional[str], header: str, problem: str) -> None:
+        self.sheet, self.cell_row, self.column, self.header = sheet, row, column, header
+        where = sheet
+        if row is not None:
+            where += f", row {row}"
+        if column:
+            where += f", column {column}" + (f" ({header})" if header else "")
+        super().__init__(where, problem)
+        self.args = (f"{where}: {problem}",)
+
+    def __str__(self) -> str:
+        return self.args[0]
+
+
+# --------------------------------------------------------------------------------------------
+# the definition
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Column:
+    """One column of a table sheet.
+
+    ``kind`` is ``"text"``, ``"number"``, ``"flag"`` (1 or 0) for inputs, ``"computed"`` for a column
+    the template fills with a formula. A computed column names its ``quantity`` (what
+    :func:`analysis_value` / :func:`isochron_value` returns) or a native ``formula`` template.
+    """
+
+    key: str
+    header: str
+    kind: str = "number"
+    required: bool = True
+    width: float = 12.0
+    quantity: str = ""
+    number_format: str = "General"
+    help: str = ""
+
+    @property
+    def computed(self) -> bool:
+        return self.kind == "computed"
+
+
+@dataclass(frozen=True)
+class Sheet:
+    name: str
+    title: str
+    note: str
+    columns: Tuple[Column, ...]
+    capacity: int = 60
+    extra: Mapping[str, Any] = field(default_factory=dict)
+
+    def col_index(self, key: str) -> int:
+        for i, c in enumerate(self.columns):
+            if c.key == key:
+                return i
+        raise KeyError(key)
+
+    def letter(self, key: str) -> str:
+        return col_letter(self.col_index(key))
+
+    @property
+    def last_row(self) -> int:
+        return FIRST_ROW + self.capacity - 1
+
+    def range_ref(self) -> Tuple[str, int, int, int, int]:
+        """The table range every function receives: key row to the last data row, all columns."""
+        return (self.name, KEY_ROW, 0, self.last_row, len(self.columns) - 1)
+
+
+def col_letter(i: int) -> str:
+    s = ""
+    i += 1
+    while i:
+        i, r = divmod(i - 1, 26)
+        s = chr(65 + r) + s
+    return s
+
+
+def _c(key: str, header: str, kind: str = "number", **kw: Any) -> Column:
+    return Column(key, header, kind, **kw)
+
+
+_RATIO_COLS: List[Column] = []
+for _k in range(1, 5):
+    _RATIO_COLS += [_c(f"r{_k}_name", f"Ratio {_k}", "text", required=_k == 1, width=13),
+                    _c(f"r{_k}", f"Ratio {_k} measured", required=_k == 1, width=14, number_format="0.0000000"),
+                    _c(f"r{_k}_sigma_1s", f"Ratio {_k} 1σ (abs)", required=_k == 1, width=12,
+                       number_format="0.00E+00")]
+_ISO_COLS: List[Column] = []
+for _k in range(1, 8):
+    _ISO_COLS += [_c(f"iso{_k}", f"Isotope {_k}", "text", required=_k <= 2, width=9),
+                  _c(f"ab{_k}", f"Atom fraction {_k}", required=_k <= 2, width=11, number_format="0.00000")]
+
+CONSTANTS = Sheet(
+    "Constants", "Reference values — the single live source every formula reads",
+    "Edit a value here and every result recalculates. Uncertainties are 1σ absolute. Keys in column A are "
+    "read by RatioDesk; do not change them.",
+    (_c("key", "Key", "text", width=30), _c("quantity", "Quantity", "text", width=44),
+     _c("value", "Value", width=16, number_format="0.000000E+00"),
+     _c("sigma_1s", "1σ (abs)", width=14, number_format="0.000E+00"),
+     _c("unit", "Unit", "text", required=False, width=10),
+     _c("source", "Source", "text", required=False, width=80)),
+    capacity=30)
+
+SPIKES = Sheet(
+    "Spikes", "Spike calibrations",
+    "One row per element of a spike; a mixed spike has two rows with the same label. Concentration of the "
+    "spike isotope in µmol per g of spike solution, 1σ absolute. Atom fractions of the spike's composition.",
+    (_c("spike", "Spike", "text", width=14), _c("element", "Element", "text", width=8),
+     _c("calibrated", "Calibrated on", "text", width=12), _c("spike_isotope", "Spike isotope", "text", width=10),
+     _c("conc_umol_g", "Spike isotope (µmol/g)", width=14, number_format="0.000000"),
+     _c("conc_sigma_1s", "1σ (abs, µmol/g)", width=14, number_format="0.00E+00"), *_ISO_COLS),
+    capacity=20)
+
+STANDARDS = Sheet(
+    "Standards", "Reference-material runs per session",
+    "Normalised ratios of the reference material measured in each session. The session factor is accepted "
+    "value (Constants) / mean of these runs; it multiplies every sample ratio of that session.",
+    (_c("session", "Session", "text", width=13), _c("material", "Material", "text", width=11),
+     _c("ratio", "Ratio", "text", width=13), _c("measured", "Measured", width=12, number_format="0.0000000"),
+     _c("sigma_1s", "1σ (abs)", required=False, width=11, number_format="0.00E+00"),
+     _c("date", "Date", "text", required=False, width=11), _c("run", "Run", "text", required=False, width=14)),
+    capacity=120)
+
+FRACTION_TYPES = ("whole rock", "garnet", "garnet leachate", "leachate", "residue", "omphacite",
+                  "clinopyroxene", "amphibole", "plagioclase", "apatite", "other")
+
+SAMPLES = Sheet(
+    "Samples", "Samples: what was weighed and spiked",
+    "One row per analysis. Masses in g; blanks in ng of element (procedural blank, subtracted). "
+    "System: Sm-Nd or Lu-Hf. The spike label must appear on the Spikes sheet.",
+    (_c("analysis", "Analysis", "text", width=10), _c("sample", "Sample", "text", width=10),
+     _c("fraction", "Fraction type", "text", width=16, help="one of: " + ", ".join(FRACTION_TYPES)),
+     _c("system", "System", "text", width=8), _c("session", "Session", "text", width=13),
+     _c("sample_mass_g", "Sample mass (g)", width=12, number_format="0.00000"),
+     _c("spike", "Spike used", "text", width=12),
+     _c("spike_mass_g", "Spike mass (g)", width=12, number_format="0.00000"),
+     _c("parent_blank_ng", "Parent blank (ng)", required=False, width=12, number_format="0.000"),
+     _c("daughter_blank_ng", "Daughter blank (ng)", required=False, width=12, number_format="0.000")),
+    capacity=60)
+
+MEASURED = Sheet(
+    "Measured", "Measured ratios of the spiked mixtures (run means)",
+    "One row per element run: mixture ratios to the reference isotope, interference-stripped, NOT corrected "
+    "for mass bias; 1σ absolute standard error of the run mean. Elements with a normalising pair are "
+    "internally normalised; give a bias factor β (exponential law) only for two-isotope elements (Lu).",
+    (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
+     _c("run_date", "Run date", "text", required=False, width=11), *_RATIO_COLS,
+     _c("bias_factor", "β external (exp. law)", required=False, width=12, number_format="0.0000")),
+    capacity=120)
+
+# Results: (key, header, quantity, number format); quantity "" = copied from Samples
+_RESULT_SPEC = (
+    ("analysis", "Analysis", "", "General"), ("sample", "Sample", "", "General"),
+    ("fraction", "Fraction type", "", "General"), ("system", "System", "", "General"),
+    ("parent_conc", "Parent (µg/g)", "parent_conc", "0.0000"),
+    ("parent_conc_1s", "Parent 1σ (abs, µg/g, total)", "parent_conc_1s", "0.0000"),
+    ("daughter_conc", "Daughter (µg/g)", "daughter_conc", "0.0000"),
+    ("daughter_conc_1s", "Daughter 1σ (abs, µg/g, total)", "daughter_conc_1s", "0.0000"),
+    ("x", "Parent/daughter ratio", "x", "0.000000"),
+    ("x_1s", "P/D 1σ (abs, random)", "x_1s", "0.0E+00"),
+    ("x_2s_pct", "P/D 2σ (%, random)", "x_2s_pct", "0.000"),
+    ("x_1s_total", "P/D 1σ (abs, total)", "x_1s_total", "0.0E+00"),
+    ("y", "Daughter ratio", "y", "0.0000000"),
+    ("y_1s", "D ratio 1σ (abs, random)", "y_1s", "0.0E+00"),
+    ("y_2s_ppm", "D ratio 2σ (ppm, random)", "y_2s_ppm", "0.0"),
+    ("y_1s_total", "D ratio 1σ (abs, total)", "y_1s_total", "0.0E+00"),
+    ("rho", "ρ (random)", "rho", "0.000"),
+    ("eps0", "ε today", "eps0", "0.00"),
+    ("eps0_2s", "ε today 2σ (abs)", "eps0_2s", "0.00"),
+    ("blank_share", "Daughter blank share (%)", "blank_share_pct", "0.000"),
+    ("check", "Check", "check", "General"),
+)
+RESULTS = Sheet(
+    "Results", "Results — one formula row per analysis (do not type here)",
+    "Parent/daughter ratio = 147Sm/144Nd or 176Lu/177Hf; daughter ratio = 143Nd/144Nd or 176Hf/177Hf, "
+    "mass-bias, spike, blank and reference-material corrected. Random σ (measurement) feed the isochron; "
+    "total σ add the spike calibration and the accepted value. ε relative to CHUR (Constants). "
+    "Every uncertainty states its level (1σ/2σ) and form (abs/%/ppm).",
+    tuple(_c(k, h, "computed", quantity=q or k, number_format=f, width=12 if q else 11)
+          for k, h, q, f in _RESULT_SPEC),
+    capacity=60)
+
+ANALYSIS_QUANTITIES = tuple(q for _k, _h, q, _f in _RESULT_SPEC if q)
+
+ISOCHRON_SYSTEMS = ("Sm-Nd", "Lu-Hf")
+ISOCHRON = Sheet(
+    "Isochron", "Isochrons — choose the rows, read the ages",
+    "Type analysis IDs in column A and 1 (use) or 0 (leave out) in column B; choose the scatter treatment. "
+    "Ages in Ma. The fit is the York regression (York et al. 2004); ages use the decay constants of the "
+    "Constants sheet.",
+    (_c("analysis", "Analysis", "text", width=10), _c("use", "Use (1/0)", "flag", width=9),
+     _c("x", "P/D ratio", "computed", quantity="x", number_format="0.000000"),
+     _c("x_1s", "P/D 1σ (abs, random)", "computed", quantity="x_1s", number_format="0.0E+00"),
+     _c("y", "D ratio", "computed", quantity="y", number_format="0.0000000"),
+     _c("y_1s", "D ratio 1σ (abs, random)", "computed", quantity="y_1s", number_format="0.0E+00"),
+     _c("rho", "ρ (random)", "computed", quantity="rho", number_format="0.000")),
+    capacity=16)
+
+# Isochron summary block: rows of (quantity, label, unit/level)
+ISOCHRON_QUANTITIES: Tuple[Tuple[str, str, str], ...] = (
+    ("n", "Rows used", "count"),
+    ("age", "Age", "Ma"),
+    ("age_2s", "Age ± (2σ, slope only)", "Ma, 2σ abs"),
+    ("age_2s_lambda", "Age ± (2σ, with decay constant)", "Ma, 2σ abs"),
+    ("age_95", "Age ± (95 %, t·√MSWD expanded)", "Ma, 95 % abs"),
+    ("initial", "Initial ratio", "mol/mol"),
+    ("initial_2s", "Initial ratio ± (2σ)", "2σ abs"),
+    ("eps_t", "ε at the age", "ε units"),
+    ("eps_t_2s", "ε at the age ± (2σ)", "2σ abs"),
+    ("mswd", "MSWD", ""),
+    ("p", "p (χ²)", ""),
+    ("slope", "Slope", ""),
+    ("slope_1s", "Slope 1σ (abs)", "1σ abs"),
+    ("message", "Check", ""),
+)
+ISOCHRON_BLOCK_ROWS = 3 + len(ISOCHRON_QUANTITIES)  # title, system, treatment, quantities
+ISOCHRON_SUMMARY_COL = 8                            # column I (0-based 8): labels; J: Sm-Nd; K: Lu-Hf
+ISOCHRON_TREATMENT_ROW = FIRST_ROW + 1              # row with the treatment inputs
+ISOCHRON_FIRST_Q_ROW = FIRST_ROW + 3
+
+SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, RESULTS, ISOCHRON)
+SHEET_BY_NAME = {s.name: s for s in SHEETS}
+INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured")
+
+#: Isochron selection: one block of rows per system, Sm-Nd first.
+ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10, FIRST_ROW + 17)}
+#: Each block has a header row and a key row right above it (rows 3-4 and 13-14).
+
+
+# --------------------------------------------------------------------------------------------
+# Constants sheet contents
+# --------------------------------------------------------------------------------------------
+def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
+    """Rows of the Constants sheet from a reference set (default: the engine's default set)."""
+    from .constants import reference_material, reference_set
+
+    rs = reference_set(refset)
+    rows: List[Dict[str, Any]] = [
+        {"key": "set", "quantity": "Reference set these values started from", "value": rs.name, "sigma_1s": "",
+         "unit": "", "source": rs.description}]
+    for key, label in (("Sm147", "λ 147Sm"), ("Lu176", "λ 176Lu")):
+        v = rs.decay_constant(key)
+        rows.append({"key": f"decay.{key}", "quantity": f"Decay constant {label}", "value": v.value,
+                     "sigma_1s": v.sigma_1s, "unit": v.unit, "source": v.source})
+    for ratio in ("143Nd/144Nd", "147Sm/144Nd", "176Hf/177Hf", "176Lu/177Hf"):
+        v = rs.reservoir("CHUR", ratio)
+        rows.append({"key": f"CHUR.{ratio}", "quantity": f"CHUR present-day {ratio}", "value": v.value,
+                     "sigma_1s": v.sigma_1s, "unit": v.unit, "source": v.source})
+    for material, ratio in (("JNdi-1", "143Nd/144Nd"), ("JMC-475", "176Hf/177Hf")):
+        v = reference_material(material, ratio)
+        rows.append({"key": f"rm.{material}.{ratio}", "quantity": f"{material} accepted {ratio}",
+                     "value": v.value, "sigma_1s": v.sigma_1s, "unit": v.unit, "source": v.source})
+    return rows
+
+
+# --------------------------------------------------------------------------------------------
+# reading tables from cell values (shared by the add-in and the batch path)
+# --------------------------------------------------------------------------------------------
+def _clean(v: Any) -> Cell:
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return float(v)
+    if isinstance(v, (int, float)):
+        return float(v)
+    if hasattr(v, "isoformat"):
+        return v.isoformat()[:10]
+    return str(v)
+
+
+def as_rows(rows: Any) -> Rows:
+    """Normalise a 2-D block of cell values to a hashable tuple of tuples of float | str."""
+    return tuple(tuple(_clean(v) for v in r) for r in rows)
+
+
+@dataclass(frozen=True)
+class Table:
+    """A table read from a key-row-first range: column keys and data rows (with sheet row numbers)."""
+
+    sheet: Sheet
+    keys: Tuple[str, ...]
+    rows: Rows
+    first_row: int = FIRST_ROW
+
+    @classmethod
+    def from_range(cls, sheet: Sheet, rows: Any, first_row: int = FIRST_ROW) -> Table:
+        r = as_rows(rows)
+        if not r:
+            raise CellError(sheet.name, first_row - 1, None, "", "the table range is empty")
+        keys = tuple(str(k).strip() for k in r[0])
+        return cls(sheet, keys, r[1:], first_row)
+
+    def index(self, key: str) -> int:
+        try:
+            return self.keys.index(key)
+        except ValueError:
+            raise CellError(self.sheet.name, KEY_ROW, None, "",
+                            f"the column key {key!r} is missing from row {KEY_ROW}") from None
+
+    def header(self, key: str) -> str:
+        try:
+            return self.sheet.columns[self.sheet.col_index(key)].header
+        except KeyError:
+            return key
+
+    def get(self, i: int, key: str) -> Cell:
+        row = self.rows[i]
+        j = self.index(key)
+        return row[j] if j < len(row) else ""
+
+    def error(self, i: int, key: str, problem: str) -> CellError:
+        return CellError(self.sheet.name, self.first_row + i, col_letter(self.index(key)), self.header(key), problem)
+
+    def text(self, i: int, key: str, required: bool = True) -> str:
+        v = self.get(i, key)
+        if isinstance(v, float):
+            v = f"{v:g}"
+        v = str(v).strip()
+        if v.startswith(MARKER.strip()):
+            raise self.error(i, key, f"from this cell: {v}")
+        if required and not v:
+            raise self.error(i, key, "is empty")
+        return v
+
+    def number(self, i: int, key: str, required: bool = True, positive: bool = False,
+               default: float = 0.0) -> float:
+        v = self.get(i, key)
+        if isinstance(v, str):
+            s = v.strip()
+            if not s:
+                if required:
+                    raise self.error(i, key, "is empty")
+                return default
+            if s.startswith(MARKER.strip()):
+                raise self.error(i, key, f"from this cell: {s}")
+            raise self.error(i, key, f"is not a number: {s!r}")
+        if not math.isfinite(v):
+            raise self.error(i, key, f"must be a finite number, got {v!r}")
+        if positive and not v > 0:
+            raise self.error(i, key, f"must be > 0, got {v!r}")
+        return v
+
+    def filled(self, i: int) -> bool:
+        return any(v != "" for v in self.rows[i])
+
+    def find(self, **match: str) -> List[int]:
+        out = []
+        for i in range(len(self.rows)):
+            if all(str(self.get(i, k)).strip().lower() == v.strip().lower() for k, v in match.items()):
+                out.append(i)
+        return out
+
+
+def _constants(rows: Rows) -> Dict[str, Tuple[float, float, int]]:
+    """key -> (value, sigma_1s, sheet row) from a Constants range."""
+    t = Table.from_range(CONSTANTS, rows)
+    out: Dict[str, Tuple[float, float, int]] = {}
+    for i in range(len(t.rows)):
+        key = t.text(i, "key", required=False)
+        if not key or key == "set":
+            continue
+        out[key] = (t.number(i, "value"), t.number(i, "sigma_1s", required=False), FIRST_ROW + i)
+    return out
+
+
+@lru_cache(maxsize=64)
+def _refset(constants: Rows) -> Any:
+    """The engine ReferenceSet of the workbook: the named set with the Constants values laid over it."""
+    from .constants import reference_set
+
+    t = Table.from_range(CONSTANTS, constants)
+    name = None
+    for i in range(len(t.rows)):
+        if t.text(i, "key", required=False) == "set":
+            name = t.text(i, "value", required=False) or None
+    overrides = {k: (v, s) for k, (v, s, _r) in _constants(constants).items() if k.split(".")[0] in
+                 ("decay", "CHUR", "DM", "UR")}
+    try:
+        base = reference_set(name)
+    except InputError as exc:
+        raise CellError("Constants", None, "C", "Value", f"reference set: {exc}") from None
+    return base.with_overrides(overrides)
+
+
+def _constant(constants: Rows, key: str) -> Tuple[float, float]:
+    c = _constants(constants)
+    if key not in c:
+        raise CellError("Constants", None, "A", "Key", f"no row with the key {key!r}")
+    v, s, _r = c[key]
+    return v, s
+
+
+def _system_of(text: str) -> str:
+    from .systems import get_system
+
+    return get_system(text).key
+
+
+_NORM_RATIO = {"Nd": "146Nd/144Nd", "Sm": "147Sm/152Sm", "Hf": "179Hf/177Hf"}
+_REFERENCE_ISOTOPE = {"Nd": "144Nd", "Sm": "152Sm", "Hf": "177Hf", "Lu": "175Lu"}
+
+
+def _spike(spikes: Table, label: str, element: str, where: Callable[[str], CellError]) -> Any:
+    from .dilution import make_spike
+
+    hits = spikes.find(spike=label, element=element)
+    if not hits:
+        known = sorted({spikes.text(i, "spike", required=False) for i in range(len(spikes.rows))} - {""})
+        raise where(f"spike {label!r} has no {element} row on the Spikes sheet (spikes there: "
+                    f"{', '.join(known) or 'none'})")
+    i = hits[0]
+    isotopes, abundances = [], []
+    for k in range(1, 8):
+        iso = spikes.text(i, f"iso{k}", required=k <= 2)
+        if not iso:
+            continue
+        isotopes.append(iso)
+        abundances.append(spikes.number(i, f"ab{k}", positive=False))
+    try:
+        return make_spike(element, tuple(isotopes), tuple(abundances), spikes.text(i, "spike_isotope"),
+                          spikes.number(i, "conc_umol_g", positive=True),
+                          spikes.number(i, "conc_sigma_1s", required=False), label=label,
+                          calibrated=spikes.text(i, "calibrated", required=False))
+    except InputError as exc:
+        raise spikes.error(i, "spike_isotope", str(exc)) from None
+
+
+def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError]
+         ) -> Tuple[Dict[str, float], Dict[str, float], Optional[float]]:
+    hits = measured.find(analysis=analysis, element=element)
+    if not hits:
+        raise where(f"no {element} run for analysis {analysis!r} on the Measured sheet")
+    i = hits[0]
+    vals: Dict[str, float] = {}
+    sig: Dict[str, float] = {}
+    for k in range(1, 5):
+        name = measured.text(i, f"r{k}_name", required=k == 1)
+        if not name:
+            continue
+        vals[name] = measured.number(i, f"r{k}", positive=True)
+        sig[name] = measured.number(i, f"r{k}_sigma_1s", positive=True)
+    bf = measured.number(i, "bias_factor", required=False, default=float("nan"))
+    return vals, sig, (None if math.isnan(bf) else bf)
+
+
+def _standard(standards: Table, constants: Rows, session: str, ratio: str,
+              where: Callable[[str], CellError]) -> Any:
+    from .standards import standard_factor
+
+    hits = standards.find(session=session, ratio=ratio)
+    if not hits:
+        raise where(f"no {ratio} reference-material runs for session {session!r} on the Standards sheet")
+    material = standards.text(hits[0], "material")
+    values = [standards.number(i, "measured", positive=True) for i in hits]
+    accepted, accepted_s = _constant(constants, f"rm.{material}.{ratio}")
+    try:
+        return standard_factor(values, accepted, accepted_sigma_1s=accepted_s)
+    except InputError as exc:
+        raise standards.error(hits[0], "measured", str(exc)) from None
+
+
+@lru_cache(maxsize=256)
+def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standards: Rows,
+              constants: Rows, mc_draws: int = 0) -> Tuple[Any, Any]:
+    """(AnalysisResult, epsilon today) of one analysis, from the workbook's tables."""
+    from .ages import epsilon
+    from .chain import reduce_spiked_analysis
+    from .systems import get_system
+
+    st = Table.from_range(SAMPLES, samples)
+    hits = st.find(analysis=analysis)
+    if not hits:
+        raise CellError("Samples", None, "A", "Analysis", f"no row for analysis {analysis!r}")
+    i = hits[0]
+    try:
+        system = get_system(st.text(i, "system"))
+    except InputError as exc:
+        raise st.error(i, "system", exc.problem) from None
+    mt, sp, sd = (Table.from_range(MEASURED, measured), Table.from_range(SPIKES, spikes),
+                  Table.from_range(STANDARDS, standards))
+    sample_mass = st.number(i, "sample_mass_g", positive=True)
+    spike_mass = st.number(i, "spike_mass_g", positive=True)
+    label = st.text(i, "spike")
+    session = st.text(i, "session")
+    pb = st.number(i, "parent_blank_ng", required=False)
+    db = st.number(i, "daughter_blank_ng", required=False)
+
+    def at(key: str) -> Callable[[str], CellError]:
+        return lambda problem: st.error(i, key, problem)
+
+    p_el, d_el = system.parent_element, system.daughter_element
+    p_spike = _spike(sp, label, p_el, at("spike"))
+    d_spike = _spike(sp, label, d_el, at("spike"))
+    p_mix, p_sig, p_bf = _run(mt, analysis, p_el, at("analysis"))
+    d_mix, d_sig, _d_bf = _run(mt, analysis, d_el, at("analysis"))
+    std = _standard(sd, constants, session, system.daughter_ratio, at("session"))
+    ref = _refset(constants)
+    kw: Dict[str, Any] = {}
+    if p_bf is None:
+        kw["parent_norm_ratio"] = _NORM_RATIO.get(p_el)
+    else:
+        kw["parent_bias_factor"] = p_bf
+    try:
+        res = reduce_spiked_analysis(
+            system.key, p_mix, d_mix, sample_mass, spike_mass, p_spike, d_spike,
+            parent_mix_sigma_1s=p_sig, daughter_mix_sigma_1s=d_sig, daughter_norm_ratio=_NORM_RATIO.get(d_el),
+            parent_blank_ng=pb, daughter_blank_ng=db, standard=std, mc_draws=mc_draws, **kw)
+        eps = epsilon(res.daughter_ratio, res.daughter_ratio_sigma_1s, res.parent_ratio, 0.0, system, ref)
+    except RatioDeskError as exc:
+        raise CellError("Samples", FIRST_ROW + i, "A", "Analysis", f"analysis {analysis!r}: {exc}") from None
+    return res, eps
+
+
+def analysis_result(analysis: str, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any,
+                    *, mc_draws: int = 0) -> Any:
+    """The engine's AnalysisResult of one analysis (optionally with a seeded Monte Carlo)."""
+    rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
+    return _analysis(str(analysis).strip(), *rows, mc_draws=int(mc_draws))[0]
+
+
+def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any,
+                   constants: Any) -> float | str:
+    """One result of one analysis, computed from the workbook's tables (the Results sheet's cells).
+
+    Parameters
+    ----------
+    quantity : str
+        One of :data:`ANALYSIS_QUANTITIES` (``"x"``, ``"x_1s"``, ``"y"``, ``"rho"``, ...).
+    analysis : str
+        Analysis ID (column A of Samples).
+    samples, measured, spikes, standards, constants : 2-D blocks of cell values
+        Each sheet's table from its key row (row 4) down, as the cells arrive (float, str, '').
+
+    Returns
+    -------
+    float or str
+        The value; ``"check"`` returns ``"ok"`` or the list of warnings (poor spike–sample mix).
+        ``"sample"``, ``"fraction"``, ``"system"`` return the Samples text.
+
+    Raises
+    ------
+    CellError
+        Naming the sheet, row and column of the first problem.
+    """
+    a = str(analysis).strip() if not isinstance(analysis, float) else f"{analysis:g}"
+    if not a:
+        return ""
+    rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
+    res, eps = _analysis(a, *rows)
+    rnd = res.sigma_1s_random
+    q = quantity.strip().lower()
+    table: Dict[str, Callable[[], Any]] = {
+        "parent_conc": lambda: res.parent_conc_ug_g, "parent_conc_1s": lambda: res.parent_conc_sigma_1s,
+        "daughter_conc": lambda: res.daughter_conc_ug_g, "daughter_conc_1s": lambda: res.daughter_conc_sigma_1s,
+        "x": lambda: res.parent_ratio, "x_1s": lambda: rnd["parent_ratio"],
+        "x_2s_pct": lambda: 2 * rnd["parent_ratio"] / res.parent_ratio * 100,
+        "x_1s_total": lambda: res.parent_ratio_sigma_1s,
+        "y": lambda: res.daughter_ratio, "y_1s": lambda: rnd["daughter_ratio"],
+        "y_2s_ppm": lambda: 2 * rnd["daughter_ratio"] / res.daughter_ratio * 1e6,
+        "y_1s_total": lambda: res.daughter_ratio_sigma_1s,
+        "rho": lambda: res.rho_random, "eps0": lambda: eps.value, "eps0_2s": lambda: 2 * eps.sigma_1s,
+        "blank_share_pct": lambda: 100 * res.blank_share_daughter,
+        "check": lambda: ("ok" if not res.poor_mix else MARKER + "; ".join(res.poor_mix)),
+    }
+    if q not in table:
+        raise InputError("quantity", f"unknown quantity {quantity!r}; use one of {', '.join(table)}")
+    v = table[q]()
+    return v if isinstance(v, str) else float(v)
+
+
+# --------------------------------------------------------------------------------------------
+# isochrons
+# --------------------------------------------------------------------------------------------
+@lru_cache(maxsize=64)
+def _isochron(system: str, treatment: str, selection: Rows, results: Rows, constants: Rows) -> Tuple[Any, Any, Any]:
+    from .ages import epsilon, isochron_age
+    from .regression import fit_isochron
+
+    sel = Table.from_range(ISOCHRON, selection, ISOCHRON_BLOCK.get(system, (FIRST_ROW, 0))[0])
+    res = Table.from_range(RESULTS, results)
+    sys_key = _system_of(system)
+    x, sx, y, sy, r = [], [], [], [], []
+    used = 0
+    for i in range(len(sel.rows)):
+        if not sel.filled(i):
+            continue
+        a = sel.text(i, "analysis", required=False)
+        use = sel.get(i, "use")
+        if not a:
+            raise sel.error(i, "analysis", "a row with a Use flag but no analysis ID")
+        if use == "":
+            raise sel.error(i, "use", "is empty: type 1 to use the row or 0 to leave it out")
+        if use not in (0.0, 1.0):
+            raise sel.error(i, "use", f"must be 1 or 0, got {use!r}")
+        if use == 0.0:
+            continue
+        hits = res.find(analysis=a)
+        if not hits:
+            raise sel.error(i, "analysis", f"analysis {a!r} is not on the Results sheet")
+        j = hits[0]
+        if _system_of(res.text(j, "system")) != sys_key:
+            raise sel.error(i, "analysis", f"analysis {a!r} is {res.text(j, 'system')}, not {system}")
+        x.append(res.number(j, "x"))
+        sx.append(res.number(j, "x_1s"))
+        y.append(res.number(j, "y"))
+        sy.append(res.number(j, "y_1s"))
+        r.append(res.number(j, "rho"))
+        used += 1
+    if used < 2:
+        raise CellError("Isochron", None, "B", "Use (1/0)",
+                        f"{system}: {used} row(s) selected; an isochron needs at least two")
+    fit = fit_isochron(x, sx, y, sy, r, treatment=treatment or "analytical")
+    ref = _refset(constants)
+    age = isochron_age(fit, sys_key, ref)
+    eps = epsilon(age.initial, age.initial_sigma_1s, 0.0, age.age_ma, sys_key, ref)
+    return fit, age, eps
+
+
+def isochron_value(quantity: str, system: Any, treatment: Any, selection: Any, results: Any,
+                   constants: Any) -> float | str:
+    """One quantity of an isochron (the Isochron sheet's summary cells).
+
+    ``selection`` is the Isochron sheet's block (key row first: analysis, use, ...) of that system;
+    ``results`` the Results table (key row first); ``constants`` the Constants table. ``quantity``
+    is one of the first entries of :data:`ISOCHRON_QUANTITIES`. The fit is
+    :func:`reduction.regression.fit_isochron` (York et al. 2004, Am. J. Phys. 72, 367) and the age
+    :func:`reduction.ages.isochron_age`, with the decay constant of the Constants sheet.
+    """
+    fit, age, eps = _isochron(str(system).strip(), str(treatment or "").strip().lower(), as_rows(selection),
+                              as_rows(results), as_rows(constants))
+    q = quantity.strip().lower()
+    t95 = fit.t95 if fit.t95 is not None else float("nan")
+    table: Dict[str, Callable[[], Any]] = {
+        "n": lambda: fit.n, "age": lambda: age.age_ma, "age_2s": lambda: 2 * age.age_sigma_1s_ma,
+        "age_2s_lambda": lambda: 2 * age.age_sigma_1s_ma_with_lambda,
+        "age_95": lambda: _age_95(fit, age, t95),
+        "initial": lambda: age.initial, "initial_2s": lambda: 2 * age.initial_sigma_1s,
+        "eps_t": lambda: eps.value, "eps_t_2s": lambda: 2 * eps.sigma_1s,
+        "mswd": lambda: _none_text(fit.mswd, "n/a for 2 rows"), "p": lambda: _none_text(fit.p_value, "n/a"),
+        "slope": lambda: fit.slope, "slope_1s": lambda: fit.slope_sigma_1s,
+        "message": lambda: _fit_message(fit),
+    }
+    if q not in table:
+        raise InputError("quantity", f"unknown quantity {quantity!r}; use one of {', '.join(table)}")
+    v = table[q]()
+    return v if isinstance(v, str) else float(v)
+
+
+def _none_text(v: Optional[float], text: str) -> float | str:
+    return text if v is None else float(v)
+
+
+def _age_95(fit: Any, age: Any, t95: float) -> float:
+    v = getattr(age, "age_sigma_95_expanded_ma", None)
+    if v is not None:
+        return float(v)
+    scale = math.sqrt(max(fit.mswd or 1.0, 1.0))
+    return float(t95 * scale * age.age_sigma_1s_ma)
+
+
+def _fit_message(fit: Any) -> str:
+    if fit.mswd is None:
+        return "two-point age: no MSWD"
+    if fit.p_value is not None and fit.p_value < 0.05:
+        return f"MSWD {fit.mswd:.2f}, p {fit.p_value:.3f} < 0.05: scatter beyond the stated errors"
+    return "ok"
+
+
+# --------------------------------------------------------------------------------------------
+# formulas for the grid
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Ref:
+    """A cell or range reference for a formula (0-based columns, 1-based rows)."""
+
+    sheet: str
+    col: int
+    row: int
+    col2: Optional[int] = None
+    row2: Optional[int] = None
+    absolute: bool = True
+    abs_col_only: bool = False
+
+    def xlsx(self, here: str) -> str:
+        def one(c: int, r: int) -> str:
+            if self.absolute:
+                return f"${col_letter(c)}${r}"
+            if self.abs_col_only:
+                return f"${col_letter(c)}{r}"
+            return f"{col_letter(c)}{r}"
+        s = one(self.col, self.row)
+        if self.col2 is not None:
+            s += ":" + one(self.col2, self.row2 or self.row)
+        return s if self.sheet == here else f"{self.sheet}!{s}"
+
+    def ods(self, here: str) -> str:
+        def one(c: int, r: int, sheet: str) -> str:
+            if self.absolute:
+                cell = f"${col_letter(c)}${r}"
+            elif self.abs_col_only:
+                cell = f"${col_letter(c)}{r}"
+            else:
+                cell = f"{col_letter(c)}{r}"
+            return f"${sheet}.{cell}" if sheet else f".{cell}"
+        sheet = self.sheet if self.sheet != here else ""
+        s = one(self.col, self.row, sheet)
+        if self.col2 is not None:
+            s += ":" + one(self.col2, self.row2 or self.row, "")
+        return f"[{s}]"
+
+
+@dataclass(frozen=True)
+class Formula:
+    """A formula: an add-in call (``method``) or a native function, with literal/Ref arguments."""
+
+    func: str
+    args: Tuple[Any, ...]
+    addin: bool = True
+    guard: Optional[Ref] = None   # IF(guard="";"";...)
+
+    def _arg(self, a: Any, here: str, fmt: str) -> str:
+        if isinstance(a, Ref):
+            return a.xlsx(here) if fmt == "xlsx" else a.ods(here)
+        if isinstance(a, Formula):
+            return a.render(here, fmt, top=False)
+        if isinstance(a, str):
+            return '"' + a.replace('"', '""') + '"'
+        a = float(a)
+        return str(int(a)) if a.is_integer() and abs(a) < 1e15 else repr(a)
+
+    def render(self, here: str, fmt: str, top: bool = True) -> str:
+        sep = "," if fmt == "xlsx" else ";"
+        name = f"{SERVICE}.{self.func.upper()}" if self.addin else self.func
+        body = f"{name}(" + sep.join(self._arg(a, here, fmt) for a in self.args) + ")"
+        if self.guard is not None:
+            g = self._arg(self.guard, here, fmt)
+            body = f'IF({g}=""{sep}""{sep}{body})'
+        if not top:
+            return body
+        return "=" + body if fmt == "xlsx" else "of:=" + body
+
+
+def table_ref(sheet: Sheet) -> Ref:
+    name, r1, c1, r2, c2 = sheet.range_ref()
+    return Ref(name, c1, r1, c2, r2)
+
+
+def isochron_selection_ref(system: str) -> Ref:
+    """The selection block of one system on the Isochron sheet, with its key row first.
+
+    The key row is row 4 and the block's rows follow; the function receives a contiguous range,
+    so each system's block repeats the key row above itself (row 4 for Sm-Nd, the row above the
+    Lu-Hf block for Lu-Hf).
+    """
+    first, last = ISOCHRON_BLOCK[system]
+    return Ref("Isochron", 0, first - 1, len(ISOCHRON.columns) - 1, last)
+
+
+def results_formula(column: Column, row: int) -> Formula:
+    """The formula of one Results cell (row is the sheet row)."""
+    here = Ref("Results", 0, row, absolute=False, abs_col_only=True)
+    if column.quantity in ("analysis", "sample", "fraction", "system"):
+        src = Ref("Samples", SAMPLES.col_index(column.quantity), row, absolute=False)
+        return Formula("IF", (Formula("ISBLANK", (src,), addin=False), "", src), addin=False)
+    args = (column.quantity, here, table_ref(SAMPLES), table_ref(MEASURED), table_ref(SPIKES),
+            table_ref(STANDARDS), table_ref(CONSTANTS))
+    return Formula("rdWorkbookAnalysis", args, guard=here)
+
+
+def isochron_point_formula(column: Column, row: int) -> Formula:
+    """x, sx, y, sy, ρ of a selected row: looked up on the Results sheet by analysis ID."""
+    here = Ref("Isochron", 0, row, absolute=False, abs_col_only=True)
+    col = RESULTS.col_index(column.quantity)
+    target = Ref("Results", col, FIRST_ROW, col, RESULTS.last_row)
+    keys = Ref("Results", 0, FIRST_ROW, 0, RESULTS.last_row)
+    match = Formula("MATCH", (here, keys, 0.0), addin=False)
+    return Formula("INDEX", (target, match), addin=False, guard=here)
+
+
+def isochron_summary_formula(quantity: str, system: str, treatment_cell: Ref) -> Formula:
+    return Formula("rdWorkbookIsochron", (quantity, system, treatment_cell, isochron_selection_ref(system),
+                                       table_ref(RESULTS), table_ref(CONSTANTS)))
+
+
+def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
+    """Every computed cell of the template: (sheet, row, 0-based column) -> formula."""
+    out: Dict[Tuple[str, int, int], Formula] = {}
+    for row in range(FIRST_ROW, RESULTS.last_row + 1):
+        for j, c in enumerate(RESULTS.columns):
+            out[("Results", row, j)] = results_formula(c, row)
+    for first, last in ISOCHRON_BLOCK.values():
+        for row in range(first, last + 1):
+            for j, c in enumerate(ISOCHRON.columns):
+                if c.computed:
+                    out[("Isochron", row, j)] = isochron_point_formula(c, row)
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        col = ISOCHRON_SUMMARY_COL + 1 + k
+        tcell = Ref("Isochron", col, ISOCHRON_TREATMENT_ROW)
+        for q_i, (q, _label, _unit) in enumerate(ISOCHRON_QUANTITIES):
+            out[("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col)] = isochron_summary_formula(q, system, tcell)
+    return out
+
+
+_WS = re.compile(r"\s+")
+
+
+def normalise_formula(text: str) -> str:
+    """Formula text in a comparable form (no ``of:``, no whitespace, upper case, ``;`` → ``,``)."""
+    t = text.strip()
+    if t.startswith("of:"):
+        t = t[3:]
+    t = _WS.sub("", t).upper().replace(";", ",")
+    t = re.sub(r"\[\$?([A-Z0-9_]+)?\.?", lambda m: (m.group(1) + "!" if m.group(1) else ""), t)
+    t = t.replace("]", "").replace(":.", ":")
+    return t.lstrip("=")
+
+
+def formula_drift(formulas: Mapping[Tuple[str, int, int], str]) -> List[str]:
+    """Computed cells whose formula differs from the template definition (edited by a user)."""
+    out = []
+    for (sheet, row, col), f in sorted(expected_formulas().items()):
+        have = formulas.get((sheet, row, col))
+        if have is None:
+            continue
+        fmt = "ods" if have.startswith("of:") else "xlsx"
+        if normalise_formula(have) != normalise_formula(f.render(sheet, fmt)):
+            out.append(f"{sheet}!{col_letter(col)}{row}: formula differs from the template ({have})")
+    return out
+
+
+# --------------------------------------------------------------------------------------------
+# the batch evaluator
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Evaluation:
+    """Every computed cell of a workbook, evaluated by the engine (no LibreOffice)."""
+
+    cells: Dict[Tuple[str, int, int], Any]
+    errors: Tuple[CellError, ...]
+    warnings: Tuple[str, ...]
+
+
+def sheet_block(grid: Mapping[str, Sequence[Sequence[Cell]]], sheet: str, r1: int, c1: int, r2: int,
+                c2: int) -> Rows:
+    """Cells of a rectangle (1-based rows, 0-based columns) of a sheet grid, padded with ''."""
+    g = grid.get(sheet, ())
+    out = []
+    for r in range(r1, r2 + 1):
+        row = g[r - 1] if r - 1 < len(g) else ()
+        out.append(tuple(_clean(row[c]) if c < len(row) else "" for c in range(c1, c2 + 1)))
+    return tuple(out)
+
+
+def _block(grid: Mapping[str, Sequence[Sequence[Cell]]], ref: Ref) -> Rows:
+    return sheet_block(grid, ref.sheet, ref.row, ref.col, ref.row2 or ref.row, ref.col2 if ref.col2 is not None
+                       else ref.col)
+
+
+def _raise(exc: Exception) -> Any:
+    raise exc
+
+
+def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = True) -> Evaluation:
+    """Compute every computed cell from the input cells of ``grid`` (sheet -> rows of values).
+
+    ``grid`` holds the typed inputs; computed cells already in it are ignored. The order is the
+    grid's dependency order: Results, then the Isochron points, then the Isochron summaries.
+    With ``strict`` the first problem raises :class:`CellError`; otherwise problems are collected
+    and the cell holds the message, as it would in LibreOffice.
+    """
+    work: Dict[str, List[List[Cell]]] = {s: [list(r) for r in rows] for s, rows in grid.items()}
+    cells: Dict[Tuple[str, int, int], Any] = {}
+    errors: List[CellError] = []
+    warnings: List[str] = []
+
+    def put(sheet: str, row: int, col: int, v: Any) -> None:
+        g = work.setdefault(sheet, [])
+        while len(g) < row:
+            g.append([])
+        r = g[row - 1]
+        while len(r) <= col:
+            r.append("")
+        r[col] = v
+        cells[(sheet, row, col)] = v
+
+    def run(f: Callable[[], Any]) -> Any:
+        try:
+            return f()
+        except CellError as exc:
+            if strict:
+                raise
+            if str(exc) not in {str(e) for e in errors}:
+                errors.append(exc)
+            return MARKER + str(exc)
+
+    # clear computed cells first (a workbook from LibreOffice carries cached values)
+    for (sheet, row, col) in expected_formulas():
+        put(sheet, row, col, "")
+    ins = {name: _block(work, table_ref(SHEET_BY_NAME[name])) for name in
+           ("Samples", "Measured", "Spikes", "Standards", "Constants")}
+    samples = Table.from_range(SAMPLES, ins["Samples"])
+    for i in range(len(samples.rows)):
+        row = FIRST_ROW + i
+        if not samples.filled(i):
+            continue
+        analysis = samples.get(i, "analysis")
+        for j, c in enumerate(RESULTS.columns):
+            if c.quantity in ("analysis", "sample", "fraction", "system"):
+                put("Results", row, j, samples.get(i, c.quantity))
+                continue
+            if analysis == "":
+                v = run(lambda i=i: _raise(samples.error(i, "analysis", "is empty but the row has data")))
+            else:
+                v = run(lambda c=c, a=analysis: analysis_value(c.quantity, a, ins["Samples"], ins["Measured"],
+                                                              ins["Spikes"], ins["Standards"], ins["Constants"]))
+            put("Results", row, j, v)
+            if c.quantity == "check" and isinstance(v, str) and v.startswith(MARKER) and "poor" in v:
+                warnings.append(f"Results!{col_letter(j)}{row}: {v[len(MARKER):]}")
+    results = _block(work, table_ref(RESULTS))
+    res_t = Table.from_range(RESULTS, results)
+    for first, last in ISOCHRON_BLOCK.values():
+        for row in range(first, last + 1):
+            a = sheet_block(work, "Isochron", row, 0, row, 0)[0][0]
+            for j, c in enumerate(ISOCHRON.columns):
+                if not c.computed:
+                    continue
+                if a == "":
+                    put("Isochron", row, j, "")
+                    continue
+                hits = res_t.find(analysis=str(a))
+                put("Isochron", row, j, res_t.get(hits[0], c.quantity) if hits else "#N/A")
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        col = ISOCHRON_SUMMARY_COL + 1 + k
+        treat = sheet_block(work, "Isochron", ISOCHRON_TREATMENT_ROW, col, ISOCHRON_TREATMENT_ROW, col)[0][0]
+        sel = _block(work, isochron_selection_ref(system))
+        if not any(r[0] != "" for r in sel[1:]):
+            continue
+        for q_i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES):
+            v = run(lambda q=q, s=system, t=treat, sel=sel: isochron_value(q, s, t, sel, results, ins["Constants"]))
+            put("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col, v)
+    return Evaluation(cells, tuple(errors), tuple(warnings))
+
+
+# --------------------------------------------------------------------------------------------
+# layout: what every cell of a written workbook holds
+# --------------------------------------------------------------------------------------------
+@dataclass
+class CellSpec:
+    """One written cell: a value or a formula, and how it looks (``style``)."""
+
+    value: Any = ""
+    formula: Optional[Formula] = None
+    style: str = "plain"          # title, note, header, key, input, computed, label, plain
+    number_format: str = "General"
+
+
+Layout = Dict[str, Dict[Tuple[int, int], CellSpec]]   # sheet -> (row, 0-based col) -> cell
+
+ABOUT_SHEET = "About"
+ABOUT_LINES = (
+    ("RatioDesk workbook", "title"),
+    ("Isotope dilution and isochron ages (Sm-Nd, Lu-Hf). Every result recalculates when an input or a "
+     "reference value changes.", "note"),
+    ("", "plain"),
+    ("Yellow cells are inputs: type here. Blue cells are computed: they are protected against accidental "
+     "typing (Tools ▸ Protect Sheet, no password, unprotects).", "plain"),
+    ("Order of work: Constants (reference values) → Spikes → Standards → Samples → Measured → read Results "
+     "and Isochron.", "plain"),
+    ("Uncertainties: every column states its level (1σ or 2σ) and form (abs = absolute, % or ppm = relative).",
+     "plain"),
+    ("Results depend on the spike calibrations and on the reference-material accepted values; state them "
+     "when you report ages.", "plain"),
+    ("Computed cells call the RatioDesk extension for LibreOffice Calc. Without it, send a collaborator copy "
+     "(RatioDesk menu) or the batch output (ratiodesk reduce).", "plain"),
+)
+
+
+def _table_layout(sheet: Sheet, rows: Sequence[Mapping[str, Any]], out: Dict[Tuple[int, int], CellSpec]) -> None:
+    out[(TITLE_ROW, 0)] = CellSpec(sheet.title, style="title")
+    out[(NOTE_ROW, 0)] = CellSpec(sheet.note, style="note")
+    for j, c in enumerate(sheet.columns):
+        out[(HEADER_ROW, j)] = CellSpec(c.header, style="header")
+        out[(KEY_ROW, j)] = CellSpec(c.key, style="key")
+    for i in range(sheet.capacity):
+        row = FIRST_ROW + i
+        data = rows[i] if i < len(rows) else {}
+        for j, c in enumerate(sheet.columns):
+            if c.computed:
+                continue
+            v = data.get(c.key, "")
+            out[(row, j)] = CellSpec("" if v is None else v, style="input", number_format=c.number_format)
+
+
+def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = None,
+                 constants: Optional[Sequence[Mapping[str, Any]]] = None,
+                 isochron_selection: Optional[Mapping[str, Sequence[Tuple[str, int]]]] = None,
+                 about: Sequence[Tuple[str, str]] = ABOUT_LINES) -> Layout:
+    """Every cell of a workbook built from the definition and (optionally) filled input tables."""
+    tables = tables or {}
+    lay: Layout = {ABOUT_SHEET: {}}
+    for k, (text, style) in enumerate(about, start=1):
+        lay[ABOUT_SHEET][(k, 0)] = CellSpec(text, style=style)
+    for sheet in (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED):
+        cells: Dict[Tuple[int, int], CellSpec] = {}
+        rows = constants if sheet is CONSTANTS else tables.get(sheet.name, ())
+        _table_layout(sheet, list(rows or (constants_rows() if sheet is CONSTANTS else ())), cells)
+        lay[sheet.name] = cells
+    formulas = expected_formulas()
+    res: Dict[Tuple[int, int], CellSpec] = {}
+    res[(TITLE_ROW, 0)] = CellSpec(RESULTS.title, style="title")
+    res[(NOTE_ROW, 0)] = CellSpec(RESULTS.note, style="note")
+    for j, c in enumerate(RESULTS.columns):
+        res[(HEADER_ROW, j)] = CellSpec(c.header, style="header")
+        res[(KEY_ROW, j)] = CellSpec(c.key, style="key")
+    iso: Dict[Tuple[int, int], CellSpec] = {(TITLE_ROW, 0): CellSpec(ISOCHRON.title, style="title"),
+                                           (NOTE_ROW, 0): CellSpec(ISOCHRON.note, style="note")}
+    sel = isochron_selection or {}
+    for system, (first, last) in ISOCHRON_BLOCK.items():
+        for j, c in enumerate(ISOCHRON.columns):
+            head = f"{c.header} ({system})" if j == 0 else c.header
+            iso[(first - 2, j)] = CellSpec(head, style="header")
+            iso[(first - 1, j)] = CellSpec(c.key, style="key")
+        picks = list(sel.get(system, ()))
+        for row in range(first, last + 1):
+            k = row - first
+            a, use = picks[k] if k < len(picks) else ("", "")
+            iso[(row, 0)] = CellSpec(a, style="input")
+            iso[(row, 1)] = CellSpec(use, style="input", number_format="0")
+    col0 = ISOCHRON_SUMMARY_COL
+    iso[(FIRST_ROW, col0)] = CellSpec("Quantity", style="header")
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        iso[(FIRST_ROW, col0 + 1 + k)] = CellSpec(system, style="header")
+    iso[(FIRST_ROW, col0 + 3)] = CellSpec("Unit / level", style="header")
+    iso[(ISOCHRON_TREATMENT_ROW, col0)] = CellSpec("Scatter treatment", style="label")
+    for k in range(len(ISOCHRON_SYSTEMS)):
+        iso[(ISOCHRON_TREATMENT_ROW, col0 + 1 + k)] = CellSpec("analytical", style="input")
+    iso[(ISOCHRON_TREATMENT_ROW, col0 + 3)] = CellSpec("analytical, expanded, equal-weights, excess-variance",
+                                                        style="note")
+    fmt = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_95": "0.00", "initial": "0.0000000",
+           "initial_2s": "0.0E+00", "eps_t": "0.00", "eps_t_2s": "0.00", "mswd": "0.00", "p": "0.000",
+           "slope": "0.0000000", "slope_1s": "0.0E+00", "n": "0"}
+    for q_i, (q, label, unit) in enumerate(ISOCHRON_QUANTITIES):
+        iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0)] = CellSpec(label, style="label")
+        iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 3)] = CellSpec(unit, style="note")
+        for k in range(len(ISOCHRON_SYSTEMS)):
+            iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 1 + k)] = CellSpec(style="computed",
+                                                                       number_format=fmt.get(q, "General"))
+    for (sheet, row, col), f in formulas.items():
+        target = res if sheet == "Results" else iso
+        spec = target.get((row, col)) or CellSpec(style="computed")
+        spec.formula, spec.style = f, "computed"
+        if sheet == "Results":
+            spec.number_format = RESULTS.columns[col].number_format
+        elif col < len(ISOCHRON.columns):
+            spec.number_format = ISOCHRON.columns[col].number_format
+        target[(row, col)] = spec
+    lay["Results"] = res
+    lay["Isochron"] = iso
+    return lay
+
+
+def layout_grid(lay: Layout) -> Dict[str, List[List[Cell]]]:
+    """The input values of a layout as a sheet grid (what :func:`evaluate` reads)."""
+    grid: Dict[str, List[List[Cell]]] = {}
+    for sheet, cells in lay.items():
+        g: List[List[Cell]] = []
+        for (r, c), spec in cells.items():
+            while len(g) < r:
+                g.append([])
+            row = g[r - 1]
+            while len(row) <= c:
+                row.append("")
+            row[c] = "" if spec.formula is not None else _clean(spec.value)
+        grid[sheet] = g
+    return grid
+
+
+def fill_values(lay: Layout, ev: Evaluation) -> None:
+    """Put evaluated values into the computed cells of a layout (kept as cached values / for value copies)."""
+    for (sheet, row, col), v in ev.cells.items():
+        spec = lay.setdefault(sheet, {}).get((row, col))
+        if spec is None:
+            spec = lay[sheet][(row, col)] = CellSpec(style="computed")
+        spec.value = v
+
+
+SHEET_ORDER = (ABOUT_SHEET, "Constants", "Spikes", "Standards", "Samples", "Measured", "Results", "Isochron")
+_FILL = {"input": "FFF6D5", "computed": "E2ECF8", "header": "D9D9D9"}
+WIDTHS: Dict[str, Dict[int, float]] = {s.name: {j: c.width for j, c in enumerate(s.columns)} for s in SHEETS}
+WIDTHS[ABOUT_SHEET] = {0: 110}
+WIDTHS["Isochron"].update({7: 3, 8: 34, 9: 15, 10: 15, 11: 30})
+
+
+# --------------------------------------------------------------------------------------------
+# .xlsx writer and reader (openpyxl)
+# --------------------------------------------------------------------------------------------
+def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bool = True,
+               extra_sheets: Optional[Mapping[str, Sequence[Sequence[Any]]]] = None) -> None:
+    """Write a layout as .xlsx: formulas (with cached values) or, with ``values_only``, values."""
+    from openpyxl import Workbook
+    from openpyxl.styles import Alignment, Font, PatternFill, Protection
+
+    wb = Workbook()
+    wb.remove(wb.active)
+    fonts = {"title": Font(bold=True, size=13), "note": Font(italic=True, color="555555"),
+             "header": Font(bold=True), "key": Font(size=7, color="888888"), "label": Font(bold=True)}
+    cached: Dict[str, Dict[str, Any]] = {}
+    for name in [s for s in SHEET_ORDER if s in lay] + [s for s in lay if s not in SHEET_ORDER]:
+        ws = wb.create_sheet(name)
+        for j, w in WIDTHS.get(name, {}).items():
+            ws.column_dimensions[col_letter(j)].width = w
+        for (r, c), spec in sorted(lay[name].items()):
+            cell = ws.cell(row=r, column=c + 1)
+            if spec.formula is not None and not values_only:
+                cell.value = spec.formula.render(name, "xlsx")
+                cached.setdefault(name, {})[f"{col_letter(c)}{r}"] = spec.value
+            else:
+                v = spec.value
+                cell.value = None if v == "" else v
+            if spec.style in fonts:
+                cell.font = fonts[spec.style]
+            if spec.style in _FILL:
+                cell.fill = PatternFill("solid", fgColor=_FILL[spec.style])
+            if spec.style == "header":
+                cell.alignment = Alignment(wrap_text=True, vertical="top")
+            if spec.number_format != "General":
+                cell.number_format = spec.number_format
+            if spec.style == "input":
+                cell.protection = Protection(locked=False)
+        if protect and not values_only and name not in (ABOUT_SHEET,):
+            ws.protection.sheet = True
+            ws.protection.formatColumns = False
+            ws.protection.formatRows = False
+        ws.freeze_panes = None if name == ABOUT_SHEET else f"A{FIRST_ROW}"
+    for name, rows in (extra_sheets or {}).items():
+        ws = wb.create_sheet(name)
+        for r in rows:
+            ws.append(list(r))
+        ws.column_dimensions["A"].width = 32
+        ws.column_dimensions["B"].width = 60
+        for cell in ws[1]:
+            cell.font = Font(bold=True)
+    wb.save(path)
+    if cached and not values_only:
+        _xlsx_add_cached_values(path, wb.sheetnames, cached)
+
+
+def _xlsx_add_cached_values(path: Any, names: Sequence[str], cached: Mapping[str, Mapping[str, Any]]) -> None:
+    """Store each formula's value in the file (openpyxl writes formulas without cached values).
+
+    Viewers without the extension then show the numbers, as they would after LibreOffice saved it.
+    """
+    import zipfile
+    from xml.sax.saxutils import escape
+
+    src = str(path)
+    with zipfile.ZipFile(src) as z:
+        items = {n: z.read(n) for n in z.namelist()}
+        infos = z.infolist()
+    pat = re.compile(rb'<c r="([A-Z]+[0-9]+)"([^>]*)><f>(.*?)</f><v\s*/?>(?:</v>)?</c>')
+    for k, name in enumerate(names, start=1):
+        if name not in cached:
+            continue
+        part = f"xl/worksheets/sheet{k}.xml"
+        vals = cached[name]
+
+        def sub(m: re.Match, vals: Mapping[str, Any] = vals) -> bytes:
+            ref = m.group(1).decode()
+            v = vals.get(ref, "")
+            attrs = re.sub(rb'\s+t="[^"]*"', b"", m.group(2))
+            if isinstance(v, float) and math.isfinite(v):
+                return b'<c r="%s"%s><f>%s</f><v>%s</v></c>' % (m.group(1), attrs, m.group(3), repr(v).encode())
+            text = escape("" if v is None else str(v)).encode()
+            return b'<c r="%s"%s t="str"><f>%s</f><v>%s</v></c>' % (m.group(1), attrs, m.group(3), text)
+        items[part] = pat.sub(sub, items[part])
+    with zipfile.ZipFile(src, "w", zipfile.ZIP_DEFLATED) as z:
+        for info in infos:
+            z.writestr(info, items[info.filename])
+
+
+@dataclass(frozen=True)
+class WorkbookData:
+    """What a reader returns: sheet grids of values and the formula text of formula cells."""
+
+    grid: Dict[str, List[List[Cell]]]
+    formulas: Dict[Tuple[str, int, int], str]
+    path: str
+
+
+def read_xlsx(path: Any) -> WorkbookData:
+    """Read a RatioDesk .xlsx (openpyxl): input values and formula text."""
+    from openpyxl import load_workbook
+
+    wb = load_workbook(path, data_only=False, read_only=True)
+    grid: Dict[str, List[List[Cell]]] = {}
+    formulas: Dict[Tuple[str, int, int], str] = {}
+    for ws in wb.worksheets:
+        g: List[List[Cell]] = []
+        for r, row in enumerate(ws.iter_rows(values_only=True), start=1):
+            out = []
+            for c, v in enumerate(row):
+                if isinstance(v, str) and v.startswith("="):
+                    formulas[(ws.title, r, c)] = v
+                    out.append("")
+                else:
+                    out.append(_clean(v))
+            g.append(out)
+        grid[ws.title] = g
+    wb.close()
+    return WorkbookData(grid, formulas, str(path))
+
+
+# --------------------------------------------------------------------------------------------
+# .ods reader (zipfile + ElementTree; OpenDocument 1.2 table:table)
+# --------------------------------------------------------------------------------------------
+_NS = {"office": "urn:oasis:names:tc:opendocument:xmlns:office:1.0",
+       "table": "urn:oasis:names:tc:opendocument:xmlns:table:1.0",
+       "text": "urn:oasis:names:tc:opendocument:xmlns:text:1.0"}
+_MAX_REPEAT = 2000   # LibreOffice writes "rest of the sheet" as one huge repeated row/column
+
+
+def _q(prefix: str, tag: str) -> str:
+    return "{" + _NS[prefix] + "}" + tag
+
+
+def _ods_cell_value(el: Any) -> Cell:
+    vt = el.get(_q("office", "value-type"))
+    if vt in ("float", "percentage", "currency"):
+        return float(el.get(_q("office", "value")))
+    if vt == "boolean":
+        return 1.0 if el.get(_q("office", "boolean-value")) == "true" else 0.0
+    if vt == "date":
+        return str(el.get(_q("office", "date-value")))[:10]
+    if vt == "time":
+        return str(el.get(_q("office", "time-value")))
+    if vt == "string" and el.get(_q("office", "string-value")) is not None:
+        return str(el.get(_q("office", "string-value")))
+    parts = []
+    for p in el.iter(_q("text", "p")):
+        parts.append("".join(p.itertext()))
+    return "\n".join(parts) if vt is not None or parts else ""
+
+
+def read_ods(path: Any) -> WorkbookData:
+    """Read a RatioDesk .ods: input values and formula text (``of:=...``)."""
+    import xml.etree.ElementTree as ET
+    import zipfile
+
+    with zipfile.ZipFile(path) as z:
+        root = ET.fromstring(z.read("content.xml"))
+    grid: Dict[str, List[List[Cell]]] = {}
+    formulas: Dict[Tuple[str, int, int], str] = {}
+    for tab in root.iter(_q("table", "table")):
+        name = tab.get(_q("table", "name"))
+        g: List[List[Cell]] = []
+        rows = [e for e in tab.iter(_q("table", "table-row"))]
+        for row in rows:
+            rrep = min(int(row.get(_q("table", "number-rows-repeated"), "1")), _MAX_REPEAT)
+            cells: List[Cell] = []
+            for cell in row:
+                if cell.tag not in (_q("table", "table-cell"), _q("table", "covered-table-cell")):
+                    continue
+                crep = min(int(cell.get(_q("table", "number-columns-repeated"), "1")), _MAX_REPEAT)
+                f = cell.get(_q("table", "formula"))
+                v = _ods_cell_value(cell)
+                for _ in range(crep):
+                    if f is not None:
+                        formulas[(name, len(g) + 1, len(cells))] = f
+                        cells.append("")
+                    else:
+                        cells.append(v)
+            while cells and cells[-1] == "":
+                cells.pop()
+            for _ in range(rrep):
+                g.append(list(cells))
+        while g and not g[-1]:
+            g.pop()
+        grid[name] = g
+    return WorkbookData(grid, formulas, str(path))
+
+
+def read_workbook(path: Any) -> WorkbookData:
+    """Read a RatioDesk workbook, .xlsx or .ods, by its extension."""
+    p = str(path)
+    low = p.lower()
+    if low.endswith(".xlsx"):
+        return read_xlsx(p)
+    if low.endswith(".ods"):
+        return read_ods(p)
+    raise InputError("workbook", f"must be a .xlsx or .ods file, got {p!r}")
+
+
+def check_sheets(data: WorkbookData) -> None:
+    """Every sheet the definition reads must be present (named exactly)."""
+    for s in SHEETS:
+        if s.name not in data.grid:
+            raise CellError(s.name, None, None, "", f"sheet missing from {data.path} (sheets there: "
+                                                    f"{', '.join(data.grid) or 'none'})")

@@ -1,0 +1,179 @@
+"""A small OpenDocument spreadsheet (.ods) writer for RatioDesk layouts (standard library only).
+
+Writes the cells of a :data:`reduction.workbook.Layout`: values, formulas (``of:=`` OpenFormula with
+the add-in's stored names) with their cached values, the input/computed look, number formats,
+column widths and sheet protection without a password (one click in Tools ▸ Protect Sheet).
+"""
+from __future__ import annotations
+
+import math
+import re
+import zipfile
+from typing import Any, Dict, List, Mapping, Optional, Sequence, Tuple
+from xml.sax.saxutils import escape, quoteattr
+
+from reduction.workbook import SHEET_ORDER, WIDTHS, CellSpec, Layout
+
+NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
+      'xmlns:style="urn:oasis:names:tc:opendocument:xmlns:style:1.0" '
+      'xmlns:text="urn:oasis:names:tc:opendocument:xmlns:text:1.0" '
+      'xmlns:table="urn:oasis:names:tc:opendocument:xmlns:table:1.0" '
+      'xmlns:fo="urn:oasis:names:tc:opendocument:xmlns:xsl-fo-compatible:1.0" '
+      'xmlns:number="urn:oasis:names:tc:opendocument:xmlns:datastyle:1.0" '
+      'xmlns:of="urn:oasis:names:tc:opendocument:xmlns:of:1.2" '
+      'xmlns:meta="urn:oasis:names:tc:opendocument:xmlns:meta:1.0" '
+      'xmlns:config="urn:oasis:names:tc:opendocument:xmlns:config:1.0" '
+      'xmlns:xlink="http://www.w3.org/1999/xlink" '
+      'xmlns:loext="urn:org:documentfoundation:names:experimental:office:xmlns:loext:1.0"')
+
+_FILL = {"input": "#fff6d5", "computed": "#e2ecf8", "header": "#d9d9d9"}
+_TEXT = {"title": 'fo:font-weight="bold" fo:font-size="13pt"', "note": 'fo:font-style="italic" fo:color="#555555"',
+         "header": 'fo:font-weight="bold"', "key": 'fo:font-size="7pt" fo:color="#888888"',
+         "label": 'fo:font-weight="bold"'}
+
+
+def _number_style(name: str, fmt: str) -> str:
+    m = re.fullmatch(r"0(?:\.(0+))?E\+(0+)", fmt)
+    if m:
+        d = len(m.group(1) or "")
+        return (f'<number:number-style style:name="{name}"><number:scientific-number number:decimal-places="{d}" '
+                f'number:min-integer-digits="1" number:min-exponent-digits="{len(m.group(2))}"/>'
+                f"</number:number-style>")
+    m = re.fullmatch(r"0(?:\.(0+))?", fmt)
+    d = len(m.group(1) or "") if m else 2
+    return (f'<number:number-style style:name="{name}"><number:number number:decimal-places="{d}" '
+            f'number:min-integer-digits="1"/></number:number-style>')
+
+
+class _Styles:
+    def __init__(self) -> None:
+        self.cells: Dict[Tuple[str, str], str] = {}
+        self.numbers: Dict[str, str] = {}
+        self.columns: Dict[float, str] = {}
+
+    def cell(self, style: str, fmt: str) -> str:
+        key = (style, fmt)
+        if key not in self.cells:
+            self.cells[key] = f"ce{len(self.cells) + 1}"
+            if fmt != "General" and fmt not in self.numbers:
+                self.numbers[fmt] = f"N{len(self.numbers) + 100}"
+        return self.cells[key]
+
+    def column(self, width_chars: float) -> str:
+        if width_chars not in self.columns:
+            self.columns[width_chars] = f"co{len(self.columns) + 1}"
+        return self.columns[width_chars]
+
+    def xml(self) -> str:
+        out = ['<style:style style:name="ta1" style:family="table"><style:table-properties table:display="true"/>'
+               "</style:style>"]
+        for w, name in self.columns.items():
+            out.append(f'<style:style style:name="{name}" style:family="table-column"><style:table-column-properties '
+                       f'style:column-width="{w * 0.21:.2f}cm"/></style:style>')
+        for fmt, name in self.numbers.items():
+            out.append(_number_style(name, fmt))
+        for (style, fmt), name in self.cells.items():
+            ds = f' style:data-style-name="{self.numbers[fmt]}"' if fmt != "General" else ""
+            props = ['style:cell-protect="none"' if style == "input" else 'style:cell-protect="protected"']
+            if style in _FILL:
+                props.append(f'fo:background-color="{_FILL[style]}"')
+            if style == "header":
+                props.append('fo:wrap-option="wrap"')
+            text = f"<style:text-properties {_TEXT[style]}/>" if style in _TEXT else ""
+            out.append(f'<style:style style:name="{name}" style:family="table-cell" '
+                       f'style:parent-style-name="Default"{ds}><style:table-cell-properties {" ".join(props)}/>'
+                       f"{text}</style:style>")
+        return "".join(out)
+
+
+def _display(v: Any) -> str:
+    if isinstance(v, float):
+        return repr(v) if not v.is_integer() else str(int(v))
+    return str(v)
+
+
+def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only: bool) -> str:
+    if spec is None:
+        return "<table:table-cell/>"
+    attrs = [f'table:style-name="{styles.cell(spec.style, spec.number_format)}"']
+    if spec.formula is not None and not values_only:
+        attrs.append("table:formula=" + quoteattr(spec.formula.render(sheet, "ods")))
+    v = spec.value
+    if isinstance(v, bool):
+        v = float(v)
+    if isinstance(v, int):
+        v = float(v)
+    if isinstance(v, float) and math.isfinite(v):
+        attrs.append(f'office:value-type="float" office:value="{v!r}"')
+        return f"<table:table-cell {' '.join(attrs)}><text:p>{_display(v)}</text:p></table:table-cell>"
+    if v in ("", None):
+        if spec.formula is not None and not values_only:
+            attrs.append('office:value-type="string" office:string-value=""')
+        return f"<table:table-cell {' '.join(attrs)}/>"
+    text = str(v)
+    attrs.append('office:value-type="string"')
+    paras = "".join(f"<text:p>{escape(line)}</text:p>" for line in text.split("\n"))
+    return f"<table:table-cell {' '.join(attrs)}>{paras}</table:table-cell>"
+
+
+def _table_xml(name: str, cells: Mapping[Tuple[int, int], CellSpec], styles: _Styles, values_only: bool,
+               protect: bool) -> str:
+    n_rows = max((r for r, _c in cells), default=0)
+    n_cols = max((c for _r, c in cells), default=0) + 1
+    prot = ' table:protected="true"' if protect else ""
+    out = [f"<table:table table:name={quoteattr(name)} table:style-name=\"ta1\"{prot}>"]
+    widths = WIDTHS.get(name, {})
+    for j in range(n_cols):
+        out.append(f'<table:table-column table:style-name="{styles.column(widths.get(j, 12.0))}" '
+                   f'table:default-cell-style-name="Default"/>')
+    for r in range(1, n_rows + 1):
+        row = [_cell_xml(cells.get((r, c)), name, styles, values_only) for c in range(n_cols)]
+        out.append("<table:table-row>" + "".join(row) + "</table:table-row>")
+    out.append("</table:table>")
+    return "".join(out)
+
+
+def _rows_as_cells(rows: Sequence[Sequence[Any]]) -> Dict[Tuple[int, int], CellSpec]:
+    out: Dict[Tuple[int, int], CellSpec] = {}
+    for r, row in enumerate(rows, start=1):
+        for c, v in enumerate(row):
+            if v not in ("", None):
+                out[(r, c)] = CellSpec(v, style="header" if r == 1 else "plain")
+    return out
+
+
+def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: bool = True,
+              extra_sheets: Optional[Mapping[str, Sequence[Sequence[Any]]]] = None) -> None:
+    """Write a layout as an .ods file (formulas with cached values unless ``values_only``)."""
+    styles = _Styles()
+    names = [s for s in SHEET_ORDER if s in lay] + [s for s in lay if s not in SHEET_ORDER]
+    tables: List[str] = []
+    for name in names:
+        tables.append(_table_xml(name, lay[name], styles, values_only,
+                                 protect and not values_only and name != SHEET_ORDER[0]))
+    for name, rows in (extra_sheets or {}).items():
+        tables.append(_table_xml(name, _rows_as_cells(rows), styles, True, False))
+    content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {NS} office:version="1.2">'
+               f"<office:automatic-styles>{styles.xml()}</office:automatic-styles>"
+               f"<office:body><office:spreadsheet>{''.join(tables)}</office:spreadsheet></office:body>"
+               f"</office:document-content>")
+    styles_xml = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-styles {NS} office:version="1.2">'
+                  '<office:styles><style:style style:name="Default" style:family="table-cell"/></office:styles>'
+                  "</office:document-styles>")
+    manifest = ('<?xml version="1.0" encoding="UTF-8"?>'
+                '<manifest:manifest xmlns:manifest="urn:oasis:names:tc:opendocument:xmlns:manifest:1.0" '
+                'manifest:version="1.2">'
+                '<manifest:file-entry manifest:full-path="/" manifest:version="1.2" '
+                'manifest:media-type="application/vnd.oasis.opendocument.spreadsheet"/>'
+                '<manifest:file-entry manifest:full-path="content.xml" manifest:media-type="text/xml"/>'
+                '<manifest:file-entry manifest:full-path="styles.xml" manifest:media-type="text/xml"/>'
+                "</manifest:manifest>")
+    with zipfile.ZipFile(str(path), "w") as z:
+        z.writestr(zipfile.ZipInfo("mimetype"), "application/vnd.oasis.opendocument.spreadsheet",
+                   compress_type=zipfile.ZIP_STORED)
+        z.writestr("content.xml", content, compress_type=zipfile.ZIP_DEFLATED)
+        z.writestr("styles.xml", styles_xml, compress_type=zipfile.ZIP_DEFLATED)
+        z.writestr("META-INF/manifest.xml", manifest, compress_type=zipfile.ZIP_DEFLATED)
+
+
+__all__ = ["write_ods"]
