@@ -190,6 +190,7 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
         Mass-bias law for the factors.
     require_monitors : bool, default True
         Missing monitor beam -> InputError. With False, that interference is skipped (reported as 0).
+        An interference whose target mass is not among the beams is skipped and not reported.
 
     Returns
     -------
@@ -204,7 +205,7 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
     for target, interferent, monitor in INTERFERENCES[sysm.key]:
         key = f"{interferent} on {target}"
         if target not in work:
-            raise InputError("beams", f"no beam for {target!r} (needed for the {sysm.label} reduction)")
+            continue  # this run does not measure that mass (e.g. the parent element's run)
         if monitor not in work:
             if require_monitors:
                 raise InputError("beams", f"monitor isotope {monitor!r} is missing: cannot strip {interferent} "
