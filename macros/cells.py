@@ -1,0 +1,506 @@
+"""The cell adapter: cells → arrays → engine → cells. No math, and no ``uno`` import.
+
+Every public function here is named after a method of the table in ``functions.py`` and takes the
+arguments exactly as LibreOffice delivers them (ranges as tuples of tuples of float / str, an
+omitted optional argument as ``None``); it returns what a cell can show: a Python float, a str,
+or a tuple of tuples of those.
+
+Cells never lie:
+* text and empty cells in a numeric range are never read as zero. Rows that are empty in *every*
+  range of a function are skipped (so a range may be larger than the data); a row empty in only
+  some ranges is an error naming the row.
+* bad input becomes a readable message in the cell, starting with :data:`MARKER`, naming the
+  argument and the row (``"⚠ must be > 0, got 0.0 (row 3 of sy)"``); rows count from the top of
+  the range the user selected.
+* a message arriving as an input (another RatioDesk cell's message) is passed on with the argument
+  it came through: ``"⚠ from sy: ..."``, leading the user to the first cause.
+* an undefined result says why.
+
+The engine is imported lazily, on the first call that needs it, so a LibreOffice without numpy or
+scipy shows :data:`NEEDS_NUMPY` in every cell instead of Err:504; problems are logged to
+:data:`LOG_PATH`. Inside LibreOffice the engine is shipped as the package ``ratiodesk_engine``
+(a copy of ``reduction``; see macros/package.py); outside it, ``reduction`` is used.
+"""
+from __future__ import annotations
+
+import importlib
+import os
+import re
+import sys
+import tempfile
+import time
+import traceback
+from collections import OrderedDict
+from pathlib import Path
+from typing import Any, Callable, Dict, Iterable, List, Optional, Sequence, Tuple
+
+if __package__:
+    from . import functions as _table
+else:  # imported as a top-level module (tests put macros/ on sys.path)
+    import functions as _table
+
+MARKER = _table.MESSAGE_MARKER
+YEARS_PER_MA = 1.0e6
+ENGINE_PACKAGES = ("ratiodesk_engine", "reduction")
+NEEDS_NUMPY = (MARKER + "RatioDesk needs numpy and scipy in LibreOffice's Python; install them with: "
+               "sudo apt-get install python3-numpy python3-scipy  (then restart LibreOffice)")
+
+
+def _log_path() -> Path:
+    env = os.environ.get("RATIODESK_LOG")
+    if env:
+        return Path(env)
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "ratiodesk" / "calc-addin.log"
+
+
+LOG_PATH = _log_path()
+
+
+def log(text: str) -> None:
+    """Append a time-stamped line to the log file (falling back to the temp directory)."""
+    line = f"{time.strftime('%Y-%m-%d %H:%M:%S')} {text}\n"
+    global LOG_PATH
+    for path in (LOG_PATH, Path(tempfile.gettempdir()) / "ratiodesk-calc-addin.log"):
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            with open(path, "a", encoding="utf-8") as fh:
+                fh.write(line)
+            LOG_PATH = path
+            return
+        except OSError:
+            continue
+
+
+def _read_version() -> str:
+    try:
+        if __package__:
+            from ._build import VERSION  # written by macros/package.py into the .oxt
+            return str(VERSION)
+    except ImportError:
+        pass
+    init = Path(__file__).resolve().parent.parent / "reduction" / "__init__.py"
+    m = re.search(r'^__version__\s*=\s*"([^"]+)"', init.read_text(encoding="utf-8"), re.M)
+    return m.group(1) if m else "unknown"
+
+
+VERSION = _read_version()
+
+
+class CellMessage(Exception):
+    """A readable problem to show in the cell (without the marker; it is added on display)."""
+
+
+# --------------------------------------------------------------------------------------------
+# the engine, imported lazily
+# --------------------------------------------------------------------------------------------
+_engine_modules: Dict[str, Any] = {}
+_engine_state: Dict[str, Any] = {"package": None, "failure": None}
+
+
+def engine(module: str) -> Any:
+    """The engine submodule ``module`` (e.g. ``"regression"``), importing the engine on first use."""
+    mod = _engine_modules.get(module)
+    if mod is not None:
+        return mod
+    pkg = _engine_state["package"] or _load_engine()
+    mod = importlib.import_module(f"{pkg}.{module}")
+    _engine_modules[module] = mod
+    return mod
+
+
+class _EngineMissing(Exception):
+    pass
+
+
+def _load_engine() -> str:
+    if _engine_state["failure"]:
+        raise _EngineMissing(_engine_state["failure"])
+    try:
+        import numpy  # noqa: F401
+        import scipy  # noqa: F401
+    except ImportError as exc:
+        log(f"numpy/scipy missing in {sys.executable} (Python {sys.version.split()[0]}): {exc!r}")
+        _engine_state["failure"] = NEEDS_NUMPY
+        raise _EngineMissing(NEEDS_NUMPY) from None
+    for name in ENGINE_PACKAGES:
+        try:
+            importlib.import_module(name)
+        except ModuleNotFoundError as exc:
+            if exc.name != name:
+                raise
+            continue
+        _engine_state["package"] = name
+        return name
+    msg = MARKER + "RatioDesk engine not found (reinstall the extension); see the log " + str(LOG_PATH)
+    log(f"engine package not found among {ENGINE_PACKAGES}; sys.path={sys.path}")
+    _engine_state["failure"] = msg
+    raise _EngineMissing(msg)
+
+
+# --------------------------------------------------------------------------------------------
+# the guard every cell function runs in
+# --------------------------------------------------------------------------------------------
+def _message(text: str, array: bool) -> Any:
+    text = text if text.startswith(MARKER) else MARKER + text
+    return ((text,),) if array else text
+
+
+def cell_function(array: bool = False, rename: Optional[Dict[str, str]] = None) -> Callable:
+    """Decorate an adapter: turn every problem into a readable cell message.
+
+    ``rename`` maps engine argument names to the cell argument names the user sees.
+    """
+    names = rename or {}
+
+    def wrap(fn: Callable) -> Callable:
+        def run(*args: Any) -> Any:
+            try:
+                return fn(*args)
+            except CellMessage as exc:
+                return _message(str(exc), array)
+            except _EngineMissing as exc:
+                return _message(str(exc), array)
+            except Exception as exc:  # the engine's own errors and anything unexpected
+                return _message(_engine_error_text(exc, names, fn.__name__), array)
+
+        run.__name__ = fn.__name__
+        run.__doc__ = fn.__doc__
+        run.__wrapped__ = fn  # type: ignore[attr-defined]
+        return run
+
+    return wrap
+
+
+def _engine_error_text(exc: Exception, names: Dict[str, str], where: str) -> str:
+    errors = engine("errors")
+    if isinstance(exc, errors.InputError):
+        arg = names.get(exc.argument, exc.argument)
+        rowmap = getattr(exc, "rowmap", None)
+        if exc.row is not None:
+            row = rowmap[exc.row - 1] if rowmap and exc.row - 1 < len(rowmap) else exc.row
+            return f"{exc.problem} (row {row} of {arg})"
+        return f"{arg}: {exc.problem}"
+    if isinstance(exc, errors.UndefinedResultError):
+        return f"undefined: {exc}"
+    if isinstance(exc, errors.ConvergenceError):
+        return f"did not converge: {exc}"
+    if isinstance(exc, errors.RatioDeskError):
+        return str(exc)
+    log(f"unexpected error in {where}:\n{traceback.format_exc()}")
+    return f"internal error in {where} ({type(exc).__name__}: {exc}); details in {LOG_PATH}"
+
+
+# --------------------------------------------------------------------------------------------
+# cells -> Python values
+# --------------------------------------------------------------------------------------------
+def _cells(name: str, grid: Any) -> List[Any]:
+    """Flatten one column or one row of cells (or a single value) into a list."""
+    if isinstance(grid, tuple):
+        rows = len(grid)
+        cols = len(grid[0]) if rows else 0
+        if cols == 1:
+            return [r[0] for r in grid]
+        if rows == 1:
+            return list(grid[0])
+        raise CellMessage(f"{name} must be one column or one row, got {rows} rows x {cols} columns")
+    return [grid]
+
+
+def _passed_on(name: str, value: str) -> CellMessage:
+    return CellMessage(MARKER + "from " + name + ": " + value[len(MARKER):])
+
+
+def _is_empty(v: Any) -> bool:
+    return v is None or v == ""
+
+
+def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = ()) -> Tuple[Dict[str, Any], List[int]]:
+    """Read parallel numeric columns; return ``({name: list of float or None}, kept_rows)``.
+
+    ``named`` is ``[(argument name, grid), ...]``; an ``optional`` argument may be ``None``
+    (omitted) or entirely empty, and is then returned as ``None``. Rows empty in every given
+    range are skipped; ``kept_rows`` lists the 1-based range rows that were kept.
+    """
+    opt = set(optional)
+    lists: Dict[str, List[Any]] = {}
+    first = None
+    for name, grid in named:
+        if grid is None:
+            if name in opt:
+                continue
+            raise CellMessage(f"{name} is required")
+        cells = _cells(name, grid)
+        if name in opt and all(_is_empty(v) for v in cells):
+            continue
+        if first is None:
+            first = (name, len(cells))
+        elif len(cells) != first[1]:
+            raise CellMessage(f"{name} has {len(cells)} cells but {first[0]} has {first[1]}")
+        lists[name] = cells
+    if first is None:
+        return {name: None for name, _ in named}, []
+    n = first[1]
+    kept = [i for i in range(n) if not all(_is_empty(c[i]) for c in lists.values())]
+    if not kept:
+        raise CellMessage(f"{first[0]} has no values (all {n} rows are empty)")
+    out: Dict[str, Any] = {name: None for name, _ in named}
+    for name, cells in lists.items():
+        vals = []
+        for i in kept:
+            v = cells[i]
+            if isinstance(v, float):
+                vals.append(v)
+            elif isinstance(v, str) and v.startswith(MARKER):
+                raise _passed_on(name, v)
+            elif _is_empty(v):
+                raise CellMessage(f"row {i + 1} of {name} is empty")
+            elif isinstance(v, (int, bool)):
+                vals.append(float(v))
+            else:
+                raise CellMessage(f"row {i + 1} of {name} is text {v!r}, not a number")
+        out[name] = vals
+    return out, [i + 1 for i in kept]
+
+
+def number(name: str, v: Any, default: Optional[float] = None) -> float:
+    """One number from a cell or typed value; ``default`` when omitted or empty (else required)."""
+    if isinstance(v, tuple):
+        cells = _cells(name, v)
+        if len(cells) != 1:
+            raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
+        v = cells[0]
+    if isinstance(v, float):
+        return v
+    if _is_empty(v):
+        if default is None:
+            raise CellMessage(f"{name} is required")
+        return default
+    if isinstance(v, str):
+        if v.startswith(MARKER):
+            raise _passed_on(name, v)
+        raise CellMessage(f"{name} is text {v!r}, not a number")
+    if isinstance(v, (int, bool)):
+        return float(v)
+    raise CellMessage(f"{name} is not a number: {v!r}")
+
+
+def text(name: str, v: Any, default: Optional[str] = None) -> str:
+    """One text value (trimmed, lower case); ``default`` when omitted or empty (else required)."""
+    if isinstance(v, tuple):
+        cells = _cells(name, v)
+        if len(cells) != 1:
+            raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
+        v = cells[0]
+    if _is_empty(v) or (not isinstance(v, str) and v == 0.0):
+        # a reference to one empty cell arrives as 0.0 (LibreOffice 7.4): no text option is a number
+        if default is None:
+            raise CellMessage(f"{name} is required (its cell is empty)")
+        return default
+    if isinstance(v, str):
+        if v.startswith(MARKER):
+            raise _passed_on(name, v)
+        return v.strip().lower()
+    raise CellMessage(f"{name} must be text, got the number {v!r}")
+
+
+def flag(name: str, v: Any, default: bool = False) -> bool:
+    """A TRUE/FALSE cell (TRUE arrives as 1.0); also accepts the words true/false, yes/no."""
+    if isinstance(v, tuple):
+        cells = _cells(name, v)
+        if len(cells) != 1:
+            raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
+        v = cells[0]
+    if _is_empty(v):
+        return default
+    if isinstance(v, (float, int, bool)):
+        return bool(v)
+    if isinstance(v, str):
+        if v.startswith(MARKER):
+            raise _passed_on(name, v)
+        w = v.strip().lower()
+        if w in ("true", "yes", "1"):
+            return True
+        if w in ("false", "no", "0"):
+            return False
+    raise CellMessage(f"{name} must be TRUE or FALSE, got {v!r}")
+
+
+# --------------------------------------------------------------------------------------------
+# Python values -> cells
+# --------------------------------------------------------------------------------------------
+def cell(v: Any, why_undefined: str = "undefined") -> Any:
+    """A value a cell can show: plain float, or the reason when the engine says None."""
+    if v is None:
+        return MARKER + why_undefined
+    if isinstance(v, str):
+        return v
+    return float(v)
+
+
+def row(*values: Any) -> Tuple[Tuple[Any, ...]]:
+    return (tuple(values),)
+
+
+def call(fn: Callable, rowmap: Optional[List[int]], *args: Any, **kwargs: Any) -> Any:
+    """Call the engine; attach the range-row map to an InputError so the message names the range row."""
+    try:
+        return fn(*args, **kwargs)
+    except Exception as exc:
+        if rowmap is not None and getattr(exc, "row", None) is not None:
+            exc.rowmap = rowmap  # type: ignore[attr-defined]
+        raise
+
+
+class _Cache:
+    """Results by inputs, so accessor cells reading the same fit reuse it (first in, first out)."""
+
+    def __init__(self, size: int = 256) -> None:
+        self.size = size
+        self.data: OrderedDict[Any, Any] = OrderedDict()
+
+    def get(self, key: Any, make: Callable[[], Any]) -> Any:
+        try:
+            hit = self.data[key]
+        except KeyError:
+            try:
+                hit = (True, make())
+            except Exception as exc:  # a failing fit fails every accessor the same way, once
+                hit = (False, exc)
+            self.data[key] = hit
+            if len(self.data) > self.size:
+                self.data.popitem(last=False)
+        if hit[0]:
+            return hit[1]
+        raise hit[1]
+
+
+FIT_CACHE = _Cache()
+
+
+# --------------------------------------------------------------------------------------------
+# meta
+# --------------------------------------------------------------------------------------------
+def rdVersion() -> str:
+    """RatioDesk version (no engine import: this works even without numpy)."""
+    return VERSION
+
+
+def rdEcho(value: Any = None) -> Any:
+    """The argument unchanged (the bridge's speed floor)."""
+    if value is None:
+        return MARKER + "value is required"
+    if isinstance(value, tuple):
+        return value[0][0] if value and value[0] else ""
+    return value
+
+
+# --------------------------------------------------------------------------------------------
+# isochron
+# --------------------------------------------------------------------------------------------
+_FIT_NAMES = ("x", "sx", "y", "sy", "rho")
+
+
+def fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any, treatment: Any) -> Any:
+    """The engine's isochron fit of the cells (cached by inputs)."""
+    cols, kept = columns(list(zip(_FIT_NAMES, (x, sx, y, sy, rho))), optional=("rho",))
+    tr = text("treatment", treatment, "analytical")
+    key = (tuple(tuple(c) if c is not None else None for c in cols.values()), tr, tuple(kept))
+    reg = engine("regression")
+    return FIT_CACHE.get(key, lambda: call(reg.fit_isochron, kept, cols["x"], cols["sx"], cols["y"], cols["sy"],
+                                           cols["rho"], treatment=tr))
+
+
+_N2 = "undefined for 2 points (no degrees of freedom)"
+
+#: (label, how to read it off an IsochronFit, why it may be undefined) — the rows of RD.ISOCHRON.
+FIT_BLOCK: Tuple[Tuple[str, Callable[[Any], Any], str], ...] = (
+    ("slope", lambda f: f.slope, ""),
+    ("slope_1s", lambda f: f.slope_sigma_1s, ""),
+    ("intercept", lambda f: f.intercept, ""),
+    ("intercept_1s", lambda f: f.intercept_sigma_1s, ""),
+    ("rho", lambda f: f.rho_slope_intercept, ""),
+    ("mswd", lambda f: f.mswd, _N2),
+    ("p", lambda f: f.p_value, _N2),
+    ("mswd_low_95", lambda f: f.mswd_limits_95[0] if f.mswd_limits_95 else None, _N2),
+    ("mswd_high_95", lambda f: f.mswd_limits_95[1] if f.mswd_limits_95 else None, _N2),
+    ("n", lambda f: f.n, ""),
+    ("dof", lambda f: f.dof, ""),
+    ("slope_95", lambda f: f.slope_sigma_95_expanded, _N2),
+    ("intercept_95", lambda f: f.intercept_sigma_95_expanded, _N2),
+    ("excess_sy_1s", lambda f: f.excess_sigma_y_1s, ""),
+    ("sigma_scale", lambda f: f.sigma_scale, ""),
+    ("treatment", lambda f: f.treatment, ""),
+)
+_FIT_FIELDS = {label: (get, why) for label, get, why in FIT_BLOCK}
+
+
+@cell_function(array=True)
+def rdIsochronBlock(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment)
+    return tuple((label, cell(get(f), why or "undefined")) for label, get, why in FIT_BLOCK)
+
+
+@cell_function(array=True)
+def rdIsochronSlope(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment)
+    return row(cell(f.slope), cell(f.slope_sigma_1s))
+
+
+@cell_function(array=True)
+def rdIsochronIntercept(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment)
+    return row(cell(f.intercept), cell(f.intercept_sigma_1s))
+
+
+@cell_function()
+def rdIsochronMswd(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
+    return cell(fit(x, sx, y, sy, rho, treatment).mswd, "MSWD is " + _N2)
+
+
+@cell_function()
+def rdIsochronValue(quantity: Any, x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
+    q = text("quantity", quantity)
+    if q not in _FIT_FIELDS:
+        raise CellMessage(f"quantity {q!r} is not one of {', '.join(_FIT_FIELDS)}")
+    get, why = _FIT_FIELDS[q]
+    return cell(get(fit(x, sx, y, sy, rho, treatment)), f"{q} is {why or 'undefined'}")
+
+
+# --------------------------------------------------------------------------------------------
+# ages
+# --------------------------------------------------------------------------------------------
+def reference(refset: Any) -> Any:
+    """The engine's reference set named in the cell (default set when empty)."""
+    name = text("refset", refset, "")
+    return engine("constants").reference_set(name or None)
+
+
+@cell_function(array=True)
+def rdAgeIsochron(x: Any, sx: Any, y: Any, sy: Any, system: Any, rho: Any = None, treatment: Any = None,
+                  refset: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment)
+    a = engine("ages").isochron_age(f, text("system", system), reference(refset))
+    return row(cell(a.age_ma), cell(a.age_sigma_1s_ma), cell(a.age_sigma_1s_ma_with_lambda), cell(a.initial),
+               cell(a.initial_sigma_1s))
+
+
+@cell_function()
+def rdAgeSlope(slope: Any, system: Any, refset: Any = None) -> Any:
+    b = number("slope", slope)
+    ages = engine("ages")
+    key = engine("systems").get_system(text("system", system)).decay_key
+    years = ages.age_from_slope(b, reference(refset).decay_constant(key).value)
+    return cell(years / YEARS_PER_MA)  # unit conversion only: the engine's slope front returns years
+
+
+# --------------------------------------------------------------------------------------------
+# weighted mean
+# --------------------------------------------------------------------------------------------
+@cell_function(array=True, rename={"sigma_1s": "sigma"})
+def rdMeanWeighted(values: Any, sigma: Any, external: Any = None) -> Any:
+    cols, kept = columns([("values", values), ("sigma", sigma)])
+    m = call(engine("regression").weighted_mean, kept, cols["values"], cols["sigma"],
+             external_scatter=flag("external", external))
+    return row(cell(m.mean), cell(m.mean_sigma_1s), cell(m.mswd, "MSWD is undefined for 1 value"),
+               cell(m.p_value, "p is undefined for 1 value"))

@@ -1,0 +1,168 @@
+"""THE table of RatioDesk cell functions.
+
+One entry per Calc function. From this table ``macros/package.py`` generates the UNO IDL (compiled
+to ``ratiodesk.rdb``), the Function Wizard descriptions (``CalcAddIns.xcu``), and ``macros/addin.py``
+builds its dispatch from it; ``macros/cells.py`` holds one adapter per entry (cells → arrays →
+engine → cells, no math).
+
+Names stored in saved workbooks — chosen once, never renamed
+---------------------------------------------------------------
+A workbook stores every add-in call as ``<SERVICE_NAME>.<method>``; in .ods for example
+``of:=ORG.RATIODESK.CALCFUNCTIONS.RDISOCHRONBLOCK(...)``, in .xlsx the same name without ``of:=``.
+
+* service name:        ``org.ratiodesk.CalcFunctions``           (:data:`SERVICE_NAME`)
+* interface (IDL):     ``org.ratiodesk.XCalcFunctions``          (:data:`INTERFACE_NAME`)
+* implementation name: ``org.ratiodesk.CalcFunctions.PythonImpl`` (:data:`IMPLEMENTATION_NAME`)
+* method names:        ``rd`` + reduction step + quantity in CamelCase, e.g. ``rdIsochronBlock``,
+  ``rdAgeIsochron``, ``rdMeanWeighted``. Argument names (``x``, ``sx``, ...) are part of the
+  generated IDL and XCU as well; they may be *added* at the end of a signature (as optional
+  arguments) but existing ones are never renamed, reordered or removed.
+
+Display names (free to change, shown in the grid and the Function Wizard) follow one scheme:
+``RD.<STEP>[.<QUANTITY>]`` where STEP is the reduction step in the trade's words — ``CYCLES``,
+``INTERFERENCE``, ``MASSBIAS``, ``DILUTION``, ``BLANK``, ``STANDARD``, ``PROPAGATE``, ``ISOCHRON``,
+``AGE``, ``INITIAL``, ``EPSILON``, ``MEAN``, ``ELLIPSE`` — plus ``RD.VERSION`` and ``RD.ECHO``.
+
+Argument kinds
+--------------
+``range``     a cell range, IDL ``sequence<sequence<any>>`` (text and empty cells arrive as text and
+              ``''``, never as 0); required.
+``cell``      a required single value or cell, IDL ``sequence<sequence<any>>`` (required in the
+              Function Wizard).
+``value``     an optional single value or cell, IDL ``any`` (Calc treats ``any`` arguments as
+              optional: an omitted one arrives as ``None``).
+
+Measured in LibreOffice 7.4: inside a range of two or more cells an empty cell arrives as ``''``,
+but a reference to one single empty cell arrives as 0.0, for ``any`` and ``any[][]`` alike. So
+text arguments treat 0.0 as "not given", and a single numeric cell left empty reads as 0 (the
+engine then rejects it where 0 is not allowed, e.g. a sigma).
+``range_opt`` an optional range, IDL ``any``.
+
+Return kinds: ``value`` (IDL ``any``) or ``array`` (IDL ``sequence<sequence<any>>``, entered as an
+array formula; a single cell shows the first element).
+
+This module is pure data and imports nothing outside the standard library.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Dict, Tuple
+
+SERVICE_NAME = "org.ratiodesk.CalcFunctions"
+INTERFACE_NAME = "org.ratiodesk.XCalcFunctions"
+IMPLEMENTATION_NAME = "org.ratiodesk.CalcFunctions.PythonImpl"
+ADDIN_SERVICE = "com.sun.star.sheet.AddIn"
+#: Only LibreOffice's built-in category names are honoured; the step grouping lives in the names.
+CATEGORY = "Add-In"
+#: Leading marker of every RatioDesk message shown in a cell (see macros/cells.py).
+MESSAGE_MARKER = "\u26a0 "
+
+IDL_TYPES = {"range": "sequence< sequence< any > >", "cell": "sequence< sequence< any > >", "value": "any",
+             "range_opt": "any",
+             "array": "sequence< sequence< any > >"}
+
+
+@dataclass(frozen=True)
+class Arg:
+    """One argument: stored IDL name, kind (see module docstring) and Function Wizard text."""
+
+    name: str
+    kind: str
+    description: str
+
+    @property
+    def optional(self) -> bool:
+        return self.kind in ("value", "range_opt")
+
+
+@dataclass(frozen=True)
+class Function:
+    """One cell function.
+
+    ``method`` is the stored internal name (never renamed); ``display`` the name users type;
+    ``engine`` the engine function the adapter ``cells.<method>`` calls (documentation and tests);
+    ``returns`` ``"value"`` or ``"array"``.
+    """
+
+    method: str
+    display: str
+    step: str
+    description: str
+    args: Tuple[Arg, ...]
+    engine: str
+    returns: str = "value"
+
+
+def _r(name: str, description: str) -> Arg:
+    return Arg(name, "range", description)
+
+
+def _ro(name: str, description: str) -> Arg:
+    return Arg(name, "range_opt", description)
+
+
+def _v(name: str, description: str) -> Arg:
+    return Arg(name, "value", description)
+
+
+def _c(name: str, description: str) -> Arg:
+    return Arg(name, "cell", description)
+
+
+# Shared argument descriptions (the same words wherever the same input appears).
+_X = _r("x", "Parent/daughter ratios, e.g. 147Sm/144Nd (one column or one row).")
+_SX = _r("sx", "1 sigma absolute uncertainty of each x (same length as x; > 0).")
+_Y = _r("y", "Daughter ratios, e.g. 143Nd/144Nd (same length as x).")
+_SY = _r("sy", "1 sigma absolute uncertainty of each y (same length as y; > 0).")
+_RHO = _ro("rho", "Optional: error correlation of x and y per point, between -1 and 1 (empty: 0).")
+_TREATMENT = _v("treatment", "Optional scatter treatment: analytical (default), expanded, equal-weights or "
+                             "excess-variance.")
+_SYSTEM = _c("system", "Isotope system: sm-nd, lu-hf or rb-sr.")
+_REFSET = _v("refset", "Optional reference-value set: conventional (default), iupac or jw1980.")
+_FIT_ARGS = (_X, _SX, _Y, _SY, _RHO, _TREATMENT)
+
+FUNCTIONS: Tuple[Function, ...] = (
+    # -- meta --------------------------------------------------------------------------------
+    Function("rdVersion", "RD.VERSION", "meta",
+             "RatioDesk version of the installed extension (and of its engine).", (), "reduction.__version__"),
+    Function("rdEcho", "RD.ECHO", "meta",
+             "Returns its argument unchanged: a check that the extension answers (and the speed floor of "
+             "a cell function).", (_v("value", "Any value or cell."),), "(none)"),
+    # -- isochron (York regression) ------------------------------------------------------------
+    Function("rdIsochronBlock", "RD.ISOCHRON", "isochron",
+             "Isochron by York regression (York et al. 2004) as a labelled block of 2 columns and 16 rows: "
+             "slope, intercept with 1 sigma, their correlation, MSWD, p, n and the 95% limits. Enter as an "
+             "array formula over 16 x 2 cells.", _FIT_ARGS, "regression.fit_isochron", "array"),
+    Function("rdIsochronSlope", "RD.ISOCHRON.SLOPE", "isochron",
+             "Isochron slope and its 1 sigma (one row of 2 cells; a single cell shows the slope).",
+             _FIT_ARGS, "regression.fit_isochron", "array"),
+    Function("rdIsochronIntercept", "RD.ISOCHRON.INTERCEPT", "isochron",
+             "Isochron intercept (the initial ratio) and its 1 sigma (one row of 2 cells).",
+             _FIT_ARGS, "regression.fit_isochron", "array"),
+    Function("rdIsochronMswd", "RD.ISOCHRON.MSWD", "isochron",
+             "MSWD of the isochron fit (undefined for 2 points).", _FIT_ARGS, "regression.fit_isochron"),
+    Function("rdIsochronValue", "RD.ISOCHRON.VALUE", "isochron",
+             "One quantity of the isochron fit, named as in the first column of RD.ISOCHRON (e.g. p, "
+             "rho, slope_95).",
+             (_c("quantity", "Name of the quantity, as in the first column of RD.ISOCHRON."),) + _FIT_ARGS,
+             "regression.fit_isochron"),
+    # -- ages ----------------------------------------------------------------------------------
+    Function("rdAgeIsochron", "RD.AGE.ISOCHRON", "age",
+             "Isochron age in Ma from a York fit: one row of 5 cells: age, 1 sigma (slope only), 1 sigma "
+             "including the decay-constant uncertainty, initial ratio, its 1 sigma.",
+             (_X, _SX, _Y, _SY, _SYSTEM, _RHO, _TREATMENT, _REFSET), "ages.isochron_age", "array"),
+    Function("rdAgeSlope", "RD.AGE.SLOPE", "age",
+             "Age in Ma from an isochron slope: t = ln(1 + slope) / lambda.",
+             (_c("slope", "Isochron slope (> -1)."), _SYSTEM, _REFSET), "ages.age_from_slope"),
+    # -- weighted mean -------------------------------------------------------------------------
+    Function("rdMeanWeighted", "RD.MEAN.WEIGHTED", "mean",
+             "Inverse-variance weighted mean: one row of 4 cells: mean, its 1 sigma, MSWD, p.",
+             (_r("values", "Values to average (one column or one row)."),
+              _r("sigma", "1 sigma absolute uncertainty of each value (> 0)."),
+              _v("external", "Optional: TRUE to add an external scatter, estimated by maximum likelihood, to every "
+                             "sigma (default FALSE).")),
+             "regression.weighted_mean", "array"),
+)
+
+BY_METHOD: Dict[str, Function] = {f.method: f for f in FUNCTIONS}
+BY_DISPLAY: Dict[str, Function] = {f.display.upper(): f for f in FUNCTIONS}

@@ -1,0 +1,240 @@
+"""Cell-function cases shared by the adapter tests (no LibreOffice) and the integration tests.
+
+Each :class:`Case` gives the cells a technician would type (ranges, literals, omitted
+arguments) and the expected cell result computed by calling the engine *directly* (or, for bad
+input, the words the message must contain). ``as_delivered`` turns the cells into the Python
+values LibreOffice hands an add-in (measured with LibreOffice 7.4: a range arrives as a tuple of
+tuples with '' for an empty cell; a single-cell reference to an ``any`` argument arrives as its
+value, 0.0 when empty; an omitted argument as None).
+
+Demo data (invented, rule 3): five fictional garnet/whole-rock fractions of a "Cedar Tarn
+gneiss", forward-modelled from a chosen true Sm-Nd age of 1000 Ma and initial 0.51090 with small
+invented offsets; λ(147Sm) = 6.54e-12 /a (Lugmair & Marti 1978).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Callable, Dict, List, Optional, Sequence, Tuple, Union
+
+import functions as table
+
+import reduction
+from reduction import ages, constants, regression
+
+MARK = table.MESSAGE_MARKER
+
+
+@dataclass(frozen=True)
+class R:
+    """A range of cells placed on the sheet (rows of values; None = empty; Formula = a formula cell)."""
+
+    grid: Tuple[Tuple[Any, ...], ...]
+
+
+@dataclass(frozen=True)
+class Formula:
+    """A formula cell inside a range, with the value it evaluates to (for the adapter tests)."""
+
+    formula: str
+    value: Any
+
+
+@dataclass(frozen=True)
+class L:
+    """A literal typed into the formula (number or text)."""
+
+    value: Any
+
+
+OMIT = None
+
+
+@dataclass(frozen=True)
+class Msg:
+    """Expected: a RatioDesk message (marker first) containing every one of ``parts``."""
+
+    parts: Tuple[str, ...]
+
+
+Expected = Union[Callable[[], Any], Msg]
+
+
+@dataclass(frozen=True)
+class Case:
+    id: str
+    method: str
+    args: Tuple[Any, ...]
+    expect: Expected
+    array: bool = field(default=False)
+
+
+def col(values: Sequence[Any]) -> R:
+    return R(tuple((v,) for v in values))
+
+
+def _cell_value(v: Any) -> Any:
+    if isinstance(v, Formula):
+        v = v.value
+    return "" if v is None else v
+
+
+def as_delivered(method: str, args: Sequence[Any]) -> List[Any]:
+    """The Python values LibreOffice passes for ``args`` to the table's method ``method``."""
+    fn = table.BY_METHOD[method]
+    out: List[Any] = []
+    for spec, a in zip(fn.args, args):
+        if a is OMIT:
+            out.append(None)
+        elif isinstance(a, L):
+            out.append(((a.value,),) if spec.kind in ("range", "cell") else a.value)
+        else:
+            grid = tuple(tuple(_cell_value(v) for v in r) for r in a.grid)
+            single = len(grid) == 1 and len(grid[0]) == 1
+            if spec.kind in ("value", "range_opt") and single:
+                v = grid[0][0]
+                out.append(0.0 if v == "" else v)
+            else:
+                out.append(grid)
+    out += [None] * (len(fn.args) - len(out))
+    return out
+
+
+def grid_of(result: Any) -> Tuple[Tuple[Any, ...], ...]:
+    """A result as rows of cells."""
+    if isinstance(result, tuple):
+        return result
+    return ((result,),)
+
+
+def _close(a: Any, b: Any, rel: float) -> bool:
+    if isinstance(a, float) and isinstance(b, float):
+        return a == b or abs(a - b) <= rel * max(abs(a), abs(b))
+    return a == b
+
+
+def check(case: Case, got: Any, rel: float = 1e-12, want: Any = None) -> Optional[str]:
+    """None when ``got`` (a cell value or rows of cells) matches the case, else what differs.
+
+    ``want`` replaces ``case.expect()`` (the integration tests compute it with the engine in
+    LibreOffice's own Python, whose numpy/scipy versions differ from the venv's).
+    """
+    g = grid_of(got)
+    if isinstance(case.expect, Msg):
+        v = g[0][0]
+        if not isinstance(v, str) or not v.startswith(MARK) or not all(p in v for p in case.expect.parts):
+            return f"expected a message containing {case.expect.parts}, got {v!r}"
+        return None
+    want = grid_of(case.expect() if want is None else want)
+    if len(g) < len(want) or any(len(gr) < len(wr) for gr, wr in zip(g, want)):
+        return f"shape: expected {len(want)}x{len(want[0])}, got {g!r}"
+    for i, wr in enumerate(want):
+        for j, w in enumerate(wr):
+            w = float(w) if isinstance(w, (int, float)) and not isinstance(w, bool) else w
+            if not _close(w, g[i][j], rel):
+                return f"cell ({i + 1},{j + 1}): expected {w!r}, got {g[i][j]!r}"
+    return None
+
+
+# --------------------------------------------------------------------------------------------
+# demo data (invented) and the engine called directly
+# --------------------------------------------------------------------------------------------
+LAM = 6.54e-12
+SLOPE = math.expm1(LAM * 1000e6)
+X = [0.1012, 0.1407, 0.1795, 0.2213, 0.2611]
+OFFSETS = [2.1e-6, -3.0e-6, 0.8e-6, 2.6e-6, -1.9e-6]
+# Rounded as a technician types them (and as .ods/.xlsx store them: 15 significant digits).
+Y = [round(0.51090 + SLOPE * x + d, 8) for x, d in zip(X, OFFSETS)]
+SX = [round(0.002 * x, 9) for x in X]
+SY = [4.0e-6] * 5
+RHO = [0.1, 0.2, 0.0, 0.15, 0.05]
+FIT = (col(X), col(SX), col(Y), col(SY))
+V = [10.02, 10.11, 9.95, 10.07]
+SV = [0.05, 0.04, 0.06, 0.05]
+
+
+def _fit(treatment: str = "analytical", rho: Optional[List[float]] = RHO, n: int = 5) -> Any:
+    return regression.fit_isochron(X[:n], SX[:n], Y[:n], SY[:n], rho[:n] if rho else None, treatment=treatment)
+
+
+def block(f: Any) -> Tuple[Tuple[Any, ...], ...]:
+    lim = f.mswd_limits_95
+    return (("slope", f.slope), ("slope_1s", f.slope_sigma_1s), ("intercept", f.intercept),
+            ("intercept_1s", f.intercept_sigma_1s), ("rho", f.rho_slope_intercept), ("mswd", f.mswd),
+            ("p", f.p_value), ("mswd_low_95", lim[0]), ("mswd_high_95", lim[1]), ("n", f.n), ("dof", f.dof),
+            ("slope_95", f.slope_sigma_95_expanded), ("intercept_95", f.intercept_sigma_95_expanded),
+            ("excess_sy_1s", f.excess_sigma_y_1s), ("sigma_scale", f.sigma_scale), ("treatment", f.treatment))
+
+
+def _age(ref: Optional[str] = None) -> Any:
+    a = ages.isochron_age(_fit(), "sm-nd", constants.reference_set(ref))
+    return ((a.age_ma, a.age_sigma_1s_ma, a.age_sigma_1s_ma_with_lambda, a.initial, a.initial_sigma_1s),)
+
+
+def _wm(external: bool = False) -> Any:
+    m = regression.weighted_mean(V, SV, external_scatter=external)
+    return ((m.mean, m.mean_sigma_1s, m.mswd, m.p_value),)
+
+
+_GAP = [None]
+CASES: List[Case] = [
+    Case("version", "rdVersion", (), lambda: reduction.__version__),
+    Case("echo-number", "rdEcho", (L(2.5),), lambda: 2.5),
+    Case("echo-text", "rdEcho", (L("garnet"),), lambda: "garnet"),
+    Case("isochron-block", "rdIsochronBlock", FIT + (col(RHO),), lambda: block(_fit()), array=True),
+    Case("isochron-block-no-rho", "rdIsochronBlock", FIT, lambda: block(_fit(rho=None)), array=True),
+    Case("isochron-block-expanded", "rdIsochronBlock", FIT + (col(RHO), L("expanded")),
+         lambda: block(_fit("expanded")), array=True),
+    Case("isochron-block-excess", "rdIsochronBlock", FIT + (OMIT, L("excess-variance")),
+         lambda: block(_fit("excess-variance", rho=None)), array=True),
+    Case("isochron-block-equal", "rdIsochronBlock", FIT + (col(RHO), R((("Equal-Weights",),))),
+         lambda: block(_fit("equal-weights")), array=True),
+    Case("isochron-slope", "rdIsochronSlope", FIT + (col(RHO),),
+         lambda: ((_fit().slope, _fit().slope_sigma_1s),), array=True),
+    Case("isochron-intercept", "rdIsochronIntercept", FIT + (col(RHO),),
+         lambda: ((_fit().intercept, _fit().intercept_sigma_1s),), array=True),
+    Case("isochron-mswd", "rdIsochronMswd", FIT + (col(RHO),), lambda: _fit().mswd),
+    Case("isochron-value-p", "rdIsochronValue", (L("p"),) + FIT + (col(RHO),), lambda: _fit().p_value),
+    Case("isochron-value-slope95", "rdIsochronValue", (L("slope_95"),) + FIT,
+         lambda: _fit(rho=None).slope_sigma_95_expanded),
+    Case("isochron-gap-rows-skipped", "rdIsochronSlope",
+         tuple(col(c[:2] + _GAP + c[2:]) for c in (X, SX, Y, SY)),
+         lambda: ((_fit(rho=None).slope, _fit(rho=None).slope_sigma_1s),), array=True),
+    Case("age-isochron", "rdAgeIsochron", FIT + (L("sm-nd"), col(RHO)), _age, array=True),
+    Case("age-isochron-iupac", "rdAgeIsochron", FIT + (L("Sm-Nd"), col(RHO), OMIT, L("iupac")),
+         lambda: _age("iupac"), array=True),
+    Case("age-slope", "rdAgeSlope", (L(SLOPE), L("sm-nd")), lambda: ages.age_from_slope(SLOPE, LAM) / 1e6),
+    Case("mean-weighted", "rdMeanWeighted", (col(V), col(SV)), _wm, array=True),
+    Case("mean-weighted-external", "rdMeanWeighted", (col(V), col(SV), L(True)), lambda: _wm(True), array=True),
+    # cells never lie: readable messages naming the argument and the range row
+    Case("msg-sigma-zero", "rdIsochronSlope", (col(X), col(SX), col(Y), col([4e-6, 4e-6, 0.0, 4e-6, 4e-6])),
+         Msg(("must be > 0", "row 3 of sy")), array=True),
+    Case("msg-sigma-zero-after-gap", "rdIsochronSlope",
+         tuple(col(c[:1] + _GAP + c[1:]) for c in (X, SX, Y, [4e-6, 4e-6, 0.0, 4e-6, 4e-6])),
+         Msg(("must be > 0", "row 4 of sy")), array=True),
+    Case("msg-text-in-range", "rdIsochronMswd", (col([X[0], "n.d."] + X[2:]), col(SX), col(Y), col(SY)),
+         Msg(("row 2 of x", "text", "n.d."))),
+    Case("msg-empty-in-one-range", "rdIsochronMswd", (col(X), col(SX[:3] + [None] + SX[4:]), col(Y), col(SY)),
+         Msg(("row 4 of sx is empty",))),
+    Case("msg-lengths", "rdIsochronMswd", (col(X), col(SX[:4]), col(Y), col(SY)), Msg(("sx has 4 cells",))),
+    Case("msg-passed-on", "rdIsochronMswd",
+         (col(X), col(SX), col(Y), col(SY[:1] + [Formula(f'=RD.ECHO("{MARK}blank run missing")',
+                                                        MARK + "blank run missing")] + SY[2:])),
+         Msg(("from sy: blank run missing",))),
+    Case("msg-mswd-two-points", "rdIsochronMswd", tuple(col(c[:2]) for c in (X, SX, Y, SY)),
+         Msg(("MSWD is undefined for 2 points",))),
+    Case("msg-unknown-treatment", "rdIsochronMswd", FIT + (OMIT, L("robust")), Msg(("unknown treatment",))),
+    Case("msg-unknown-system", "rdAgeIsochron", FIT + (L("u-pb"),), Msg(("unknown isotope system",)), array=True),
+    Case("msg-system-empty", "rdAgeIsochron", FIT + (R(((None,),)),), Msg(("system is required",)), array=True),
+    Case("msg-quantity", "rdIsochronValue", (L("age"),) + FIT, Msg(("quantity 'age' is not one of",))),
+    Case("msg-two-columns", "rdMeanWeighted", (R(((1.0, 2.0), (3.0, 4.0))), col(SV[:2])),
+         Msg(("values must be one column or one row",)), array=True),
+    Case("msg-slope-undefined", "rdAgeSlope", (L(-1.5), L("sm-nd")), Msg(("undefined", "slope"))),
+]
+
+BY_ID: Dict[str, Case] = {c.id: c for c in CASES}
+
+
+def expected_all() -> Dict[str, Any]:
+    """Every case's expected grid from the engine called directly (None for message cases)."""
+    return {c.id: None if isinstance(c.expect, Msg) else [list(r) for r in grid_of(c.expect())] for c in CASES}
