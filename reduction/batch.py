@@ -140,13 +140,11 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
     def cell(sheet: str, row: int, col: int) -> Any:
         return ev.cells.get((sheet, row, col), "")
 
-    header = tuple(c.header for c in RESULTS.columns if c.key not in ("check",))
-    idx = [j for j, c in enumerate(RESULTS.columns) if c.key not in ("check",)]
     rows = []
     for row in range(FIRST_ROW, RESULTS.last_row + 1):
         if cell("Results", row, 0) in ("", None):
             continue
-        rows.append(tuple(cell("Results", row, j) for j in idx))
+        rows.append({c.key: cell("Results", row, j) for j, c in enumerate(RESULTS.columns)})
     panels = []
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         col = ISOCHRON_SUMMARY_COL + 1 + k
@@ -170,8 +168,9 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
                        for r in constants)
     spike_rows = tuple(tuple(s.get(k, "") for k in ("spike", "element", "calibrated", "spike_isotope", "conc_umol_g",
                                                      "conc_sigma_1s")) for s in tables.get("Spikes", ()))
-    return ReportData(os.path.basename(data.path), os.path.basename(data.path), __version__, now, header,
-                      tuple(rows), tuple(panels), const_rows, spike_rows, tuple(ev.warnings))
+    name = os.path.basename(data.path)
+    return ReportData(name, name, __version__, now, tuple(rows), tuple(panels), const_rows, spike_rows,
+                      tuple(ev.warnings))
 
 
 def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str], None]) -> List[Tuple[Any, ...]]:

@@ -183,8 +183,8 @@ def _measured_mixtures(fr: DemoFraction, betas: Mapping[str, float]) -> Dict[str
         blank_ratios = {system.daughter_ratio: BLANK_DAUGHTER_RATIO[el]} if el in BLANK_DAUGHTER_RATIO else {}
         blank_umol = blank_ng * 1e-3 / _molar_mass(_composition(el, ref, blank_ratios))
         out[el] = forward_mixture(el, ref, conc, fr.sample_mass_g, spikes[(label, el)], fr.spike_mass_g,
-                                  sample_ratios=_sample_ratios(el, ref, ratios) or None, bias_factor=betas[el], blank_umol=blank_umol,
-                                  blank_ratios=blank_ratios or None)
+                                  sample_ratios=_sample_ratios(el, ref, ratios) or None, bias_factor=betas[el],
+                                  blank_umol=blank_umol, blank_ratios=blank_ratios or None)
     return out
 
 

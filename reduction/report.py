@@ -36,8 +36,7 @@ class ReportData:
     source: str
     version: str
     date: str
-    results_header: Tuple[str, ...]
-    results_rows: Tuple[Tuple[Any, ...], ...]
+    results: Tuple[Mapping[str, Any], ...]     # one dict per analysis, keyed by the Results column keys
     isochrons: Tuple[IsochronPanel, ...]
     constants: Tuple[Tuple[str, str, Any, Any, str, str], ...]
     spikes: Tuple[Tuple[Any, ...], ...]
@@ -53,6 +52,39 @@ def _fmt(v: Any, nd: int = 6) -> str:
             return f"{v:.3e}"
         return f"{v:.{nd}g}"
     return str(v)
+
+
+def _dec(v: Any, nd: int) -> str:
+    if isinstance(v, float):
+        return f"{v:.{nd}f}"
+    return str(v)
+
+
+def _sci(v: Any, nd: int = 2) -> str:
+    if isinstance(v, float):
+        return f"{v:.{nd}e}"
+    return str(v)
+
+
+# Result tables of the report: (key, header, formatter)
+_TABLE_CONC = (("analysis", "Analysis", str), ("sample", "Sample", str), ("fraction", "Fraction", str),
+               ("system", "System", str), ("parent_conc", "Parent\n(µg/g)", lambda v: _dec(v, 4)),
+               ("parent_conc_1s", "±1σ abs\n(total)", lambda v: _dec(v, 4)),
+               ("daughter_conc", "Daughter\n(µg/g)", lambda v: _dec(v, 4)),
+               ("daughter_conc_1s", "±1σ abs\n(total)", lambda v: _dec(v, 4)),
+               ("blank_share", "Daughter blank\n(% of total)", lambda v: _dec(v, 3)),
+               ("check", "Check", str))
+_TABLE_RATIOS = (("analysis", "Analysis", str), ("x", "P/D ratio", lambda v: _dec(v, 6)),
+                 ("x_1s", "±1σ abs\n(random)", _sci), ("x_2s_pct", "±2σ %\n(random)", lambda v: _dec(v, 3)),
+                 ("x_1s_total", "±1σ abs\n(total)", _sci), ("y", "D ratio", lambda v: _dec(v, 7)),
+                 ("y_1s", "±1σ abs\n(random)", _sci), ("y_2s_ppm", "±2σ ppm\n(random)", lambda v: _dec(v, 1)),
+                 ("y_1s_total", "±1σ abs\n(total)", _sci), ("rho", "ρ\n(random)", lambda v: _dec(v, 3)),
+                 ("eps0", "ε today", lambda v: _dec(v, 2)), ("eps0_2s", "±2σ abs", lambda v: _dec(v, 2)))
+_ISO_FMT = {"n": lambda v: _dec(v, 0), "age": lambda v: _dec(v, 2), "age_2s": lambda v: _dec(v, 2),
+            "age_2s_lambda": lambda v: _dec(v, 2), "age_95": lambda v: _dec(v, 2),
+            "initial": lambda v: _dec(v, 7), "initial_2s": lambda v: _dec(v, 7), "eps_t": lambda v: _dec(v, 2),
+            "eps_t_2s": lambda v: _dec(v, 2), "mswd": lambda v: _dec(v, 2), "p": lambda v: _dec(v, 3),
+            "slope": lambda v: _dec(v, 8), "slope_1s": _sci}
 
 
 def _axis_labels(system: str) -> Tuple[str, str]:
@@ -100,6 +132,7 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
         face = "#4c72b0" if used else "none"
         ax.add_patch(Polygon(np.column_stack([ex, ey]), closed=True, facecolor=face, alpha=0.55 if used else 1,
                              edgecolor="#1f3a68" if used else "#999999", lw=0.8))
+        ax.plot([x], [y], marker="o", ms=3, color="#1f3a68" if used else "#999999")
         ax.annotate(aid, (x, y), xytext=(6, -10), textcoords="offset points", fontsize=7, color="#333333")
         if have_fit:
             dev = (ey - (inter + slope * ex)) / (inter + slope * ex) * 1e6
@@ -148,7 +181,7 @@ def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Seq
         fig.text(0.04, 0.96, title + (f" (continued {k + 1})" if k else ""), fontsize=12, weight="bold")
         ax = fig.add_axes((0.03, 0.12, 0.94, 0.80))
         ax.axis("off")
-        cells = [[_fmt(v) for v in r] for r in chunk] or [["" for _ in header]]
+        cells = [[v if isinstance(v, str) else _fmt(v) for v in r] for r in chunk] or [["" for _ in header]]
         tab = ax.table(cellText=cells, colLabels=list(header), loc="upper center", cellLoc="right",
                        colWidths=list(col_widths) if col_widths else None)
         tab.auto_set_font_size(False)
@@ -160,12 +193,15 @@ def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Seq
                 cell.set_facecolor("#e8e8e8")
                 cell.set_text_props(weight="bold", wrap=True)
                 cell.set_height(cell.get_height() * 2.2)
-        y = 0.10
+        import textwrap
+
+        y = 0.095
         for n in notes:
-            fig.text(0.04, y, n, fontsize=7, wrap=True)
-            y -= 0.022
-        fig.text(0.5, 0.01, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center", fontsize=7,
-                 color="#666666")
+            lines = textwrap.wrap(n, 190 if landscape else 130)
+            fig.text(0.04, y, "\n".join(lines), fontsize=7, va="top")
+            y -= 0.018 * len(lines) + 0.008
+        fig.text(0.5, 0.005, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center",
+                 fontsize=7, color="#666666")
         pdf.savefig(fig)
         plt.close(fig)
 
@@ -181,21 +217,25 @@ def write_report(data: ReportData, path: Any) -> None:
     with PdfPages(str(path), metadata=meta) as pdf:
         for p in data.isochrons:
             _isochron_page(pdf, p, data)
-        _table_pages(pdf, "Results per analysis", data.results_header, data.results_rows, data,
-                     notes=("Parent/daughter ratio: 147Sm/144Nd or 176Lu/177Hf; daughter ratio: 143Nd/144Nd or "
-                            "176Hf/177Hf. 1σ abs = one standard deviation, absolute; 2σ (%) / (ppm) = two "
-                            "standard deviations, relative. ρ = error correlation of the two ratios.",
-                            CAUTION) + tuple(data.notes))
-        iso_rows: List[Tuple[Any, ...]] = []
+        legend = ("Parent/daughter (P/D) ratio: 147Sm/144Nd or 176Lu/177Hf; daughter (D) ratio: 143Nd/144Nd or "
+                  "176Hf/177Hf. 1σ abs = one standard deviation, absolute; 2σ % / ppm = two standard deviations, "
+                  "relative. Random = measurement (isochron input); total adds spike calibration and accepted value.",
+                  CAUTION)
+        for title, spec, widths in (("Concentrations per analysis", _TABLE_CONC, None),
+                                    ("Isochron inputs per analysis", _TABLE_RATIOS, None)):
+            rows = [tuple(f(r.get(k, "")) for k, _h, f in spec) for r in data.results]
+            _table_pages(pdf, title, tuple(h for _k, h, _f in spec), rows, data, col_widths=widths, fontsize=7,
+                         notes=legend + tuple(data.notes))
         from .workbook import ISOCHRON_QUANTITIES
 
+        iso_rows: List[Tuple[Any, ...]] = []
         for q, label, unit in ISOCHRON_QUANTITIES:
-            iso_rows.append((label, *[p.summary.get(q, "") for p in data.isochrons], unit))
+            fmt = _ISO_FMT.get(q, str)
+            iso_rows.append((label, *[fmt(p.summary.get(q, "")) for p in data.isochrons], unit))
         _table_pages(pdf, "Isochron summaries", ("Quantity", *[p.system for p in data.isochrons], "Unit / level"),
-                     iso_rows, data, col_widths=(0.32, 0.2, 0.2, 0.28)[: 2 + len(data.isochrons)] if
-                     len(data.isochrons) == 2 else None, fontsize=8, landscape=False,
+                     iso_rows, data, fontsize=8, landscape=False,
                      notes=("Fit: York et al. 2004 (Am. J. Phys. 72, 367). Scatter treatment as stated on each "
-                            "isochron page.", CAUTION))
+                            "isochron page. Ages use the decay constants listed under reference values.", CAUTION))
         _table_pages(pdf, "Reference values used (Constants sheet)", ("Key", "Quantity", "Value", "1σ (abs)", "Unit",
                                                                       "Source"), data.constants, data,
                      col_widths=(0.14, 0.18, 0.1, 0.08, 0.06, 0.44), fontsize=6, notes=(CAUTION,))
