@@ -87,7 +87,7 @@ class Stripped:
 
 def _beam(name: str, x: Any) -> np.ndarray:
     try:
-        a = np.array(x, dtype=float)
+        a = np.asarray(x, dtype=float)  # read only; results are new arrays
     except (TypeError, ValueError):
         raise InputError(name, "could not be read as numbers") from None
     if np.any(np.isinf(a)):
@@ -148,7 +148,9 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
         rel = corr / t
     if out.ndim == 0:
         return Stripped(float(out), float(corr), float(rel))
-    return Stripped(out, np.broadcast_to(corr, out.shape).copy(), rel)
+    if corr.shape != out.shape:
+        corr = np.broadcast_to(corr, out.shape).copy()
+    return Stripped(out, corr, rel)
 
 
 @dataclass(frozen=True)
@@ -197,7 +199,7 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
     BeamStrip
     """
     sysm = get_system(system)
-    work: Dict[str, np.ndarray] = {k: _beam(f"beams[{k!r}]", v) for k, v in beams.items()}
+    work: Dict[str, np.ndarray] = {k: np.array(_beam(f"beams[{k!r}]", v)) for k, v in beams.items()}
     factors = dict(bias_factors or {})
     corrections: Dict[str, np.ndarray] = {}
     rel_mean: Dict[str, Any] = {}

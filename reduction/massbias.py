@@ -56,9 +56,9 @@ def _positive(name: str, x: Any) -> np.ndarray:
         a = np.asarray(x, dtype=float)
     except (TypeError, ValueError):
         raise InputError(name, "could not be read as numbers") from None
-    if not np.all(np.isfinite(a)):
-        raise InputError(name, "must be finite numbers (got NaN or inf)")
-    if np.any(a <= 0):
+    if not ((a > 0).all() and np.isfinite(a.sum())):  # two fast passes; NaN fails the first, inf the second
+        if not np.all(np.isfinite(a)):
+            raise InputError(name, "must be finite numbers (got NaN or inf)")
         bad = a.ravel()[int(np.flatnonzero(a.ravel() <= 0)[0])]
         raise InputError(name, f"must be > 0, got {bad!r}")
     return a
@@ -103,7 +103,7 @@ def _check_masses(mass_num: Any, mass_den: Any) -> Tuple[np.ndarray, np.ndarray]
 def _gain(mi: np.ndarray, mj: np.ndarray, factor: np.ndarray, law: str) -> np.ndarray:
     """Multiplier g with R_true = g · R_measured."""
     if law == "exponential":
-        return (mi / mj) ** factor
+        return np.exp(factor * np.log(mi / mj))
     if law == "power":
         base = 1.0 + factor
         if np.any(base <= 0):
