@@ -40,6 +40,8 @@ __all__ = [
 #: Scatter treatments understood by :func:`fit_isochron` (names of our own).
 TREATMENTS: Tuple[str, ...] = ("analytical", "expanded", "equal-weights", "excess-variance")
 
+_CHUNK_VALUES = 65536   # values per array in one batch chunk (512 kB: fastest in bench_regression)
+_BLAS_MAX = 4096  # below this length a single fit uses np.dot for its sums
 _ATOL = 1e-300  # absolute floor of the convergence test, only matters for a slope of exactly 0
 
 
@@ -184,119 +186,170 @@ def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = Fals
 
 
 # --------------------------------------------------------------------------------------------
-# York core (works on the last axis, so one code path serves a single fit and a batch)
+# York core: points on axis 0, so one code path serves a single fit (n,) and a batch (n, m).
+# The loop works in preallocated buffers (in-place ufuncs): for large n, fresh temporaries cost
+# more than the arithmetic.
 # --------------------------------------------------------------------------------------------
+class _Work:
+    """Per-iteration arrays of the York solver for one working set of datasets."""
+
+    def __init__(self, x: np.ndarray, vx: np.ndarray, y: np.ndarray, vy: np.ndarray, c: np.ndarray,
+                 has_rho: bool) -> None:
+        self.x, self.vx, self.y, self.vy, self.c = x, vx, y, vy, c
+        self.c2 = 2.0 * c if has_rho else None
+        self.has_rho = has_rho
+        self.d = np.empty_like(x)
+        self.w = np.empty_like(x)
+        self.u = np.empty_like(x)
+        self.v = np.empty_like(x)
+        self.t = np.empty_like(x)
+        self.tmp = np.empty_like(x)
+        self.e = np.empty_like(x)
+        self.sw: Any = None
+        self.xb: Any = None
+        self.yb: Any = None
+
+    def take(self, keep: np.ndarray) -> _Work:
+        return _Work(self.x[:, keep], self.vx[:, keep], self.y[:, keep], self.vy[:, keep], self.c[:, keep],
+                     self.has_rho)
+
+    def wsum(self, a: np.ndarray, b: np.ndarray) -> Any:
+        # BLAS dot for short vectors only: a threaded dot stalls on a busy machine
+        if a.ndim == 1 and a.size < _BLAS_MAX:
+            return a @ b
+        np.multiply(a, b, out=self.tmp)
+        return np.add.reduce(self.tmp, axis=0)
+
+    def update(self, b: Any) -> Any:
+        """York's slope update g(b) = Σ W β V / Σ W β U (York et al. 2004, eqs. 13a and 18)."""
+        d, w, u, v, t, tmp = self.d, self.w, self.u, self.v, self.t, self.tmp
+        # W = 1/(σy² + b²σx² − 2bρσxσy)
+        np.multiply(self.vx, b, out=d)
+        if self.has_rho:
+            d -= self.c2
+        d *= b
+        d += self.vy
+        np.divide(1.0, d, out=w)
+        self.sw = sw = np.add.reduce(w, axis=0)
+        self.xb = xb = self.wsum(w, self.x) / sw
+        self.yb = yb = self.wsum(w, self.y) / sw
+        np.subtract(self.x, xb, out=u)
+        np.subtract(self.y, yb, out=v)
+        # W β = W² [U σy² + b V σx² − (bU + V) ρσxσy]
+        np.multiply(u, self.vy, out=t)
+        np.multiply(v, self.vx, out=tmp)
+        tmp *= b
+        t += tmp
+        if self.has_rho:
+            np.multiply(u, b, out=tmp)
+            tmp += v
+            tmp *= self.c
+            t -= tmp
+        t *= w
+        t *= w
+        return self.wsum(t, v) / self.wsum(t, u)
+
+
 def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r: np.ndarray,
-                max_iter: int, rtol: float) -> Tuple[np.ndarray, ...]:
+                max_iter: int, rtol: float) -> Tuple[Any, ...]:
     """Iterate York's slope equation; return (slope, intercept, σb, σa, cov_ab, S, iterations, x̄, ȳ).
 
-    Arrays have the points on the last axis (shape ``(n,)`` or ``(m, n)``).
+    Arrays have the points on axis 0: shape ``(n,)`` for one dataset, ``(n, m)`` for m datasets.
     """
     add = np.add.reduce
+    batch = x.ndim == 2
+    n = x.shape[0]
+    has_rho = bool(r.any())
     vx = sx * sx
     vy = sy * sy
-    cxy = r * sx * sy
+    cxy = r * sx * sy if has_rho else r
+    work = _Work(x, vx, y, vy, cxy, has_rho)
     # start from ordinary least squares of y on x (York et al. 2004, step 1)
-    xm = add(x, axis=-1) / x.shape[-1]
-    ym = add(y, axis=-1) / y.shape[-1]
-    dx = x - xm[..., None]
-    sxx = add(dx * dx, axis=-1)
+    dx = np.subtract(x, add(x, axis=0) / n, out=work.u)
+    sxx = work.wsum(dx, dx)
     if np.any(sxx <= 0):
         raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
-    b = add(dx * (y - ym[..., None]), axis=-1) / sxx
+    b = work.wsum(dx, y) / sxx
 
-    batch = x.ndim == 2
-    if batch:
-        def dot(p: np.ndarray, q: np.ndarray) -> np.ndarray:
-            return add(p * q, axis=-1)
-    else:
-        dot = np.dot
-    iterations = np.zeros(b.shape, dtype=int) if batch else 0
-    idx = np.arange(b.shape[0]) if batch else None
-    wx, wsx, wy, wsy, wr = x, vx, y, vy, cxy   # working set (compacted in batch mode)
-    bw = b if batch else float(b)
-    b_prev = h_prev = None
-    fin = np.zeros(b.shape, dtype=bool)
-    for _ in range(max_iter):
-        bb = bw[..., None] if batch else bw
-        # with A = σy² − bρσxσy and B = bσx² − ρσxσy: W = 1/(A + bB), β = W(UA + VB)
-        aa = wsy - bb * wr
-        bq = bb * wsx - wr
-        w = 1.0 / (aa + bb * bq)
-        sw = add(w, axis=-1)
-        xb = dot(w, wx) / sw
-        yb = dot(w, wy) / sw
-        u = wx - (xb[..., None] if batch else xb)
-        v = wy - (yb[..., None] if batch else yb)
-        wb = w * w * (u * aa + v * bq)
-        g = dot(wb, v) / dot(wb, u)          # York's update of the slope
-        h = g - bw
-        # next iterate: secant step on h(b) = g(b) - b (same fixed point, fewer steps), or
-        # York's plain update where the secant is undefined or would step further than 4 updates
-        if not batch:
-            g = float(g)
-            h = float(h)
+    if not batch:
+        bw = float(b)
+        b_prev = h_prev = None
+        iterations: Any = 0
+        for _ in range(max_iter):
+            g = float(work.update(bw))
+            h = g - bw
             iterations += 1
             if abs(h) <= rtol * abs(g) + _ATOL:
                 b = g
                 break
+            # secant step on h(b) = g(b) − b (same fixed point, fewer steps); York's plain update
+            # where the secant is undefined or would step further than 4 plain updates
             nxt = g
             if h_prev is not None and h != h_prev:
                 sec = bw - h * (bw - b_prev) / (h - h_prev)
                 if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h):
                     nxt = sec
             b_prev, h_prev, bw = bw, h, nxt
-            continue
-        done = abs(h) <= rtol * abs(g) + _ATOL
-        if h_prev is None:
-            nxt = g
         else:
-            with np.errstate(divide="ignore", invalid="ignore"):
-                sec = bw - h * (bw - b_prev) / (h - h_prev)
-            ok = np.isfinite(sec) & (abs(sec - bw) <= 4.0 * abs(h))
-            nxt = np.where(ok, sec, g)
-        iterations[idx] += ~fin
-        b[idx] = np.where(fin, b[idx], g)
-        fin = fin | done
-        if fin.all():
-            break
-        b_prev, h_prev = bw, h
-        bw = np.where(fin, bw, nxt)
-        if fin.sum() * 2 > fin.size:   # most rows have converged: drop them from the working set
-            keep = ~fin
-            idx = idx[keep]
-            wx, wsx, wy, wsy, wr = wx[keep], wsx[keep], wy[keep], wsy[keep], wr[keep]
-            bw, b_prev, h_prev, fin = bw[keep], b_prev[keep], h_prev[keep], fin[keep]
+            raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
+        if not math.isfinite(b):
+            raise UndefinedResultError("the York slope is not finite (degenerate data)")
     else:
-        raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
-    if not np.all(np.isfinite(b)):
-        raise UndefinedResultError("the York slope is not finite (degenerate data)")
+        m = b.shape[0]
+        iterations = np.zeros(m, dtype=int)
+        idx = np.arange(m)
+        bw = b.copy()
+        bp = hp = None
+        fin = np.zeros(m, dtype=bool)
+        for _ in range(max_iter):
+            g = work.update(bw)
+            h = g - bw
+            done = np.abs(h) <= rtol * np.abs(g) + _ATOL
+            if hp is None:
+                nxt = g
+            else:
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    sec = bw - h * (bw - bp) / (h - hp)
+                ok = np.isfinite(sec) & (np.abs(sec - bw) <= 4.0 * np.abs(h))
+                nxt = np.where(ok, sec, g)
+            iterations[idx] += ~fin
+            b[idx] = np.where(fin, b[idx], g)
+            fin = fin | done
+            if fin.all():
+                break
+            bp, hp = bw, h
+            bw = np.where(fin, bw, nxt)
+            if fin.sum() * 2 > fin.size:   # most datasets have converged: drop them from the working set
+                keep = ~fin
+                idx = idx[keep]
+                work = work.take(keep)
+                bw, bp, hp, fin = bw[keep], bp[keep], hp[keep], fin[keep]
+        else:
+            raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
+        if not np.all(np.isfinite(b)):
+            raise UndefinedResultError("the York slope is not finite (degenerate data)")
 
     # final quantities at the converged slope (York et al. 2004, steps 5-8)
-    def col(z: Any) -> Any:
-        return z[..., None] if batch else z
-
-    bb = col(b)
-    aa = vy - bb * cxy
-    bq = bb * vx - cxy
-    w = 1.0 / (aa + bb * bq)
-    sw = add(w, axis=-1)
-    xbar = dot(w, x) / sw
-    ybar = dot(w, y) / sw
-    u = x - col(xbar)
-    v = y - col(ybar)
-    beta = w * (u * aa + v * bq)
+    if work.x.shape != x.shape:
+        work = _Work(x, vx, y, vy, cxy, has_rho)
+    work.update(b)
+    w, u, v, e, d = work.w, work.u, work.v, work.e, work.d
+    sw, xbar, ybar = work.sw, work.xb, work.yb
     a = ybar - b * xbar
-    xadj_bar = xbar + dot(w, beta) / sw
-    uu = col(xbar - xadj_bar) + beta
-    swuu = dot(w, uu * uu)
+    np.multiply(u, b, out=e)
+    np.subtract(v, e, out=e)            # y − b x − a, since a = ȳ − b x̄
+    np.multiply(e, e, out=e)
+    s = work.wsum(w, e)
+    beta = np.divide(work.t, w, out=work.t)             # β = (W β)/W
+    xadj_bar = xbar + work.wsum(w, beta) / sw           # weighted mean of the adjusted x
+    np.add(beta, xbar - xadj_bar, out=d)                # adjusted x minus its mean
+    np.multiply(d, d, out=d)
+    swuu = work.wsum(w, d)
     if np.any(swuu <= 0):
         raise UndefinedResultError("all adjusted x values are equal: the slope error is undefined")
     var_b = 1.0 / swuu
     var_a = 1.0 / sw + xadj_bar * xadj_bar * var_b
     cov_ab = -xadj_bar * var_b
-    res = v - bb * u     # y - b x - a, since a = ȳ - b x̄
-    s = dot(w, res * res)
     return b, a, np.sqrt(var_b), np.sqrt(var_a), cov_ab, s, iterations, xbar, ybar
 
 
@@ -469,8 +522,19 @@ def york_fit_batch(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_ite
     xa, sxa, ya, sya, ra = _check_points(x, sx, y, sy, rho, ndim=2)
     if xa.shape[1] < 3:
         raise InputError("x", f"each dataset needs at least 3 points, got {xa.shape[1]}")
-    b, a, sb, sa, cab, s, it, _, _ = _york_solve(xa, sxa, ya, sya, ra, max_iter, rtol)
-    return YorkBatch(b, sb, a, sa, cab, s / (xa.shape[1] - 2), it)
+    m, n = xa.shape
+    out = [np.empty(m) for _ in range(6)]
+    its = np.empty(m, dtype=int)
+    # chunks of datasets small enough for the working arrays to stay in cache
+    chunk = max(256, _CHUNK_VALUES // n)
+    for i in range(0, m, chunk):
+        j = min(m, i + chunk)
+        res = _york_solve(*(np.ascontiguousarray(z[i:j].T) for z in (xa, sxa, ya, sya, ra)), max_iter, rtol)
+        for k in range(6):
+            out[k][i:j] = res[k]
+        its[i:j] = res[6]
+    b, a, sb, sa, cab, s = out
+    return YorkBatch(b, sb, a, sa, cab, s / (n - 2), its)
 
 
 def _equal_weights(xa: np.ndarray, ya: np.ndarray) -> Tuple[float, float, float, float, float]:
