@@ -401,14 +401,18 @@ def rdEcho(value: Any = None) -> Any:
 _FIT_NAMES = ("x", "sx", "y", "sy", "rho")
 
 
-def fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any, treatment: Any) -> Any:
+def fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any, treatment: Any, anchor: Any = None,
+        anchorSigma: Any = None) -> Any:
     """The engine's isochron fit of the cells (cached by inputs)."""
     cols, kept = columns(list(zip(_FIT_NAMES, (x, sx, y, sy, rho))), optional=("rho",))
     tr = text("treatment", treatment, "analytical")
-    key = (tuple(tuple(c) if c is not None else None for c in cols.values()), tr, tuple(kept))
+    anc = None
+    if anchor is not None or anchorSigma is not None:
+        anc = (number("anchor", anchor), number("anchorSigma", anchorSigma))
+    key = (tuple(tuple(c) if c is not None else None for c in cols.values()), tr, tuple(kept), anc)
     reg = engine("regression")
     return FIT_CACHE.get(key, lambda: call(reg.fit_isochron, kept, cols["x"], cols["sx"], cols["y"], cols["sy"],
-                                           cols["rho"], treatment=tr))
+                                           cols["rho"], treatment=tr, anchor=anc))
 
 
 _N2 = "undefined for 2 points (no degrees of freedom)"
@@ -436,35 +440,40 @@ _FIT_FIELDS = {label: (get, why) for label, get, why in FIT_BLOCK}
 
 
 @cell_function(array=True)
-def rdIsochronBlock(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
-    f = fit(x, sx, y, sy, rho, treatment)
+def rdIsochronBlock(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None,
+                    anchor: Any = None, anchorSigma: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment, anchor, anchorSigma)
     return tuple((label, cell(get(f), why or "undefined")) for label, get, why in FIT_BLOCK)
 
 
 @cell_function(array=True)
-def rdIsochronSlope(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
-    f = fit(x, sx, y, sy, rho, treatment)
+def rdIsochronSlope(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None,
+                    anchor: Any = None, anchorSigma: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment, anchor, anchorSigma)
     return row(cell(f.slope), cell(f.slope_sigma_1s))
 
 
 @cell_function(array=True)
-def rdIsochronIntercept(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
-    f = fit(x, sx, y, sy, rho, treatment)
+def rdIsochronIntercept(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None,
+                    anchor: Any = None, anchorSigma: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment, anchor, anchorSigma)
     return row(cell(f.intercept), cell(f.intercept_sigma_1s))
 
 
 @cell_function()
-def rdIsochronMswd(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
-    return cell(fit(x, sx, y, sy, rho, treatment).mswd, "MSWD is " + _N2)
+def rdIsochronMswd(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None, anchor: Any = None,
+                   anchorSigma: Any = None) -> Any:
+    return cell(fit(x, sx, y, sy, rho, treatment, anchor, anchorSigma).mswd, "MSWD is " + _N2)
 
 
 @cell_function()
-def rdIsochronValue(quantity: Any, x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None) -> Any:
+def rdIsochronValue(quantity: Any, x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, treatment: Any = None,
+                    anchor: Any = None, anchorSigma: Any = None) -> Any:
     q = text("quantity", quantity)
     if q not in _FIT_FIELDS:
         raise CellMessage(f"quantity {q!r} is not one of {', '.join(_FIT_FIELDS)}")
     get, why = _FIT_FIELDS[q]
-    return cell(get(fit(x, sx, y, sy, rho, treatment)), f"{q} is {why or 'undefined'}")
+    return cell(get(fit(x, sx, y, sy, rho, treatment, anchor, anchorSigma)), f"{q} is {why or 'undefined'}")
 
 
 # --------------------------------------------------------------------------------------------
@@ -478,11 +487,59 @@ def reference(refset: Any) -> Any:
 
 @cell_function(array=True)
 def rdAgeIsochron(x: Any, sx: Any, y: Any, sy: Any, system: Any, rho: Any = None, treatment: Any = None,
-                  refset: Any = None) -> Any:
-    f = fit(x, sx, y, sy, rho, treatment)
-    a = engine("ages").isochron_age(f, text("system", system), reference(refset))
+                  refset: Any = None, anchor: Any = None, anchorSigma: Any = None) -> Any:
+    f = fit(x, sx, y, sy, rho, treatment, anchor, anchorSigma)
+    return _age_row(engine("ages").isochron_age(f, text("system", system), reference(refset)))
+
+
+def _age_row(a: Any) -> Any:
     return row(cell(a.age_ma), cell(a.age_sigma_1s_ma), cell(a.age_sigma_1s_ma_with_lambda), cell(a.initial),
                cell(a.initial_sigma_1s))
+
+
+def point(name: str, grid: Any) -> List[float]:
+    """x, sx, y, sy, rho of one point from one row (or column) of 4 or 5 cells (rho empty: 0)."""
+    cells_ = _cells(name, grid)
+    if len(cells_) not in (4, 5):
+        raise CellMessage(f"{name} must be 4 or 5 cells (x, sx, y, sy, rho), got {len(cells_)}")
+    out = [number(f"{part} of {name}", v) for part, v in zip(("x", "sx", "y", "sy"), cells_)]
+    out.append(number(f"rho of {name}", cells_[4], 0.0) if len(cells_) == 5 else 0.0)
+    return out
+
+
+@cell_function(array=True)
+def rdAgeTwoPoint(point1: Any, point2: Any, system: Any, refset: Any = None) -> Any:
+    x1, sx1, y1, sy1, r1 = point("point1", point1)
+    x2, sx2, y2, sy2, r2 = point("point2", point2)
+    return _age_row(engine("ages").two_point_age(x1, sx1, y1, sy1, x2, sx2, y2, sy2, text("system", system),
+                                                 reference(refset), rho1=r1, rho2=r2))
+
+
+@cell_function(array=True, rename={"daughter_ratio": "daughter", "daughter_sigma_1s": "daughterSigma",
+                                   "parent_ratio": "parent", "parent_sigma_1s": "parentSigma", "t_ma": "tMa"})
+def rdAgeModel(daughter: Any, daughterSigma: Any, parent: Any, parentSigma: Any, system: Any, reservoir: Any = None,
+               rho: Any = None, refset: Any = None) -> Any:
+    m = engine("ages").model_age(number("daughter", daughter), number("daughterSigma", daughterSigma),
+                                 number("parent", parent), number("parentSigma", parentSigma), text("system", system),
+                                 text("reservoir", reservoir, "chur"), reference(refset), number("rho", rho, 0.0))
+    return row(cell(m.age_ma), cell(m.age_sigma_1s_ma))
+
+
+@cell_function(rename={"daughter_ratio": "daughter", "parent_ratio": "parent", "t_ma": "tMa"})
+def rdInitialRatio(daughter: Any, parent: Any, tMa: Any, system: Any, refset: Any = None) -> Any:
+    return cell(engine("ages").initial_ratio(number("daughter", daughter), number("parent", parent),
+                                             number("tMa", tMa), text("system", system), reference(refset)))
+
+
+@cell_function(array=True, rename={"daughter_ratio": "daughter", "daughter_sigma_1s": "daughterSigma",
+                                   "parent_ratio": "parent", "parent_sigma_1s": "parentSigma", "t_ma": "tMa"})
+def rdEpsilon(daughter: Any, daughterSigma: Any, parent: Any, tMa: Any, system: Any, parentSigma: Any = None,
+              rho: Any = None, refset: Any = None, withReference: Any = None) -> Any:
+    e = engine("ages").epsilon(number("daughter", daughter), number("daughterSigma", daughterSigma),
+                               number("parent", parent), number("tMa", tMa), text("system", system),
+                               reference(refset), number("parentSigma", parentSigma, 0.0), number("rho", rho, 0.0),
+                               include_reference=flag("withReference", withReference))
+    return row(cell(e.value), cell(e.sigma_1s))
 
 
 @cell_function()
@@ -504,3 +561,17 @@ def rdMeanWeighted(values: Any, sigma: Any, external: Any = None) -> Any:
              external_scatter=flag("external", external))
     return row(cell(m.mean), cell(m.mean_sigma_1s), cell(m.mswd, "MSWD is undefined for 1 value"),
                cell(m.p_value, "p is undefined for 1 value"))
+
+
+# --------------------------------------------------------------------------------------------
+# error ellipse
+# --------------------------------------------------------------------------------------------
+@cell_function(array=True, rename={"n_points": "points"})
+def rdEllipse(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, points: Any = None, confidence: Any = None) -> Any:
+    n = number("points", points, 48.0)
+    if n != int(n):
+        raise CellMessage(f"points must be a whole number, got {n!r}")
+    xs, ys = engine("regression").ellipse_points(number("x", x), number("sx", sx), number("y", y), number("sy", sy),
+                                                 number("rho", rho, 0.0), n_points=int(n),
+                                                 confidence=number("confidence", confidence, 0.95))
+    return tuple((float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist()))

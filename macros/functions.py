@@ -119,7 +119,14 @@ _TREATMENT = _v("treatment", "Optional scatter treatment: analytical (default), 
                              "excess-variance.")
 _SYSTEM = _c("system", "Isotope system: sm-nd, lu-hf or rb-sr.")
 _REFSET = _v("refset", "Optional reference-value set: conventional (default), iupac or jw1980.")
-_FIT_ARGS = (_X, _SX, _Y, _SY, _RHO, _TREATMENT)
+_ANCHOR = _v("anchor", "Optional: a fixed initial ratio the line must pass through (with anchorSigma).")
+_ANCHOR_1S = _v("anchorSigma", "Optional: 1 sigma of the anchor (> 0; needed with anchor).")
+_FIT_ARGS = (_X, _SX, _Y, _SY, _RHO, _TREATMENT, _ANCHOR, _ANCHOR_1S)
+_D = _c("daughter", "Measured daughter ratio today, e.g. 143Nd/144Nd.")
+_D1S = _c("daughterSigma", "1 sigma absolute of the daughter ratio.")
+_P = _c("parent", "Parent/daughter ratio today, e.g. 147Sm/144Nd.")
+_P1S = _c("parentSigma", "1 sigma of the parent ratio.")
+_TMA = _c("tMa", "Time in Ma (0 for today).")
 
 FUNCTIONS: Tuple[Function, ...] = (
     # -- meta --------------------------------------------------------------------------------
@@ -150,7 +157,28 @@ FUNCTIONS: Tuple[Function, ...] = (
     Function("rdAgeIsochron", "RD.AGE.ISOCHRON", "age",
              "Isochron age in Ma from a York fit: one row of 5 cells: age, 1 sigma (slope only), 1 sigma "
              "including the decay-constant uncertainty, initial ratio, its 1 sigma.",
-             (_X, _SX, _Y, _SY, _SYSTEM, _RHO, _TREATMENT, _REFSET), "ages.isochron_age", "array"),
+             (_X, _SX, _Y, _SY, _SYSTEM, _RHO, _TREATMENT, _REFSET, _ANCHOR, _ANCHOR_1S), "ages.isochron_age",
+             "array"),
+    Function("rdAgeTwoPoint", "RD.AGE.TWOPOINT", "age",
+             "Two-point (e.g. mineral - whole-rock) age in Ma: one row of 5 cells as RD.AGE.ISOCHRON.",
+             (_r("point1", "First point as one row of 4 or 5 cells: x, sx, y, sy and optionally rho."),
+              _r("point2", "Second point, the same way."), _SYSTEM, _REFSET), "ages.two_point_age", "array"),
+    Function("rdAgeModel", "RD.AGE.MODEL", "age",
+             "Single-stage model age in Ma relative to CHUR or the depleted mantle: one row of 2 cells: age, "
+             "1 sigma.",
+             (_D, _D1S, _P, _P1S, _SYSTEM, _v("reservoir", "Optional reservoir: CHUR (default) or DM (UR for Sr)."),
+              _v("rho", "Optional: correlation of the daughter and parent ratio errors (default 0)."), _REFSET),
+             "ages.model_age", "array"),
+    Function("rdInitialRatio", "RD.INITIAL.RATIO", "initial",
+             "Daughter ratio of a sample at time t: R(t) = R - P (exp(lambda t) - 1).",
+             (_c("daughter", "Measured daughter ratio today."), _c("parent", "Parent/daughter ratio today."),
+              _TMA, _SYSTEM, _REFSET), "ages.initial_ratio"),
+    Function("rdEpsilon", "RD.EPSILON", "epsilon",
+             "Epsilon value (eNd, eHf) at time t relative to CHUR: one row of 2 cells: epsilon, 1 sigma.",
+             (_D, _D1S, _P, _TMA, _SYSTEM, _v("parentSigma", "Optional: 1 sigma of the parent ratio (default 0)."),
+              _v("rho", "Optional: correlation of the daughter and parent ratio errors (default 0)."), _REFSET,
+              _v("withReference", "Optional: TRUE to add the reservoir and decay-constant uncertainties "
+                                   "(default FALSE).")), "ages.epsilon", "array"),
     Function("rdAgeSlope", "RD.AGE.SLOPE", "age",
              "Age in Ma from an isochron slope: t = ln(1 + slope) / lambda.",
              (_c("slope", "Isochron slope (> -1)."), _SYSTEM, _REFSET), "ages.age_from_slope"),
@@ -162,6 +190,15 @@ FUNCTIONS: Tuple[Function, ...] = (
               _v("external", "Optional: TRUE to add an external scatter, estimated by maximum likelihood, to every "
                              "sigma (default FALSE).")),
              "regression.weighted_mean", "array"),
+    # -- error ellipse -------------------------------------------------------------------------
+    Function("rdEllipse", "RD.ELLIPSE", "ellipse",
+             "Outline of a point's error ellipse for an x-y chart: points + 1 rows of 2 cells (x, y), closed. "
+             "Enter as an array formula.",
+             (_c("x", "x of the point."), _c("sx", "1 sigma of x (> 0)."), _c("y", "y of the point."),
+              _c("sy", "1 sigma of y (> 0)."), _v("rho", "Optional: error correlation (default 0)."),
+              _v("points", "Optional: number of outline segments (default 48)."),
+              _v("confidence", "Optional: confidence level of the region (default 0.95).")),
+             "regression.ellipse_points", "array"),
 )
 
 BY_METHOD: Dict[str, Function] = {f.method: f for f in FUNCTIONS}

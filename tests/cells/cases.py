@@ -176,6 +176,32 @@ def _wm(external: bool = False) -> Any:
     return ((m.mean, m.mean_sigma_1s, m.mswd, m.p_value),)
 
 
+def _two_point() -> Any:
+    a = ages.two_point_age(X[0], SX[0], Y[0], SY[0], X[4], SX[4], Y[4], SY[4], "sm-nd", rho1=RHO[0], rho2=RHO[4])
+    return ((a.age_ma, a.age_sigma_1s_ma, a.age_sigma_1s_ma_with_lambda, a.initial, a.initial_sigma_1s),)
+
+
+def _model(reservoir: str = "CHUR", rho: float = 0.0) -> Any:
+    m = ages.model_age(0.51150, 5e-6, 0.1100, 0.0011, "sm-nd", reservoir, None, rho)
+    return ((m.age_ma, m.age_sigma_1s_ma),)
+
+
+def _eps(with_reference: bool = False) -> Any:
+    e = ages.epsilon(Y[0], SY[0], X[0], 1000.0, "sm-nd", None, SX[0], RHO[0], include_reference=with_reference)
+    return ((e.value, e.sigma_1s),)
+
+
+def _ellipse() -> Any:
+    xs, ys = regression.ellipse_points(X[0], SX[0], Y[0], SY[0], RHO[0], n_points=24)
+    return tuple((float(a), float(b)) for a, b in zip(xs, ys))
+
+
+def _anchored() -> Any:
+    return block(regression.fit_isochron(X, SX, Y, SY, RHO, anchor=(0.51090, 1e-5)))
+
+
+_P1 = R(((X[0], SX[0], Y[0], SY[0], RHO[0]),))
+_P2 = R(((X[4], SX[4], Y[4], SY[4], RHO[4]),))
 _GAP = [None]
 CASES: List[Case] = [
     Case("version", "rdVersion", (), lambda: reduction.__version__),
@@ -206,7 +232,26 @@ CASES: List[Case] = [
     Case("age-slope", "rdAgeSlope", (L(SLOPE), L("sm-nd")), lambda: ages.age_from_slope(SLOPE, LAM) / 1e6),
     Case("mean-weighted", "rdMeanWeighted", (col(V), col(SV)), _wm, array=True),
     Case("mean-weighted-external", "rdMeanWeighted", (col(V), col(SV), L(True)), lambda: _wm(True), array=True),
+    Case("isochron-block-anchored", "rdIsochronBlock", FIT + (col(RHO), OMIT, L(0.51090), L(1e-5)), _anchored,
+         array=True),
+    Case("age-two-point", "rdAgeTwoPoint", (_P1, _P2, L("sm-nd")), _two_point, array=True),
+    Case("age-model-chur", "rdAgeModel", (L(0.51150), L(5e-6), L(0.1100), L(0.0011), L("sm-nd")), _model,
+         array=True),
+    Case("age-model-dm", "rdAgeModel", (L(0.51150), L(5e-6), L(0.1100), L(0.0011), L("sm-nd"), L("DM"), L(0.3)),
+         lambda: _model("DM", 0.3), array=True),
+    Case("initial-ratio", "rdInitialRatio", (L(Y[0]), L(X[0]), L(1000.0), L("sm-nd")),
+         lambda: ages.initial_ratio(Y[0], X[0], 1000.0, "sm-nd")),
+    Case("epsilon", "rdEpsilon", (L(Y[0]), L(SY[0]), L(X[0]), L(1000.0), L("sm-nd"), L(SX[0]), L(RHO[0])), _eps,
+         array=True),
+    Case("epsilon-with-reference", "rdEpsilon",
+         (L(Y[0]), L(SY[0]), L(X[0]), L(1000.0), L("sm-nd"), L(SX[0]), L(RHO[0]), OMIT, L(True)),
+         lambda: _eps(True), array=True),
+    Case("ellipse", "rdEllipse", (L(X[0]), L(SX[0]), L(Y[0]), L(SY[0]), L(RHO[0]), L(24)), _ellipse, array=True),
     # cells never lie: readable messages naming the argument and the range row
+    Case("msg-point-empty", "rdAgeTwoPoint", (R(((X[0], None, Y[0], SY[0]),)), _P2, L("sm-nd")),
+         Msg(("sx of point1 is required",)), array=True),
+    Case("msg-ellipse-points", "rdEllipse", (L(X[0]), L(SX[0]), L(Y[0]), L(SY[0]), OMIT, L(2)),
+         Msg(("points",)), array=True),
     Case("msg-sigma-zero", "rdIsochronSlope", (col(X), col(SX), col(Y), col([4e-6, 4e-6, 0.0, 4e-6, 4e-6])),
          Msg(("must be > 0", "row 3 of sy")), array=True),
     Case("msg-sigma-zero-after-gap", "rdIsochronSlope",
