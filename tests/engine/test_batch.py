@@ -1,0 +1,105 @@
+"""The batch path: ``ratiodesk reduce`` and ``ratiodesk demo`` without LibreOffice."""
+from __future__ import annotations
+
+import copy
+import hashlib
+
+import pytest
+from openpyxl import load_workbook
+
+import reduction.demo as demo
+from reduction.batch import reduce_workbook, write_demo_workbook
+from reduction.cli import main
+from reduction.workbook import (
+    FIRST_ROW,
+    ISOCHRON_FIRST_Q_ROW,
+    ISOCHRON_QUANTITIES,
+    ISOCHRON_SUMMARY_COL,
+    RESULTS,
+    SAMPLES,
+    build_layout,
+    write_xlsx,
+)
+
+Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
+
+
+@pytest.fixture(scope="module")
+def book(tmp_path_factory):
+    return write_demo_workbook(tmp_path_factory.mktemp("book") / "demo.xlsx")
+
+
+def test_reduce_writes_results_and_report(book, tmp_path, capsys):
+    digest = hashlib.sha256(book.read_bytes()).hexdigest()
+    rc = main(["reduce", str(book), "-o", str(tmp_path / "out")])
+    assert rc == 0
+    out = capsys.readouterr().out
+    assert "Sm-Nd isochron:" in out and "wrote" in out
+    assert hashlib.sha256(book.read_bytes()).hexdigest() == digest       # the input is never written to
+    pdf = (tmp_path / "out" / "report.pdf").read_bytes()
+    assert pdf.startswith(b"%PDF") and pdf.count(b"/Type /Page") >= 6
+    wb = load_workbook(tmp_path / "out" / "results.xlsx")
+    assert "Provenance" in wb.sheetnames
+    prov = [[c for c in r if c is not None] for r in wb["Provenance"].iter_rows(values_only=True)]
+    flat = " ".join(str(c) for r in prov for c in r)
+    assert "RatioDesk" in flat and "LH-SmNd-3" in flat and "decay.Sm147" in flat and "Date (UTC)" in flat
+    # values only: no formula anywhere
+    for ws in wb.worksheets:
+        for row in ws.iter_rows(values_only=True):
+            assert not any(isinstance(v, str) and v.startswith("=") for v in row)
+    lay = demo.demo_layout()
+    r, c = ISOCHRON_FIRST_Q_ROW + Q["age"], ISOCHRON_SUMMARY_COL + 1
+    # openpyxl stores floats with 16 significant digits (1 ulp from repr at most)
+    assert wb["Isochron"].cell(r, c + 1).value == pytest.approx(lay["Isochron"][(r, c)].value, rel=1e-15)
+
+
+def test_bad_workbook_exits_nonzero_naming_sheet_row_column(tmp_path, capsys):
+    tables = copy.deepcopy(demo.demo_tables())
+    tables["Samples"][3]["spike_mass_g"] = "lots"
+    path = tmp_path / "bad.xlsx"
+    write_xlsx(build_layout(tables, isochron_selection=demo.demo_selection()), path)
+    rc = main(["reduce", str(path), "-o", str(tmp_path / "o")])
+    assert rc == 1
+    err = capsys.readouterr().err
+    col = SAMPLES.letter("spike_mass_g")
+    assert f"Samples, row {FIRST_ROW + 3}, column {col} (Spike mass (g)): is not a number: 'lots'" in err
+    assert not (tmp_path / "o" / "results.xlsx").exists()
+
+
+def test_reduce_reads_ods_the_same_as_xlsx(tmp_path):
+    import sys
+    from pathlib import Path
+
+    sys.path.insert(0, str(Path(__file__).resolve().parents[2] / "templates"))
+    from odswriter import write_ods
+
+    lay = demo.demo_layout()
+    write_ods(lay, tmp_path / "d.ods")
+    write_xlsx(lay, tmp_path / "d.xlsx")
+    a = reduce_workbook(tmp_path / "d.ods", tmp_path / "a").evaluation.cells
+    b = reduce_workbook(tmp_path / "d.xlsx", tmp_path / "b").evaluation.cells
+    assert a == b
+
+
+def test_monte_carlo_shows_progress_and_agrees_with_linear(book, tmp_path):
+    seen = []
+    out = reduce_workbook(book, tmp_path, mc_draws=2000, progress=seen.append)
+    mc_lines = [s for s in seen if s.startswith("Monte Carlo")]
+    assert len(mc_lines) == len(demo.FRACTIONS) and mc_lines[-1].startswith(f"Monte Carlo {len(demo.FRACTIONS)}/")
+    wb = load_workbook(out.results_xlsx)
+    rows = list(wb["Monte Carlo"].iter_rows(values_only=True))[1:]
+    for r in rows:
+        lin, mc = r[3], r[4]
+        # seeded Monte Carlo of the same chain: σ agree to the sampling error of 2000 draws (~3 %, 1σ)
+        assert mc == pytest.approx(lin, rel=0.15), r
+
+
+def test_demo_command_writes_into_out_demo(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(["demo"]) == 0
+    out = capsys.readouterr().out
+    for name in ("demo-workbook.xlsx", "results.xlsx", "report.pdf"):
+        assert (tmp_path / "out" / "demo" / name).exists()
+        assert name in out
+    assert "true ages" in out
+    assert RESULTS.name == "Results"

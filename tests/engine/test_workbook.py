@@ -1,0 +1,249 @@
+"""The template definition, its readers and writers, and its evaluator (no LibreOffice).
+
+Numbers are checked against the engine's own published-method functions called directly
+(York fit: York et al. 2004; age t = ln(1 + slope)/λ, e.g. Faure & Mensing 2005, recalled from
+memory as the standard isochron equation) and against the invariants a workbook must keep.
+"""
+from __future__ import annotations
+
+import copy
+import math
+import sys
+from pathlib import Path
+
+import pytest
+
+import reduction.demo as demo
+from reduction.errors import InputError
+from reduction.workbook import (
+    CONSTANTS,
+    FIRST_ROW,
+    ISOCHRON,
+    ISOCHRON_BLOCK,
+    ISOCHRON_FIRST_Q_ROW,
+    ISOCHRON_QUANTITIES,
+    ISOCHRON_SUMMARY_COL,
+    MARKER,
+    MEASURED,
+    RESULTS,
+    SAMPLES,
+    SERVICE,
+    SHEETS,
+    CellError,
+    analysis_value,
+    build_layout,
+    col_letter,
+    evaluate,
+    expected_formulas,
+    formula_drift,
+    layout_grid,
+    read_workbook,
+    sheet_block,
+    write_xlsx,
+)
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT / "templates"))
+from odswriter import write_ods  # noqa: E402
+
+Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
+AGE_SMND = ("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age"], ISOCHRON_SUMMARY_COL + 1)
+
+
+@pytest.fixture(scope="module")
+def demo_grid():
+    lay = build_layout(demo.demo_tables(), isochron_selection=demo.demo_selection())
+    return layout_grid(lay)
+
+
+def _row_of(grid, sheet, analysis, element=None):
+    for r in range(FIRST_ROW, len(grid[sheet]) + 1):
+        row = grid[sheet][r - 1]
+        if row and row[0] == analysis and (element is None or row[1] == element):
+            return r
+    raise AssertionError(analysis)
+
+
+def _set(grid, sheet, row, col, v):
+    g = grid[sheet]
+    while len(g[row - 1]) <= col:
+        g[row - 1].append("")
+    g[row - 1][col] = v
+
+
+# ------------------------------------------------------------------ definition
+def test_sheet_names_and_every_uncertainty_header_states_level_and_form():
+    assert [s.name for s in SHEETS] == ["Constants", "Spikes", "Standards", "Samples", "Measured", "Results",
+                                        "Isochron"]
+    for s in SHEETS:
+        for c in s.columns:
+            if "σ" in c.header:
+                assert ("1σ" in c.header or "2σ" in c.header) and any(
+                    f in c.header for f in ("abs", "%", "ppm")), (s.name, c.header)
+    for _q, label, unit in ISOCHRON_QUANTITIES:
+        if "±" in label or "σ" in label:
+            assert any(k in label + unit for k in ("2σ", "1σ", "95 %")), label
+
+
+def test_every_addin_method_of_the_template_is_in_the_cell_function_table():
+    sys.path.insert(0, str(ROOT / "macros"))
+    import functions
+
+    assert SERVICE == functions.SERVICE_NAME.upper()
+    used = {f.func for f in expected_formulas().values() if f.addin}
+    missing = sorted(m for m in used if m not in functions.BY_METHOD)
+    assert not missing, f"template calls add-in methods not in macros/functions.py: {missing}"
+
+
+def test_formulas_render_for_both_formats():
+    f = expected_formulas()[("Results", FIRST_ROW, RESULTS.col_index("x"))]
+    x = f.render("Results", "xlsx")
+    o = f.render("Results", "ods")
+    assert x.startswith("=IF($A5=\"\",\"\",ORG.RATIODESK.CALCFUNCTIONS.RDWORKBOOKANALYSIS(\"x\",$A5,Samples!$A$4:")
+    assert o.startswith("of:=IF([.$A5]=\"\";\"\";ORG.RATIODESK.CALCFUNCTIONS.RDWORKBOOKANALYSIS(\"x\";[.$A5];"
+                        "[$Samples.$A$4:.$")
+
+
+# ------------------------------------------------------------------ readers and writers
+@pytest.mark.parametrize("ext", [".xlsx", ".ods"])
+def test_write_read_round_trip_keeps_inputs_and_formulas(tmp_path, demo_grid, ext):
+    lay = demo.demo_layout()
+    path = tmp_path / f"book{ext}"
+    (write_xlsx if ext == ".xlsx" else write_ods)(lay, path)
+    data = read_workbook(path)
+    for s in ("Constants", "Spikes", "Samples", "Measured", "Standards"):
+        sh = next(x for x in SHEETS if x.name == s)
+        want = sheet_block(demo_grid, s, 1, 0, sh.last_row, len(sh.columns) - 1)
+        got = sheet_block(data.grid, s, 1, 0, sh.last_row, len(sh.columns) - 1)
+        assert got == want, s
+    assert set(data.formulas) == {(s, r, c) for (s, r, c) in expected_formulas()}
+    assert formula_drift(data.formulas) == []
+    ev = evaluate(data.grid)
+    assert ev.cells[AGE_SMND] == evaluate(demo_grid).cells[AGE_SMND]
+
+
+def test_xlsx_carries_cached_values_for_viewers_without_the_extension(tmp_path):
+    from openpyxl import load_workbook
+
+    lay = demo.demo_layout()
+    write_xlsx(lay, tmp_path / "b.xlsx")
+    wb = load_workbook(tmp_path / "b.xlsx", data_only=True)
+    r, c = AGE_SMND[1], AGE_SMND[2]
+    assert wb["Isochron"].cell(r, c + 1).value == pytest.approx(lay["Isochron"][(r, c)].value, rel=1e-15)
+    assert wb["Results"]["A5"].value == "SN-01"
+
+
+def test_computed_cells_locked_inputs_unlocked(tmp_path):
+    from openpyxl import load_workbook
+
+    write_xlsx(build_layout(), tmp_path / "t.xlsx")
+    wb = load_workbook(tmp_path / "t.xlsx")
+    ws = wb["Results"]
+    assert ws.protection.sheet and not ws.protection.password
+    assert ws["I5"].protection.locked
+    assert not wb["Samples"]["F5"].protection.locked
+    assert wb["Samples"]["F5"].fill.fgColor.rgb != ws["I5"].fill.fgColor.rgb
+
+
+def test_edited_formula_is_reported(tmp_path):
+    data = {("Results", FIRST_ROW, RESULTS.col_index("x")): "=1+1"}
+    drift = formula_drift(data)
+    assert len(drift) == 1 and drift[0].startswith(f"Results!{RESULTS.letter('x')}{FIRST_ROW}")
+
+
+# ------------------------------------------------------------------ live reference values
+def test_decay_constant_edit_changes_the_age_as_the_age_equation_says(demo_grid):
+    ev0 = evaluate(demo_grid)
+    g = copy.deepcopy(demo_grid)
+    row = _row_of(g, "Constants", "decay.Sm147")
+    lam0 = g["Constants"][row - 1][CONSTANTS.col_index("value")]
+    lam1 = lam0 * 1.01
+    _set(g, "Constants", row, CONSTANTS.col_index("value"), lam1)
+    ev1 = evaluate(g)
+    # t = ln(1 + slope) / λ: the slope is unchanged, so t·λ is invariant
+    assert ev1.cells[AGE_SMND] * lam1 == pytest.approx(ev0.cells[AGE_SMND] * lam0, rel=1e-12)
+
+
+def test_accepted_value_edit_scales_the_daughter_ratio(demo_grid):
+    ev0 = evaluate(demo_grid)
+    g = copy.deepcopy(demo_grid)
+    row = _row_of(g, "Constants", "rm.JNdi-1.143Nd/144Nd")
+    v = g["Constants"][row - 1][CONSTANTS.col_index("value")]
+    _set(g, "Constants", row, CONSTANTS.col_index("value"), v * (1 + 1e-4))
+    ev1 = evaluate(g)
+    cy = RESULTS.col_index("y")
+    y0, y1 = ev0.cells[("Results", FIRST_ROW, cy)], ev1.cells[("Results", FIRST_ROW, cy)]
+    assert y1 / y0 == pytest.approx(1 + 1e-4, rel=1e-9)      # session factor = accepted / mean measured
+
+
+def test_spike_concentration_edit_scales_the_concentration(demo_grid):
+    ev0 = evaluate(demo_grid)
+    g = copy.deepcopy(demo_grid)
+    row = _row_of(g, "Spikes", "LH-SmNd-3", "Nd")
+    col = next(s for s in SHEETS if s.name == "Spikes").col_index("conc_umol_g")
+    _set(g, "Spikes", row, col, g["Spikes"][row - 1][col] * 1.002)
+    ev1 = evaluate(g)
+    c = RESULTS.col_index("daughter_conc")
+    # isotope dilution: sample amount is proportional to the spike amount (Smith 2000)
+    ratio = ev1.cells[("Results", FIRST_ROW + 1, c)] / ev0.cells[("Results", FIRST_ROW + 1, c)]
+    assert ratio == pytest.approx(1.002, rel=2e-4)   # blank subtraction shifts it slightly
+
+
+# ------------------------------------------------------------------ bad input
+def _messages(grid):
+    ev = evaluate(grid, strict=False)
+    return [str(e) for e in ev.errors], ev
+
+
+def test_half_filled_row_names_sheet_row_column(demo_grid):
+    g = copy.deepcopy(demo_grid)
+    row = FIRST_ROW + 2
+    _set(g, "Samples", row, SAMPLES.col_index("sample_mass_g"), "")
+    before = copy.deepcopy(g)
+    msgs, ev = _messages(g)
+    col = col_letter(SAMPLES.col_index("sample_mass_g"))
+    assert any(m.startswith(f"Samples, row {row}, column {col} (Sample mass (g)): is empty") for m in msgs), msgs
+    assert g == before                                  # nothing the user typed is changed
+    cell = ev.cells[("Results", row, RESULTS.col_index("x"))]
+    assert isinstance(cell, str) and cell.startswith(MARKER) and "Sample mass" in cell
+
+
+def test_missing_spike_and_text_in_number_cell(demo_grid):
+    g = copy.deepcopy(demo_grid)
+    _set(g, "Samples", FIRST_ROW, SAMPLES.col_index("spike"), "NO-SUCH-SPIKE")
+    r = _row_of(g, "Measured", "SN-02", "Nd")
+    _set(g, "Measured", r, MEASURED.col_index("r1"), "0.51x")
+    msgs, _ev = _messages(g)
+    assert any("Samples, row 5, column G (Spike used): spike 'NO-SUCH-SPIKE' has no Sm row" in m for m in msgs), msgs
+    assert any(f"Measured, row {r}, column {MEASURED.letter('r1')}" in m and "is not a number: '0.51x'" in m
+               for m in msgs), msgs
+    with pytest.raises(CellError) as exc:
+        evaluate(g, strict=True)
+    assert isinstance(exc.value, InputError)
+
+
+def test_isochron_with_fewer_than_two_rows(demo_grid):
+    g = copy.deepcopy(demo_grid)
+    first, last = ISOCHRON_BLOCK["Sm-Nd"]
+    for row in range(first + 1, last + 1):
+        _set(g, "Isochron", row, ISOCHRON.col_index("use"), 0.0 if g["Isochron"][row - 1][:1] not in ([], [""])
+             else "")
+    msgs, ev = _messages(g)
+    assert any("Isochron, column B (Use (1/0)): Sm-Nd: 1 row(s) selected; an isochron needs at least two" in m
+               for m in msgs), msgs
+    assert str(ev.cells[AGE_SMND]).startswith(MARKER)
+    # the Lu-Hf isochron is untouched by the Sm-Nd problem
+    lu = ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age"], ISOCHRON_SUMMARY_COL + 2)]
+    assert isinstance(lu, float) and math.isfinite(lu)
+
+
+def test_analysis_value_is_what_the_grid_cell_receives(demo_grid):
+    """The add-in passes ranges as tuples of tuples of float/str/''; the result must be identical."""
+    refs = {s.name: s.range_ref() for s in SHEETS}
+    args = [sheet_block(demo_grid, n, r1, c1, r2, c2) for n, r1, c1, r2, c2 in
+            (refs["Samples"], refs["Measured"], refs["Spikes"], refs["Standards"], refs["Constants"])]
+    v = analysis_value("y", "SN-03", *args)
+    ev = evaluate(demo_grid)
+    assert v == ev.cells[("Results", FIRST_ROW + 2, RESULTS.col_index("y"))]
+    with pytest.raises(InputError):
+        analysis_value("no-such-quantity", "SN-03", *args)
