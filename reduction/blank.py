@@ -15,7 +15,8 @@ from typing import Any, Mapping, Optional
 import numpy as np
 
 from .constants import isotope_mass
-from .errors import InputError, UndefinedResultError
+from .errors import UndefinedResultError
+from .massbias import _checked
 
 __all__ = ["BlankCorrection", "blank_correct", "blank_umol"]
 
@@ -45,17 +46,7 @@ class BlankCorrection:
 
 
 def _arr(name: str, x: Any, positive: bool) -> np.ndarray:
-    try:
-        a = np.asarray(x, dtype=float)
-    except (TypeError, ValueError):
-        raise InputError(name, "could not be read as numbers") from None
-    if not np.all(np.isfinite(a)):
-        raise InputError(name, "must be finite numbers (got NaN or inf)")
-    bad = a <= 0 if positive else a < 0
-    if np.any(bad):
-        first = a.ravel()[np.flatnonzero(bad.ravel())[0]]
-        raise InputError(name, f"must be {'> 0' if positive else '>= 0'}, got {first!r}")
-    return a
+    return _checked(name, x, "positive" if positive else "nonnegative")
 
 
 def _o(a: Any) -> Any:

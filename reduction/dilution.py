@@ -32,7 +32,7 @@ import numpy as np
 from . import constants
 from .constants import isotope_fraction, isotope_mass, normalising_ratio
 from .errors import ConvergenceError, InputError, UndefinedResultError
-from .massbias import bias_correct
+from .massbias import _checked, bias_correct
 from .massbias import bias_factor as _bias_factor_of
 
 __all__ = [
@@ -107,15 +107,7 @@ def sample_composition(element: str, reference_isotope: str,
 
 
 def _pos_array(name: str, x: Any) -> np.ndarray:
-    try:
-        a = np.array(x, dtype=float)
-    except (TypeError, ValueError):
-        raise InputError(name, "could not be read as numbers") from None
-    if not np.all(np.isfinite(a)):
-        raise InputError(name, "must be finite numbers (got NaN or inf)")
-    if np.any(a <= 0):
-        raise InputError(name, f"must be > 0, got {a.ravel()[int(np.flatnonzero(a.ravel() <= 0)[0])]!r}")
-    return a
+    return np.array(_checked(name, x, "positive"))
 
 
 def _out(a: Any) -> Any:
@@ -406,6 +398,10 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     """
     if not isinstance(spike, Spike):
         raise InputError("spike", "must be a Spike (see make_spike)")
+    if not (np.isfinite(tol) and 0 < tol < 1e-3):
+        raise InputError("tol", f"must lie in (0, 1e-3), got {tol!r}")
+    if int(max_iter) < 1:
+        raise InputError("max_iter", f"must be >= 1, got {max_iter!r}")
     if not measured:
         raise InputError("measured", "no ratios given")
     names = list(measured)

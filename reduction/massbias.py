@@ -25,6 +25,7 @@ from typing import Any, Optional, Tuple
 
 import numpy as np
 
+from ._validate import as_array, require_positive
 from .constants import isotope_mass, normalising_ratio
 from .errors import InputError, UndefinedResultError
 
@@ -51,27 +52,29 @@ def _law(law: str) -> str:
     return k
 
 
-def _positive(name: str, x: Any) -> np.ndarray:
+def _checked(name: str, x: Any, sign: str = "positive") -> np.ndarray:
+    """Read ``x`` as a float array (no copy) and check it: ``sign`` is "positive", "nonnegative" or "any".
+
+    Shared by the engine's per-step modules. The common, valid case costs two fast passes; the error
+    messages come from :mod:`reduction._validate`.
+    """
     try:
         a = np.asarray(x, dtype=float)
     except (TypeError, ValueError):
         raise InputError(name, "could not be read as numbers") from None
-    if not ((a > 0).all() and np.isfinite(a.sum())):  # two fast passes; NaN fails the first, inf the second
-        if not np.all(np.isfinite(a)):
-            raise InputError(name, "must be finite numbers (got NaN or inf)")
-        bad = a.ravel()[int(np.flatnonzero(a.ravel() <= 0)[0])]
-        raise InputError(name, f"must be > 0, got {bad!r}")
-    return a
+    ok_sign = True if sign == "any" else bool((a > 0).all() if sign == "positive" else (a >= 0).all())
+    if ok_sign and np.isfinite(a.sum()):
+        return a
+    as_array(name, a, ndim=None)  # raises for NaN / inf, naming the element
+    return require_positive(name, a, allow_zero=sign == "nonnegative")
+
+
+def _positive(name: str, x: Any) -> np.ndarray:
+    return _checked(name, x, "positive")
 
 
 def _finite(name: str, x: Any) -> np.ndarray:
-    try:
-        a = np.asarray(x, dtype=float)
-    except (TypeError, ValueError):
-        raise InputError(name, "could not be read as numbers") from None
-    if not np.all(np.isfinite(a)):
-        raise InputError(name, "must be finite numbers (got NaN or inf)")
-    return a
+    return _checked(name, x, "any")
 
 
 def _out(a: np.ndarray) -> Any:
