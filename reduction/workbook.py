@@ -398,9 +398,12 @@ class Table:
         return any(v != "" for v in self.rows[i])
 
     def find(self, **match: str) -> List[int]:
+        def norm(v: Any) -> str:
+            return (f"{v:g}" if isinstance(v, float) else str(v)).strip().lower()
+
         out = []
         for i in range(len(self.rows)):
-            if all(str(self.get(i, k)).strip().lower() == v.strip().lower() for k, v in match.items()):
+            if all(norm(self.get(i, k)) == norm(v) for k, v in match.items()):
                 out.append(i)
         return out
 
