@@ -211,6 +211,9 @@ def _passed_on(name: str, value: str) -> CellMessage:
     return CellMessage(MARKER + "from " + name + ": " + value[len(MARKER):])
 
 
+_FLOAT_ONLY = {float}
+
+
 def _is_empty(v: Any) -> bool:
     return v is None or v == ""
 
@@ -241,6 +244,10 @@ def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = ()) -> T
     if first is None:
         return {name: None for name, _ in named}, []
     n = first[1]
+    if all(set(map(type, c)) == _FLOAT_ONLY for c in lists.values()):  # the common case, at C speed
+        out_fast: Dict[str, Any] = {name: None for name, _ in named}
+        out_fast.update(lists)
+        return out_fast, list(range(1, n + 1))
     kept = [i for i in range(n) if not all(_is_empty(c[i]) for c in lists.values())]
     if not kept:
         raise CellMessage(f"{first[0]} has no values (all {n} rows are empty)")
@@ -263,14 +270,20 @@ def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = ()) -> T
     return out, [i + 1 for i in kept]
 
 
+def _one(name: str, grid: Tuple[Tuple[Any, ...], ...]) -> Any:
+    if len(grid) == 1 and len(grid[0]) == 1:
+        return grid[0][0]
+    cells = _cells(name, grid)
+    if len(cells) != 1:
+        raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
+    return cells[0]
+
+
 def number(name: str, v: Any, default: Optional[float] = None) -> float:
     """One number from a cell or typed value; ``default`` when omitted or empty (else required)."""
-    if isinstance(v, tuple):
-        cells = _cells(name, v)
-        if len(cells) != 1:
-            raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
-        v = cells[0]
-    if isinstance(v, float):
+    if type(v) is tuple:
+        v = _one(name, v)
+    if type(v) is float:
         return v
     if _is_empty(v):
         if default is None:
@@ -287,11 +300,10 @@ def number(name: str, v: Any, default: Optional[float] = None) -> float:
 
 def text(name: str, v: Any, default: Optional[str] = None) -> str:
     """One text value (trimmed, lower case); ``default`` when omitted or empty (else required)."""
-    if isinstance(v, tuple):
-        cells = _cells(name, v)
-        if len(cells) != 1:
-            raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
-        v = cells[0]
+    if type(v) is tuple:
+        v = _one(name, v)
+    if type(v) is str and v and v[0] != MARKER[0]:
+        return v.strip().lower()
     if _is_empty(v) or (not isinstance(v, str) and v == 0.0):
         # a reference to one empty cell arrives as 0.0 (LibreOffice 7.4): no text option is a number
         if default is None:
@@ -306,11 +318,8 @@ def text(name: str, v: Any, default: Optional[str] = None) -> str:
 
 def flag(name: str, v: Any, default: bool = False) -> bool:
     """A TRUE/FALSE cell (TRUE arrives as 1.0); also accepts the words true/false, yes/no."""
-    if isinstance(v, tuple):
-        cells = _cells(name, v)
-        if len(cells) != 1:
-            raise CellMessage(f"{name} must be a single cell, got {len(cells)} cells")
-        v = cells[0]
+    if type(v) is tuple:
+        v = _one(name, v)
     if _is_empty(v):
         return default
     if isinstance(v, (float, int, bool)):
@@ -359,6 +368,13 @@ class _Cache:
         self.size = size
         self.data: OrderedDict[Any, Any] = OrderedDict()
 
+    def hit(self, key: Any) -> Any:
+        """The cached result (or raise the cached error); KeyError when absent."""
+        ok, value = self.data[key]
+        if ok:
+            return value
+        raise value
+
     def get(self, key: Any, make: Callable[[], Any]) -> Any:
         try:
             hit = self.data[key]
@@ -403,16 +419,23 @@ _FIT_NAMES = ("x", "sx", "y", "sy", "rho")
 
 def fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any, treatment: Any, anchor: Any = None,
         anchorSigma: Any = None) -> Any:
-    """The engine's isochron fit of the cells (cached by inputs)."""
+    """The engine's isochron fit of the cells (cached by the cells themselves: tuples are hashable)."""
+    raw = (x, sx, y, sy, rho, treatment, anchor, anchorSigma)
+    try:
+        return FIT_CACHE.hit(raw)
+    except KeyError:
+        pass
+    except TypeError:  # an unhashable argument: no caching
+        raw = None
     cols, kept = columns(list(zip(_FIT_NAMES, (x, sx, y, sy, rho))), optional=("rho",))
     tr = text("treatment", treatment, "analytical")
     anc = None
     if anchor is not None or anchorSigma is not None:
         anc = (number("anchor", anchor), number("anchorSigma", anchorSigma))
-    key = (tuple(tuple(c) if c is not None else None for c in cols.values()), tr, tuple(kept), anc)
     reg = engine("regression")
-    return FIT_CACHE.get(key, lambda: call(reg.fit_isochron, kept, cols["x"], cols["sx"], cols["y"], cols["sy"],
-                                           cols["rho"], treatment=tr, anchor=anc))
+    make = lambda: call(reg.fit_isochron, kept, cols["x"], cols["sx"], cols["y"], cols["sy"],  # noqa: E731
+                        cols["rho"], treatment=tr, anchor=anc)
+    return make() if raw is None else FIT_CACHE.get(raw, make)
 
 
 _N2 = "undefined for 2 points (no degrees of freedom)"
@@ -479,10 +502,18 @@ def rdIsochronValue(quantity: Any, x: Any, sx: Any, y: Any, sy: Any, rho: Any = 
 # --------------------------------------------------------------------------------------------
 # ages
 # --------------------------------------------------------------------------------------------
+_DEFAULT_REF: List[Any] = []
+
+
 def reference(refset: Any) -> Any:
     """The engine's reference set named in the cell (default set when empty)."""
+    if refset is None and _DEFAULT_REF:
+        return _DEFAULT_REF[0]
     name = text("refset", refset, "")
-    return engine("constants").reference_set(name or None)
+    ref = engine("constants").reference_set(name or None)
+    if refset is None:
+        _DEFAULT_REF.append(ref)
+    return ref
 
 
 @cell_function(array=True)

@@ -27,8 +27,8 @@ Argument kinds
 --------------
 ``range``     a cell range, IDL ``sequence<sequence<any>>`` (text and empty cells arrive as text and
               ``''``, never as 0); required.
-``cell``      a required single value or cell, IDL ``sequence<sequence<any>>`` (required in the
-              Function Wizard).
+``cell``      a required single value or cell, IDL ``any`` (cheaper through the bridge than a 1x1
+              ``sequence<sequence<any>>``; when omitted the cell says "<name> is required").
 ``value``     an optional single value or cell, IDL ``any`` (Calc treats ``any`` arguments as
               optional: an omitted one arrives as ``None``).
 
@@ -57,7 +57,7 @@ CATEGORY = "Add-In"
 #: Leading marker of every RatioDesk message shown in a cell (see macros/cells.py).
 MESSAGE_MARKER = "\u26a0 "
 
-IDL_TYPES = {"range": "sequence< sequence< any > >", "cell": "sequence< sequence< any > >", "value": "any",
+IDL_TYPES = {"range": "sequence< sequence< any > >", "cell": "any", "value": "any",
              "range_opt": "any",
              "array": "sequence< sequence< any > >"}
 

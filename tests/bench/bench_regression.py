@@ -71,7 +71,9 @@ def bench_one(odrpack, n):
     rounds = 3 if n == 100000 else 5
     t_y = best_time(lambda: york_fit(x, sx, y, sy), min_total=1.0, repeat=rounds)
     t_o = best_time(odr, min_total=1.0, repeat=rounds)
-    return t_y, t_o, abs(res.beta[1] - fit.slope) / abs(fit.slope)
+    # York stopped at rtol = 1e-10 is still ~1000x closer to its fixed point than odrpack gets
+    t_y10 = best_time(lambda: york_fit(x, sx, y, sy, rtol=1e-10), min_total=0.5, repeat=rounds)
+    return t_y, t_o, abs(res.beta[1] - fit.slope) / abs(fit.slope), t_y10
 
 
 def bench_odrpack():
@@ -82,14 +84,16 @@ def bench_odrpack():
         return True
     ok = True
     print("York et al. 2004 (york_fit) vs odrpack.odr_fit, rho = 0")
-    print(f"  {'n':>8} {'york [ms]':>11} {'odrpack [ms]':>13} {'ratio':>8} {'|db|/|b|':>10}"
+    print("  york at its default rtol = 1e-15 (the verdict); in brackets the ratio with rtol = 1e-10")
+    print(f"  {'n':>8} {'york [ms]':>11} {'odrpack [ms]':>13} {'ratio':>8} {'(1e-10)':>9} {'|db|/|b|':>10}"
           f"  target >= {YORK_TARGET:g}x")
     for n in (10, 1000, 100000):
-        t_y, t_o, agree = bench_one(odrpack, n)
+        t_y, t_o, agree, t_y10 = bench_one(odrpack, n)
         ratio = t_o / t_y
         verdict = "PASS" if ratio >= YORK_TARGET else "FAIL"
         ok &= ratio >= YORK_TARGET
-        print(f"  {n:>8} {t_y * 1e3:>11.3f} {t_o * 1e3:>13.3f} {ratio:>7.1f}x {agree:>10.1e}  {verdict}")
+        print(f"  {n:>8} {t_y * 1e3:>11.3f} {t_o * 1e3:>13.3f} {ratio:>7.1f}x {t_o / t_y10:>8.1f}x {agree:>10.1e}"
+              f"  {verdict}")
     return ok
 
 

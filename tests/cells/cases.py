@@ -87,11 +87,11 @@ def as_delivered(method: str, args: Sequence[Any]) -> List[Any]:
         if a is OMIT:
             out.append(None)
         elif isinstance(a, L):
-            out.append(((a.value,),) if spec.kind in ("range", "cell") else a.value)
+            out.append(((a.value,),) if spec.kind == "range" else a.value)
         else:
             grid = tuple(tuple(_cell_value(v) for v in r) for r in a.grid)
             single = len(grid) == 1 and len(grid[0]) == 1
-            if spec.kind in ("value", "range_opt") and single:
+            if spec.kind in ("value", "cell", "range_opt") and single:
                 v = grid[0][0]
                 out.append(0.0 if v == "" else v)
             else:

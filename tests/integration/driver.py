@@ -184,7 +184,7 @@ def cmd_bench(ctx: Any, payload: Dict[str, Any]) -> Dict[str, Any]:
             for arr in job.get("array_formulas", ()):
                 sh.getCellRangeByName(arr[0]).setArrayFormula(arr[1])
             times = []
-            for _ in range(job.get("repeat", 3)):
+            for _ in range(job.get("repeat", 7)):
                 t0 = time.perf_counter()
                 doc.calculateAll()
                 times.append(time.perf_counter() - t0)
