@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Any, Optional, Tuple
 
 import numpy as np
@@ -140,8 +141,14 @@ def _chi2_sf(s: float, dof: int) -> float:
     return float(special.chdtrc(dof, s))
 
 
+@lru_cache(maxsize=256)
 def _t975(dof: int) -> float:
     return float(special.stdtrit(dof, 0.975))
+
+
+@lru_cache(maxsize=256)
+def _limits_95(dof: int) -> Tuple[float, float]:
+    return wendt_carl_limits(dof)
 
 
 def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = False) -> Tuple[float, float]:
@@ -330,9 +337,11 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
             raise UndefinedResultError("the York slope is not finite (degenerate data)")
 
     # final quantities at the converged slope (York et al. 2004, steps 5-8)
-    if work.x.shape != x.shape:
+    if batch:
+        # frozen or compacted rows hold stale state: evaluate every dataset at its slope
         work = _Work(x, vx, y, vy, cxy, has_rho)
-    work.update(b)
+        work.update(b)
+    # a single fit keeps the state of its last update, evaluated at a slope within rtol of b
     w, u, v, e, d = work.w, work.u, work.v, work.e, work.d
     sw, xbar, ybar = work.sw, work.xb, work.yb
     a = ybar - b * xbar
@@ -356,6 +365,16 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
 def _check_points(x: Any, sx: Any, y: Any, sy: Any, rho: Any, ndim: int = 1,
                   names: Tuple[str, str, str, str, str] = ("x", "sx", "y", "sy", "rho")) -> Tuple[np.ndarray, ...]:
     """Validate the five point arrays (copies; the caller's arrays are never modified)."""
+    if ndim == 1:
+        # fast path: one stacked copy, checked at once; on any doubt the named checks below run
+        try:
+            r0 = np.zeros(np.shape(x)) if rho is None else np.broadcast_to(rho, np.shape(x))
+            stacked = np.array([x, sx, y, sy, r0], dtype=float)
+        except (TypeError, ValueError):
+            stacked = None
+        if (stacked is not None and stacked.ndim == 2 and np.isfinite(stacked).all()
+                and (stacked[1] > 0).all() and (stacked[3] > 0).all() and (np.abs(stacked[4]) < 1).all()):
+            return stacked[0], stacked[1], stacked[2], stacked[3], stacked[4]
     xa = as_array(names[0], x, ndim=ndim)
     sxa = as_array(names[1], sx, ndim=ndim)
     ya = as_array(names[2], y, ndim=ndim)
@@ -402,7 +421,7 @@ def _make_fit(n: int, dof: int, b: float, a: float, sb: float, sa: float, cab: f
     if dof > 0 and s is not None:
         mswd: Optional[float] = s / dof
         p: Optional[float] = _chi2_sf(s, dof)
-        limits: Optional[Tuple[float, float]] = wendt_carl_limits(dof)
+        limits: Optional[Tuple[float, float]] = _limits_95(dof)
         t95: Optional[float] = _t975(dof)
         expand = t95 * math.sqrt(max(mswd, 1.0))
         sb95: Optional[float] = expand * sb
