@@ -101,16 +101,19 @@ finite = st.floats(-1e3, 1e3, allow_nan=False, allow_infinity=False)
 
 
 @settings(max_examples=40, deadline=None)
-@given(st.lists(finite, min_size=4, max_size=30), st.floats(-100, 100), st.floats(0.01, 100))
-def test_affine_equivariance(xs, shift, scale):
+@given(st.lists(st.integers(-4000, 4000), min_size=4, max_size=30), st.integers(-100, 100),
+       st.sampled_from([0.25, 0.5, 2.0, 8.0]))
+def test_affine_equivariance(ks, shift, scale):
     # Clipping depends only on standardised deviations, so x -> a + b x maps kept sets onto each other.
-    x = np.array(xs)
-    if np.ptp(x) < 1e-6:
+    # Data on a grid of 1/8 and power-of-two scales keep the transform exact in floating point (a value
+    # far below the shift's rounding level would otherwise vanish, which no algorithm can see).
+    x = np.array(ks) / 8.0
+    if np.ptp(x) == 0:
         return
     s1 = cycle_stats(x)
     s2 = cycle_stats(shift + scale * x)
     np.testing.assert_array_equal(s1.kept, s2.kept)
-    assert s2.mean == pytest.approx(shift + scale * s1.mean, rel=1e-9, abs=1e-9 * scale * (1 + abs(s1.mean)))
+    assert s2.mean == pytest.approx(shift + scale * s1.mean, rel=1e-12, abs=1e-9)
 
 
 @settings(max_examples=40, deadline=None)
