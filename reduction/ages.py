@@ -203,6 +203,19 @@ def two_point_age(x1: float, sx1: float, y1: float, sy1: float, x2: float, sx2: 
     return isochron_age(fit, system, ref)
 
 
+def _sample(daughter_ratio: Any, daughter_sigma_1s: Any, parent_ratio: Any, parent_sigma_1s: Any,
+            rho: Any) -> Tuple[float, float, float, float, float]:
+    """Check a sample's daughter and parent ratios, their 1σ (>= 0) and error correlation."""
+    r = as_scalar("daughter_ratio", daughter_ratio)
+    sr = as_scalar("daughter_sigma_1s", daughter_sigma_1s)
+    p = as_scalar("parent_ratio", parent_ratio)
+    sp = as_scalar("parent_sigma_1s", parent_sigma_1s)
+    rho = float(require_correlation("rho", np.asarray(as_scalar("rho", rho))))
+    if sr < 0 or sp < 0:
+        raise InputError("daughter_sigma_1s" if sr < 0 else "parent_sigma_1s", "must be >= 0")
+    return r, sr, p, sp, rho
+
+
 def _growth(t_ma: float, lam: float) -> float:
     return math.expm1(lam * t_ma * _MA)
 
@@ -250,14 +263,8 @@ def epsilon(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: float
     0.137
     """
     sysobj, ref = _setup(system, ref)
-    r = as_scalar("daughter_ratio", daughter_ratio)
-    sr = as_scalar("daughter_sigma_1s", daughter_sigma_1s)
-    p = as_scalar("parent_ratio", parent_ratio)
-    sp = as_scalar("parent_sigma_1s", parent_sigma_1s)
+    r, sr, p, sp, rho = _sample(daughter_ratio, daughter_sigma_1s, parent_ratio, parent_sigma_1s, rho)
     t = as_scalar("t_ma", t_ma)
-    rho = float(require_correlation("rho", np.asarray(as_scalar("rho", rho))))
-    if sr < 0 or sp < 0:
-        raise InputError("daughter_sigma_1s" if sr < 0 else "parent_sigma_1s", "must be >= 0")
     if t < 0:
         raise InputError("t_ma", f"must be >= 0, got {t!r}")
     kind = _reservoir_kind(sysobj, "CHUR")
@@ -302,13 +309,7 @@ def model_age(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: flo
     1996.02
     """
     sysobj, ref = _setup(system, ref)
-    r = as_scalar("daughter_ratio", daughter_ratio)
-    sr = as_scalar("daughter_sigma_1s", daughter_sigma_1s)
-    p = as_scalar("parent_ratio", parent_ratio)
-    sp = as_scalar("parent_sigma_1s", parent_sigma_1s)
-    rho = float(require_correlation("rho", np.asarray(as_scalar("rho", rho))))
-    if sr < 0 or sp < 0:
-        raise InputError("daughter_sigma_1s" if sr < 0 else "parent_sigma_1s", "must be >= 0")
+    r, sr, p, sp, rho = _sample(daughter_ratio, daughter_sigma_1s, parent_ratio, parent_sigma_1s, rho)
     kind = _reservoir_kind(sysobj, reservoir)
     rr = ref.reservoir(kind, sysobj.daughter_ratio)
     pr = ref.reservoir(kind, sysobj.parent_ratio)

@@ -231,3 +231,12 @@ def test_model_age_undefined_cases():
         model_age(0.5115, 0.0, 0.11, 0.0, "sm-nd", reservoir="XYZ")
     with pytest.raises(InputError, match="system"):
         model_age(0.5115, 0.0, 0.11, 0.0, "u-pb")
+
+
+def test_epsilon_bad_input_named():
+    with pytest.raises(InputError, match="daughter_sigma_1s"):
+        epsilon(0.5126, -1e-6, 0.15, 0.0, "sm-nd")
+    with pytest.raises(InputError, match="t_ma"):
+        epsilon(0.5126, 1e-6, 0.15, -5.0, "sm-nd")
+    with pytest.raises(InputError, match="rho"):
+        epsilon(0.5126, 1e-6, 0.15, 0.0, "sm-nd", parent_sigma_1s=1e-4, rho=1.0)
