@@ -262,7 +262,11 @@ def write_collaborator_copy(ctx: Any, doc: Any, target_url: str) -> Dict[str, An
         data_of = {}
         for k, name in enumerate(names):
             prog.step(k, f"RatioDesk: copying values of {name}")
-            data = _used_data(doc.getSheets().getByName(name))
+            src = doc.getSheets().getByName(name)
+            data = _used_data(src)
+            if any(v is None for r in data for v in r):   # error cells: keep what they show, as text
+                data = tuple(tuple(src.getCellByPosition(j, i).getString() if v is None else v
+                                   for j, v in enumerate(r)) for i, r in enumerate(data))
             data_of[name] = data
             sheets.insertNewByName(name, sheets.getCount())
             if data:
@@ -270,7 +274,6 @@ def write_collaborator_copy(ctx: Any, doc: Any, target_url: str) -> Dict[str, An
                 rng = tgt.getCellRangeByPosition(0, 0, len(data[0]) - 1, len(data) - 1)
                 rng.setDataArray(data)          # values and text only: setDataArray never parses formulas
                 cells += sum(1 for r in data for v in r if v != "")
-                src = doc.getSheets().getByName(name)
                 for j in range(len(data[0])):
                     w = src.getColumns().getByIndex(j).Width
                     tgt.getColumns().getByIndex(j).Width = w

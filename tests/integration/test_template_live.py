@@ -1,0 +1,239 @@
+"""The template workbook in a real LibreOffice: the live chain, grid = batch, the menu commands.
+
+LibreOffice opens the demo workbook (written by templates/build_template.py's writers), recalculates
+it, and every computed cell must equal the batch path's value (the engine without LibreOffice) to
+1e-10 relative. Then a reference-material accepted value, a spike calibration and a decay constant
+are edited in the grid; after each edit LibreOffice recalculates only what depends on it
+(``calculate()``, not ``calculateAll()``) and every dependent cell must again equal the engine given
+the new value. Finally the collaborator copy (values + provenance, the open document untouched) and
+the run-file import (text never becomes a formula) are exercised on the same document.
+
+This file is also the LibreOffice-side driver: ``/usr/bin/python3 test_template_live.py COMMAND
+PORT PAYLOAD.json`` (it needs ``uno``, so it runs under the system Python, see harness.py).
+"""
+from __future__ import annotations
+
+import copy
+import json
+import subprocess
+import sys
+from pathlib import Path
+from typing import Any, Dict, List
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parents[1]
+REL_TOL = 1e-10
+
+
+# ============================================================================================
+# driver side (system Python with uno)
+# ============================================================================================
+def _cells_of(doc: Any, wanted: List[List[Any]]) -> List[Any]:
+    out = []
+    sheets = doc.getSheets()
+    for sheet, row, col in wanted:
+        cell = sheets.getByName(sheet).getCellByPosition(col, row - 1)
+        err = cell.getError()
+        if err:
+            out.append({"error": err})
+            continue
+        # FormulaResultType2: 1 = VALUE, 2 = TEXT (com.sun.star.sheet.FormulaResult)
+        if cell.getType().value == "FORMULA":
+            out.append(cell.getValue() if cell.FormulaResultType2 == 1 else cell.getString())
+        elif cell.getType().value == "VALUE":
+            out.append(cell.getValue())
+        else:
+            out.append(cell.getString())
+    return out
+
+
+def _set(doc: Any, sheet: str, row: int, col: int, value: float) -> None:
+    doc.getSheets().getByName(sheet).getCellByPosition(col, row - 1).setValue(value)
+
+
+def driver_live(ctx: Any, payload: Dict[str, Any]) -> Dict[str, Any]:
+    import driver as d
+
+    sys.path.insert(0, str(ROOT / "macros"))
+    import commands
+
+    path = Path(payload["book"])
+    doc = d.open_doc(ctx, path)
+    out: Dict[str, Any] = {}
+    try:
+        doc.calculateAll()
+        out["initial"] = _cells_of(doc, payload["cells"])
+        steps = []
+        for edit in payload["edits"]:
+            _set(doc, edit["sheet"], edit["row"], edit["col"], edit["value"])
+            doc.calculate()          # dependents only: the grid's own dependency tracking
+            steps.append(_cells_of(doc, payload["cells"]))
+        out["steps"] = steps
+        before = _cells_of(doc, payload["inputs"])
+        copy_url = Path(payload["copy"]).resolve().as_uri()
+        out["copy"] = commands.write_collaborator_copy(ctx, doc, copy_url)
+        out["inputs_after_copy"] = _cells_of(doc, payload["inputs"])
+        out["inputs_before_copy"] = before
+        res = commands.import_run_file(doc, payload["run_file"], lambda msg: out.setdefault("confirm", msg) != "")
+        out["import"] = res
+        meas = doc.getSheets().getByName("Measured")
+        row0 = res["first_row"] - 1
+        kinds = []
+        for k in range(res["imported"]):
+            row = []
+            for j in range(6):
+                cell = meas.getCellByPosition(j, row0 + k)
+                row.append([cell.getType().value, cell.getString()])
+            kinds.append(row)
+        out["imported_cells"] = kinds
+    finally:
+        doc.close(True)
+    return out
+
+
+def _driver_main() -> int:
+    sys.path[:0] = [str(HERE), str(ROOT / "macros")]
+    import install as lo
+
+    command, port = sys.argv[1], int(sys.argv[2])
+    payload = json.loads(Path(sys.argv[3]).read_text(encoding="utf-8"))
+    ctx = lo.connect(port, timeout=90.0)
+    if command != "live":
+        raise SystemExit(f"unknown command {command!r}")
+    print(json.dumps(driver_live(ctx, payload)))
+    return 0
+
+
+# ============================================================================================
+# test side (venv)
+# ============================================================================================
+if __name__ != "__main__":
+    import pytest
+
+    import reduction.demo as demo
+    from reduction.workbook import (
+        CONSTANTS,
+        FIRST_ROW,
+        ISOCHRON_FIRST_Q_ROW,
+        ISOCHRON_SUMMARY_COL,
+        SPIKES,
+        evaluate,
+        expected_formulas,
+        layout_grid,
+        read_ods,
+        write_xlsx,
+    )
+
+    sys.path.insert(0, str(ROOT / "templates"))
+    from odswriter import write_ods
+
+    pytestmark = pytest.mark.libreoffice
+
+    RUN_FILE = ("# invented run file (RatioDesk run-file format)\n"
+                "#map Sample ID=analysis\n"
+                "Sample ID,element,date,143Nd/144Nd,143Nd/144Nd 2s,146Nd/144Nd,146Nd/144Nd 2s\n"
+                "SN-99,Nd,2026-05-01,0.5041,4e-6,0.7477,8e-6\n"
+                "=HYPERLINK(\"http://example.invalid\"),+Nd,@SUM(1),-0.5,+1e-6,0.7,1e-6\n")
+
+    def _row(grid, sheet, key, col=0, second=None):
+        for r in range(FIRST_ROW, len(grid[sheet]) + 1):
+            row = grid[sheet][r - 1]
+            if row and row[col] == key and (second is None or row[1] == second):
+                return r
+        raise AssertionError(key)
+
+    def _put(grid, sheet, row, col, v):
+        line = grid[sheet][row - 1]
+        while len(line) <= col:
+            line.append("")
+        line[col] = v
+
+    def _close(a, b):
+        if isinstance(a, float) and isinstance(b, float):
+            return a == b or abs(a - b) <= REL_TOL * max(abs(a), abs(b))
+        return a == b
+
+    @pytest.fixture(scope="module", params=[".ods", ".xlsx"])
+    def live(request, office, tmp_path_factory):
+        work = tmp_path_factory.mktemp("live")
+        lay = demo.demo_layout()
+        book = work / f"demo{request.param}"
+        (write_ods if request.param == ".ods" else write_xlsx)(lay, book)
+        grid = layout_grid(lay)
+        cells = sorted(expected_formulas())
+        edits, grids = [], []
+        g = copy.deepcopy(grid)
+        vcol = CONSTANTS.col_index("value")
+        for sheet, key, second, col, factor in (
+                ("Constants", "rm.JNdi-1.143Nd/144Nd", None, vcol, 1 + 3e-5),
+                ("Spikes", "LH-SmNd-3", "Sm", SPIKES.col_index("conc_umol_g"), 1.004),
+                ("Constants", "decay.Sm147", None, vcol, 6.5238e-12 / 6.54e-12)):
+            r = _row(g, sheet, key, 0, second)
+            new = g[sheet][r - 1][col] * factor
+            _put(g, sheet, r, col, new)
+            edits.append({"sheet": sheet, "row": r, "col": col, "value": new})
+            grids.append(copy.deepcopy(g))
+        inputs = [["Samples", r, c] for r in range(FIRST_ROW, FIRST_ROW + 12) for c in range(10)]
+        payload = {"book": str(book), "cells": [list(c) for c in cells], "edits": edits, "inputs": inputs,
+                   "copy": str(work / "collaborator.ods"), "run_file": RUN_FILE}
+        pin = work / "live-in.json"
+        pin.write_text(json.dumps(payload), encoding="utf-8")
+        proc = subprocess.run(["/usr/bin/python3", __file__, "live", str(office.port), str(pin)],
+                              capture_output=True, text=True, timeout=600)
+        assert proc.returncode == 0, proc.stderr[-4000:]
+        got = json.loads(proc.stdout.strip().splitlines()[-1])
+        return {"got": got, "cells": cells, "grid": grid, "grids": grids, "work": work, "kind": request.param}
+
+    def _compare(cells, got, ev):
+        bad = []
+        for key, v in zip(cells, got):
+            want = ev.cells.get(key, "")
+            if not _close(v, want):
+                bad.append((key, v, want))
+        return bad
+
+    def test_grid_equals_batch_path(live):
+        ev = evaluate(live["grid"])
+        bad = _compare(live["cells"], live["got"]["initial"], ev)
+        assert not bad, bad[:5]
+        age = live["got"]["initial"][live["cells"].index(("Isochron", ISOCHRON_FIRST_Q_ROW + 1,
+                                                          ISOCHRON_SUMMARY_COL + 1))]
+        assert isinstance(age, float) and abs(age - demo.TRUE_AGES_MA["sm-nd"]) < 3
+
+    @pytest.mark.parametrize("step,what", [(0, "accepted value of JNdi-1"), (1, "Sm spike calibration"),
+                                           (2, "147Sm decay constant")])
+    def test_live_chain_follows_each_edit(live, step, what):
+        ev = evaluate(live["grids"][step])
+        got = live["got"]["steps"][step]
+        bad = _compare(live["cells"], got, ev)
+        assert not bad, (what, bad[:5])
+        prev = live["got"]["steps"][step - 1] if step else live["got"]["initial"]
+        changed = sum(1 for a, b in zip(prev, got) if a != b)
+        assert changed > 0, f"nothing recalculated after editing the {what}"
+
+    def test_collaborator_copy_has_values_and_provenance_and_leaves_the_book_alone(live):
+        got = live["got"]
+        assert got["inputs_after_copy"] == got["inputs_before_copy"]
+        data = read_ods(live["work"] / "collaborator.ods")
+        assert not data.formulas                         # a machine without RatioDesk shows every value
+        assert "Provenance" in data.grid
+        flat = " ".join(str(v) for r in data.grid["Provenance"] for v in r)
+        assert "decay.Sm147" in flat and "LH-SmNd-3" in flat and "RatioDesk" in flat
+        final = live["got"]["steps"][-1]
+        k = live["cells"].index(("Isochron", ISOCHRON_FIRST_Q_ROW + 1, ISOCHRON_SUMMARY_COL + 1))
+        r, c = live["cells"][k][1], live["cells"][k][2]
+        assert data.grid["Isochron"][r - 1][c] == final[k]
+
+    def test_run_file_import_stores_text_as_text(live):
+        got = live["got"]
+        assert got["import"]["imported"] == 2 and "Import 2 run(s)" in got["confirm"]
+        first, second = got["imported_cells"]
+        assert first[0] == ["TEXT", "SN-99"] and first[4][0] == "VALUE"
+        # a formula-looking text stays text
+        assert second[0] == ["TEXT", '=HYPERLINK("http://example.invalid")']
+        assert second[1] == ["TEXT", "+Nd"] and second[2] == ["TEXT", "@SUM(1)"]
+        assert second[4][0] == "VALUE"                   # -0.5 is a number
+
+
+if __name__ == "__main__":
+    sys.exit(_driver_main())
