@@ -207,8 +207,15 @@ class _Work:
         self.has_rho = has_rho
         self.d = np.empty_like(x)
         self.w = np.empty_like(x)
-        self.u = np.empty_like(x)
-        self.v = np.empty_like(x)
+        # a short single fit gets its sums from two matrix-vector products instead of five dots
+        self.small = x.ndim == 1 and x.size < _BLAS_MAX
+        if self.small:
+            self.p1xy = np.stack([np.ones_like(x), x, y])
+            self.uv = np.empty((2, x.size))
+            self.u, self.v = self.uv[0], self.uv[1]
+        else:
+            self.u = np.empty_like(x)
+            self.v = np.empty_like(x)
         self.t = np.empty_like(x)
         self.tmp = np.empty_like(x)
         self.e = np.empty_like(x)
@@ -237,9 +244,15 @@ class _Work:
         d *= b
         d += self.vy
         np.divide(1.0, d, out=w)
-        self.sw = sw = np.add.reduce(w, axis=0)
-        self.xb = xb = self.wsum(w, self.x) / sw
-        self.yb = yb = self.wsum(w, self.y) / sw
+        if self.small:
+            sw, swx, swy = self.p1xy @ w
+            self.sw = sw
+            self.xb = xb = swx / sw
+            self.yb = yb = swy / sw
+        else:
+            self.sw = sw = np.add.reduce(w, axis=0)
+            self.xb = xb = self.wsum(w, self.x) / sw
+            self.yb = yb = self.wsum(w, self.y) / sw
         np.subtract(self.x, xb, out=u)
         np.subtract(self.y, yb, out=v)
         # W β = W² [U σy² + b V σx² − (bU + V) ρσxσy]
@@ -254,6 +267,9 @@ class _Work:
             t -= tmp
         t *= w
         t *= w
+        if self.small:
+            den, num = self.uv @ t
+            return num / den
         return self.wsum(t, v) / self.wsum(t, u)
 
 
