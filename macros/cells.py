@@ -606,3 +606,282 @@ def rdEllipse(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, points: Any = N
                                                  number("rho", rho, 0.0), n_points=int(n),
                                                  confidence=number("confidence", confidence, 0.95))
     return tuple((float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist()))
+
+
+# --------------------------------------------------------------------------------------------
+# shared readers for part-2 inputs
+# --------------------------------------------------------------------------------------------
+def names_values(names_arg: str, names: Any, values_arg: str, values: Any,
+                 sigmas_arg: Optional[str] = None, sigmas: Any = None) -> Tuple[Dict[str, float], Optional[Dict]]:
+    """Named ratios from a range of names and a parallel range of values (and optional sigmas)."""
+    labels = _cells(names_arg, names)
+    if len(labels) != len(_cells(values_arg, values)):
+        raise CellMessage(f"{names_arg} has {len(labels)} cells but {values_arg} has "
+                          f"{len(_cells(values_arg, values))}")
+    nums, kept = columns([(values_arg, values)] + ([(sigmas_arg, sigmas)] if sigmas_arg else []),
+                         optional=(sigmas_arg,) if sigmas_arg else ())
+    keep = [i - 1 for i in kept]
+    out: Dict[str, float] = {}
+    sig: Optional[Dict[str, float]] = {} if sigmas_arg and nums.get(sigmas_arg) is not None else None
+    for j, i in enumerate(keep):
+        label = labels[i]
+        if isinstance(label, str) and label.startswith(MARKER):
+            raise _passed_on(names_arg, label)
+        if not isinstance(label, str) or not label.strip():
+            raise CellMessage(f"row {i + 1} of {names_arg} must be a ratio name such as 143Nd/144Nd")
+        out[label.strip()] = nums[values_arg][j]
+        if sig is not None:
+            sig[label.strip()] = nums[sigmas_arg][j]
+    return out, sig
+
+
+_ISOTOPE = re.compile(r"^\s*(\d+)([A-Z][a-z]?)\s*$")
+SPIKE_CACHE = _Cache(64)
+
+
+def spike(name: str, grid: Any) -> Any:
+    """A spike record from a 3-row block: isotope names; abundances; spike isotope, umol/g, 1 sigma."""
+    try:
+        return SPIKE_CACHE.hit(grid)
+    except KeyError:
+        pass
+    except TypeError:
+        raise CellMessage(f"{name} must be a range of 3 rows") from None
+    if not isinstance(grid, tuple) or len(grid) != 3:
+        raise CellMessage(f"{name} must be 3 rows: isotope names; abundances; spike isotope, umol/g, 1 sigma")
+    isotopes, abundances = [], []
+    for j, (iso, ab) in enumerate(zip(grid[0], grid[1])):
+        if _is_empty(iso) and _is_empty(ab):
+            continue
+        if not isinstance(iso, str) or not _ISOTOPE.match(iso):
+            raise CellMessage(f"column {j + 1} of {name}, row 1: {iso!r} is not an isotope name such as 150Nd")
+        isotopes.append(iso.strip())
+        abundances.append(number(f"abundance of {iso.strip()} in {name}", ab))
+    third = list(grid[2]) + ["", "", ""]
+    spike_iso = text(f"spike isotope (row 3, column 1 of {name})", third[0])
+    m = _ISOTOPE.match(third[0]) if isinstance(third[0], str) else None
+    if not m:
+        raise CellMessage(f"row 3, column 1 of {name} must name the spike isotope, e.g. 150Nd")
+    conc = number(f"concentration (row 3, column 2 of {name})", third[1])
+    conc_s = number(f"1 sigma (row 3, column 3 of {name})", third[2], 0.0)
+    del spike_iso
+    return SPIKE_CACHE.get(grid, lambda: engine("dilution").make_spike(
+        m.group(2), isotopes, abundances, third[0].strip(), conc, conc_s, label=name))
+
+
+# --------------------------------------------------------------------------------------------
+# cycles, interference, mass bias
+# --------------------------------------------------------------------------------------------
+@cell_function(array=True, rename={"values": "cycles", "reject_k": "rejectK", "min_kept": "minKept"})
+def rdCycles(cycles: Any, rejectK: Any = None, minKept: Any = None) -> Any:
+    cols, kept = columns([("cycles", cycles)])
+    if isinstance(rejectK, str) and rejectK.strip().lower() == "none":
+        k: Optional[float] = None
+    else:
+        k = number("rejectK", rejectK, 2.0) or 2.0  # an empty cell arrives as 0: the default
+    n_min = number("minKept", minKept, 3.0) or 3.0
+    if n_min != int(n_min):
+        raise CellMessage(f"minKept must be a whole number, got {n_min!r}")
+    st = call(engine("cycles").cycle_stats, kept, cols["cycles"], reject_k=k, min_kept=int(n_min))
+    return row(cell(st.mean), cell(st.sem_1s), cell(st.sd_1s), cell(st.n_kept), cell(st.n_rejected))
+
+
+@cell_function(array=True, rename={"monitor_isotope": "monitorIsotope", "bias_factor": "biasFactor",
+                                   "true_ratio": "trueRatio"})
+def rdInterferenceStrip(total: Any, monitor: Any, interferent: Any, monitorIsotope: Any, biasFactor: Any = None,
+                        law: Any = None, trueRatio: Any = None) -> Any:
+    tr = None if trueRatio is None or trueRatio == 0.0 else number("trueRatio", trueRatio)
+    st = engine("interference").strip_isobar(
+        number("total", total), number("monitor", monitor), _isotope_text("interferent", interferent),
+        _isotope_text("monitorIsotope", monitorIsotope), bias_factor=number("biasFactor", biasFactor, 0.0),
+        law=text("law", law, "exponential"), true_ratio=tr)
+    return row(cell(st.corrected), cell(st.correction), cell(st.correction_rel))
+
+
+def _isotope_text(name: str, v: Any) -> str:
+    """Isotope and ratio names keep their case (144Sm, 146Nd/144Nd)."""
+    if type(v) is tuple:
+        v = _one(name, v)
+    if isinstance(v, str) and v.startswith(MARKER):
+        raise _passed_on(name, v)
+    if not isinstance(v, str) or not v.strip():
+        raise CellMessage(f"{name} is required: a name such as 144Sm or 146Nd/144Nd")
+    return v.strip()
+
+
+def _optional_number(name: str, v: Any) -> Optional[float]:
+    """None when omitted or pointing at an empty cell (0.0), else the number."""
+    return None if v is None or v == "" or (type(v) is float and v == 0.0) else number(name, v)
+
+
+@cell_function(rename={"measured_norm": "measuredNorm", "norm_ratio": "normRatio", "true_norm": "trueNorm",
+                       "ratio": "normRatio"})
+def rdMassbiasFactor(measuredNorm: Any, normRatio: Any, law: Any = None, trueNorm: Any = None) -> Any:
+    return cell(engine("massbias").bias_factor_from(
+        number("measuredNorm", measuredNorm), _isotope_text("normRatio", normRatio),
+        true_norm=_optional_number("trueNorm", trueNorm), law=text("law", law, "exponential")))
+
+
+@cell_function()
+def rdMassbiasCorrect(measured: Any, ratio: Any, factor: Any, law: Any = None) -> Any:
+    return cell(engine("massbias").correct_named(number("measured", measured), _isotope_text("ratio", ratio),
+                                                 number("factor", factor), text("law", law, "exponential")))
+
+
+@cell_function(rename={"measured_norm": "measuredNorm", "norm_ratio": "normRatio", "true_norm": "trueNorm"})
+def rdMassbiasNormalise(measured: Any, ratio: Any, measuredNorm: Any, normRatio: Any, law: Any = None,
+                        trueNorm: Any = None) -> Any:
+    return cell(engine("massbias").normalise(
+        number("measured", measured), _isotope_text("ratio", ratio), number("measuredNorm", measuredNorm),
+        _isotope_text("normRatio", normRatio), true_norm=_optional_number("trueNorm", trueNorm),
+        law=text("law", law, "exponential")))
+
+
+# --------------------------------------------------------------------------------------------
+# isotope dilution, blank, standards
+# --------------------------------------------------------------------------------------------
+_DIL = {"mix_ratio": "mixRatio", "sample_mass_g": "sampleMass", "spike_mass_g": "spikeMass",
+        "bias_factor": "biasFactor", "norm_ratio": "normRatio", "measured": "values"}
+
+
+@cell_function(rename=_DIL)
+def rdDilutionConc(mixRatio: Any, ratio: Any, sampleMass: Any, spikeMass: Any, spike_: Any, biasFactor: Any = None,
+                   law: Any = None) -> Any:
+    return cell(engine("dilution").id_concentration(
+        number("mixRatio", mixRatio), _isotope_text("ratio", ratio), number("sampleMass", sampleMass),
+        number("spikeMass", spikeMass), spike("spike", spike_), bias_factor=number("biasFactor", biasFactor, 0.0),
+        law=text("law", law, "exponential")))
+
+
+@cell_function(array=True, rename=_DIL)
+def rdDilutionBlock(names: Any, values: Any, spike_: Any, sampleMass: Any, spikeMass: Any, normRatio: Any = None,
+                    biasFactor: Any = None, law: Any = None) -> Any:
+    measured, _ = names_values("names", names, "values", values)
+    norm = None if normRatio is None or normRatio == 0.0 or normRatio == "" else _isotope_text("normRatio", normRatio)
+    d = engine("dilution").isotope_dilution(
+        measured, spike("spike", spike_), number("sampleMass", sampleMass), number("spikeMass", spikeMass),
+        norm_ratio=norm, bias_factor=_optional_number("biasFactor", biasFactor), law=text("law", law, "exponential"))
+    rows = [("conc_ug_g", cell(d.conc_ug_g)), ("conc_umol_g", cell(d.conc_umol_g)),
+            ("ref_umol_g", cell(d.ref_umol_g)), ("bias_factor", cell(d.bias_factor)),
+            ("magnification", cell(d.magnification)), ("magnification_min", cell(d.magnification_min)),
+            ("poor_mix", "yes" if bool(d.poor_mix) else "no"), ("iterations", cell(d.iterations))]
+    rows += [(name, cell(v)) for name, v in d.sample_ratios.items()]
+    return tuple(rows)
+
+
+@cell_function(array=True, rename={"total_umol": "totalUmol", "total_ratio": "totalRatio", "blank_umol": "blankUmol",
+                                   "blank_ratio": "blankRatio", "total_sigma_1s": "totalSigma",
+                                   "blank_sigma_1s": "blankSigma", "total_ratio_sigma_1s": "totalRatioSigma",
+                                   "blank_ratio_sigma_1s": "blankRatioSigma"})
+def rdBlankCorrect(totalUmol: Any, totalRatio: Any, blankUmol: Any, blankRatio: Any, totalSigma: Any = None,
+                   blankSigma: Any = None, totalRatioSigma: Any = None, blankRatioSigma: Any = None) -> Any:
+    b = engine("blank").blank_correct(
+        number("totalUmol", totalUmol), number("totalRatio", totalRatio), number("blankUmol", blankUmol),
+        number("blankRatio", blankRatio), total_sigma_1s=number("totalSigma", totalSigma, 0.0),
+        blank_sigma_1s=number("blankSigma", blankSigma, 0.0),
+        total_ratio_sigma_1s=number("totalRatioSigma", totalRatioSigma, 0.0),
+        blank_ratio_sigma_1s=number("blankRatioSigma", blankRatioSigma, 0.0))
+    return row(cell(b.amount_umol), cell(b.amount_sigma_1s), cell(b.ratio), cell(b.ratio_sigma_1s),
+               cell(b.rho_amount_ratio), cell(b.blank_share))
+
+
+@cell_function(rename={"blank_ng": "blankNg", "reference_isotope": "isotope"})
+def rdBlankUmol(blankNg: Any, element: Any, isotope: Any) -> Any:
+    return cell(engine("blank").blank_umol(number("blankNg", blankNg), _isotope_text("element", element),
+                                           _isotope_text("isotope", isotope)))
+
+
+STANDARD_CACHE = _Cache(64)
+
+
+def standard(runs: Any, accepted: Any, material: Any, ratio: Any, acceptedSigma: Any) -> Any:
+    """The engine's session factor from the runs (cached by the cells)."""
+    raw = (runs, accepted, material, ratio, acceptedSigma)
+    try:
+        return STANDARD_CACHE.hit(raw)
+    except KeyError:
+        pass
+    cols, kept = columns([("runs", runs)])
+    acc = _optional_number("accepted", accepted)
+    mat = None if material is None or material == 0.0 or material == "" else _isotope_text("material", material)
+    rat = None if ratio is None or ratio == 0.0 or ratio == "" else _isotope_text("ratio", ratio)
+    acc_s = _optional_number("acceptedSigma", acceptedSigma)
+    std = engine("standards")
+    return STANDARD_CACHE.get(raw, lambda: call(std.standard_factor, kept, cols["runs"], acc, material=mat, ratio=rat,
+                                                accepted_sigma_1s=acc_s))
+
+
+_STD = {"measured": "runs", "accepted_sigma_1s": "acceptedSigma", "sigma_1s": "sigma", "values": "value"}
+
+
+@cell_function(array=True, rename=_STD)
+def rdStandardFactor(runs: Any, accepted: Any = None, material: Any = None, ratio: Any = None,
+                     acceptedSigma: Any = None) -> Any:
+    f = standard(runs, accepted, material, ratio, acceptedSigma)
+    return row(cell(f.factor), cell(f.factor_sigma_1s_random), cell(f.factor_sigma_1s_systematic), cell(f.n),
+               cell(f.mean), cell(f.reproducibility_rel_1s))
+
+
+@cell_function(array=True, rename=_STD)
+def rdStandardApply(value: Any, sigma: Any, runs: Any, accepted: Any = None, material: Any = None, ratio: Any = None,
+                    acceptedSigma: Any = None, reproducibility: Any = None) -> Any:
+    f = standard(runs, accepted, material, ratio, acceptedSigma)
+    v, s_r, s_s = engine("standards").apply_standard(number("value", value), number("sigma", sigma), f,
+                                                     add_reproducibility=flag("reproducibility", reproducibility,
+                                                                              True))
+    return row(cell(v), cell(s_r), cell(s_s))
+
+
+# --------------------------------------------------------------------------------------------
+# one spiked analysis with propagated sigma and rho
+# --------------------------------------------------------------------------------------------
+@cell_function(array=True, rename={"parent_mix": "parentValues", "daughter_mix": "daughterValues",
+                                   "sample_mass_g": "sampleMass", "spike_mass_g": "spikeMass",
+                                   "parent_spike": "parentSpike", "daughter_spike": "daughterSpike",
+                                   "parent_norm_ratio": "parentNorm", "parent_bias_factor": "parentBias",
+                                   "parent_blank_ng": "parentBlankNg", "daughter_blank_ng": "daughterBlankNg"})
+def rdAnalysisBlock(system: Any, parentNames: Any, parentValues: Any, daughterNames: Any, daughterValues: Any,
+                    sampleMass: Any, spikeMass: Any, parentSpike: Any, daughterSpike: Any, parentSigmas: Any = None,
+                    daughterSigmas: Any = None, parentNorm: Any = None, parentBias: Any = None,
+                    parentBlankNg: Any = None, daughterBlankNg: Any = None) -> Any:
+    pm, ps = names_values("parentNames", parentNames, "parentValues", parentValues, "parentSigmas",
+                          parentSigmas if isinstance(parentSigmas, tuple) else None)
+    dm, ds = names_values("daughterNames", daughterNames, "daughterValues", daughterValues, "daughterSigmas",
+                          daughterSigmas if isinstance(daughterSigmas, tuple) else None)
+    norm = None if parentNorm is None or parentNorm == 0.0 or parentNorm == "" else _isotope_text("parentNorm",
+                                                                                                  parentNorm)
+    r = engine("chain").reduce_spiked_analysis(
+        text("system", system), pm, dm, number("sampleMass", sampleMass), number("spikeMass", spikeMass),
+        spike("parentSpike", parentSpike), spike("daughterSpike", daughterSpike), parent_mix_sigma_1s=ps,
+        daughter_mix_sigma_1s=ds, parent_norm_ratio=norm, parent_bias_factor=_optional_number("parentBias", parentBias),
+        parent_blank_ng=number("parentBlankNg", parentBlankNg, 0.0),
+        daughter_blank_ng=number("daughterBlankNg", daughterBlankNg, 0.0))
+    rows = [(r.parent_ratio_name, cell(r.parent_ratio)), ("1s", cell(r.parent_ratio_sigma_1s)),
+            (r.daughter_ratio_name, cell(r.daughter_ratio)), ("1s", cell(r.daughter_ratio_sigma_1s)),
+            ("rho", cell(r.rho)), ("parent_ug_g", cell(r.parent_conc_ug_g)),
+            ("parent_ug_g_1s", cell(r.parent_conc_sigma_1s)), ("daughter_ug_g", cell(r.daughter_conc_ug_g)),
+            ("daughter_ug_g_1s", cell(r.daughter_conc_sigma_1s)), ("rho_random", cell(r.rho_random))]
+    for kind, parts in (("random", r.sigma_1s_random), ("systematic", r.sigma_1s_systematic)):
+        rows += [(f"{name} 1s {kind}", cell(v)) for name, v in parts.items()]
+    rows.append(("poor_mix", ", ".join(r.poor_mix) if r.poor_mix else "no"))
+    return tuple(rows)
+
+
+# --------------------------------------------------------------------------------------------
+# the template workbook: the cells go to the engine as they arrive (it reads the tables itself)
+# --------------------------------------------------------------------------------------------
+@cell_function()
+def rdWorkbookAnalysis(quantity: Any, analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any,
+                       refValues: Any) -> Any:
+    a = _one("analysis", analysis) if type(analysis) is tuple else analysis
+    if isinstance(a, str) and a.startswith(MARKER):
+        raise _passed_on("analysis", a)
+    return cell(engine("workbook").analysis_value(text("quantity", quantity), "" if a is None else a, samples,
+                                                  measured, spikes, standards, refValues))
+
+
+@cell_function()
+def rdWorkbookIsochron(quantity: Any, system: Any, treatment: Any, selection: Any, results: Any,
+                       refValues: Any) -> Any:
+    return cell(engine("workbook").isochron_value(text("quantity", quantity), _isotope_text("system", system),
+                                                  text("treatment", treatment, ""), selection, results, refValues))

@@ -20,7 +20,7 @@ from typing import Any, Callable, Dict, List, Optional, Sequence, Tuple, Union
 import functions as table
 
 import reduction
-from reduction import ages, constants, regression
+from reduction import ages, blank, chain, constants, cycles, dilution, interference, massbias, regression, standards
 
 MARK = table.MESSAGE_MARKER
 
@@ -200,6 +200,140 @@ def _anchored() -> Any:
     return block(regression.fit_isochron(X, SX, Y, SY, RHO, anchor=(0.51090, 1e-5)))
 
 
+# part 2: raw data -> corrected ratios (invented run values; spikes are the engine's INVENTED demo spikes)
+CYC = [0.5121105, 0.5121098, 0.5121112, 0.5121101, 0.5121109, 0.5121095, 0.5121230, 0.5121103, 0.5121107,
+       0.5121099]
+_SPK = dilution.load_demo_spikes()
+ND_SPIKE, SM_SPIKE = _SPK["demo-SmNd-149-150 Nd"], _SPK["demo-SmNd-149-150 Sm"]
+
+
+def spike_block(sp: Any) -> R:
+    n = len(sp.isotopes)
+    third = (sp.spike_isotope, sp.concentration_umol_g, sp.concentration_sigma_1s) + (None,) * (n - 3)
+    return R((tuple(sp.isotopes), tuple(sp.abundances), third))
+
+
+def spike_of(sp: Any) -> Any:
+    """The spike exactly as the adapter builds it from the block."""
+    return dilution.make_spike(sp.element, sp.isotopes, sp.abundances, sp.spike_isotope, sp.concentration_umol_g,
+                               sp.concentration_sigma_1s)
+
+
+def _rounded(d: Dict[str, float], keys: Sequence[str]) -> Dict[str, float]:
+    return {k: round(float(d[k]), 9) for k in keys}
+
+
+ND_KEYS = ("143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd")
+SM_KEYS = ("147Sm/152Sm", "149Sm/152Sm")
+ND_MIX = _rounded(dilution.forward_mixture("Nd", "144Nd", 0.10, 0.30, ND_SPIKE, 0.08, bias_factor=1.6,
+                                           sample_ratios={"143Nd/144Nd": 0.5121}), ND_KEYS)
+SM_MIX = _rounded(dilution.forward_mixture("Sm", "152Sm", 0.02, 0.30, SM_SPIKE, 0.08, bias_factor=1.35), SM_KEYS)
+ND_MIX_1S = {k: 2e-6 * v for k, v in ND_MIX.items()}
+SM_MIX_1S = {k: 3e-6 * v for k, v in SM_MIX.items()}
+RUNS = [0.512098, 0.512105, 0.512101, 0.512110]
+
+
+def _row(names: Sequence[str], d: Dict[str, float]) -> Tuple[R, R]:
+    return R((tuple(names),)), R((tuple(d[k] for k in names),))
+
+
+def _cycles(k: Any = 2.0) -> Any:
+    st = cycles.cycle_stats(CYC, reject_k=k)
+    return ((st.mean, st.sem_1s, st.sd_1s, st.n_kept, st.n_rejected),)
+
+
+def _strip() -> Any:
+    st = interference.strip_isobar(2.0, 4e-4, "144Sm", "147Sm", bias_factor=1.3)
+    return ((st.corrected, st.correction, st.correction_rel),)
+
+
+def _dil_block() -> Any:
+    d = dilution.isotope_dilution(dict(ND_MIX), spike_of(ND_SPIKE), 0.30, 0.08, norm_ratio="146Nd/144Nd")
+    rows = [("conc_ug_g", d.conc_ug_g), ("conc_umol_g", d.conc_umol_g), ("ref_umol_g", d.ref_umol_g),
+            ("bias_factor", d.bias_factor), ("magnification", d.magnification),
+            ("magnification_min", d.magnification_min), ("poor_mix", "yes" if d.poor_mix else "no"),
+            ("iterations", d.iterations)]
+    return tuple(rows + [(k, v) for k, v in d.sample_ratios.items()])
+
+
+def _blank() -> Any:
+    b = blank.blank_correct(0.002, 0.5125, 1e-5, 0.5110, total_sigma_1s=2e-6, blank_sigma_1s=3e-6,
+                            total_ratio_sigma_1s=1e-6, blank_ratio_sigma_1s=0.002)
+    return ((b.amount_umol, b.amount_sigma_1s, b.ratio, b.ratio_sigma_1s, b.rho_amount_ratio, b.blank_share),)
+
+
+def _std() -> Any:
+    return standards.standard_factor(RUNS, material="JNdi-1", ratio="143Nd/144Nd")
+
+
+def _analysis() -> Any:
+    r = chain.reduce_spiked_analysis("sm-nd", dict(SM_MIX), dict(ND_MIX), 0.30, 0.08, spike_of(SM_SPIKE),
+                                     spike_of(ND_SPIKE), parent_mix_sigma_1s=dict(SM_MIX_1S),
+                                     daughter_mix_sigma_1s=dict(ND_MIX_1S), parent_norm_ratio="147Sm/152Sm",
+                                     daughter_blank_ng=0.02)
+    rows = [(r.parent_ratio_name, r.parent_ratio), ("1s", r.parent_ratio_sigma_1s),
+            (r.daughter_ratio_name, r.daughter_ratio), ("1s", r.daughter_ratio_sigma_1s), ("rho", r.rho),
+            ("parent_ug_g", r.parent_conc_ug_g), ("parent_ug_g_1s", r.parent_conc_sigma_1s),
+            ("daughter_ug_g", r.daughter_conc_ug_g), ("daughter_ug_g_1s", r.daughter_conc_sigma_1s),
+            ("rho_random", r.rho_random)]
+    for kind, parts in (("random", r.sigma_1s_random), ("systematic", r.sigma_1s_systematic)):
+        rows += [(f"{name} 1s {kind}", v) for name, v in parts.items()]
+    rows.append(("poor_mix", ", ".join(r.poor_mix) if r.poor_mix else "no"))
+    return tuple(rows)
+
+
+_ND_NAMES, _ND_VALUES = _row(ND_KEYS, ND_MIX)
+_SM_NAMES, _SM_VALUES = _row(SM_KEYS, SM_MIX)
+PART2: List[Case] = [
+    Case("cycles", "rdCycles", (R((tuple(CYC[:5]) + (None,) + tuple(CYC[5:]),)),), _cycles, array=True),
+    Case("cycles-k3", "rdCycles", (col(CYC), L(3.0)), lambda: _cycles(3.0), array=True),
+    Case("cycles-none", "rdCycles", (col(CYC), L("none")), lambda: _cycles(None), array=True),
+    Case("interference-strip", "rdInterferenceStrip", (L(2.0), L(4e-4), L("144Sm"), L("147Sm"), L(1.3)), _strip,
+         array=True),
+    Case("massbias-factor", "rdMassbiasFactor", (L(0.7235), L("146Nd/144Nd")),
+         lambda: massbias.bias_factor_from(0.7235, "146Nd/144Nd")),
+    Case("massbias-factor-power", "rdMassbiasFactor", (L(0.7235), L("146Nd/144Nd"), L("power"), L(0.7219)),
+         lambda: massbias.bias_factor_from(0.7235, "146Nd/144Nd", true_norm=0.7219, law="power")),
+    Case("massbias-correct", "rdMassbiasCorrect", (L(0.5118), L("143Nd/144Nd"), L(1.62)),
+         lambda: massbias.correct_named(0.5118, "143Nd/144Nd", 1.62)),
+    Case("massbias-normalise", "rdMassbiasNormalise", (L(0.5118), L("143Nd/144Nd"), L(0.7235), L("146Nd/144Nd")),
+         lambda: massbias.normalise(0.5118, "143Nd/144Nd", 0.7235, "146Nd/144Nd")),
+    Case("dilution-conc", "rdDilutionConc",
+         (L(ND_MIX["150Nd/144Nd"]), L("150Nd/144Nd"), L(0.30), L(0.08), spike_block(ND_SPIKE), L(1.6)),
+         lambda: dilution.id_concentration(ND_MIX["150Nd/144Nd"], "150Nd/144Nd", 0.30, 0.08, spike_of(ND_SPIKE),
+                                           bias_factor=1.6)),
+    Case("dilution-block", "rdDilutionBlock",
+         (_ND_NAMES, _ND_VALUES, spike_block(ND_SPIKE), L(0.30), L(0.08), L("146Nd/144Nd")), _dil_block, array=True),
+    Case("blank-correct", "rdBlankCorrect", (L(0.002), L(0.5125), L(1e-5), L(0.5110), L(2e-6), L(3e-6), L(1e-6),
+                                             L(0.002)), _blank, array=True),
+    Case("blank-umol", "rdBlankUmol", (L(0.05), L("Nd"), L("144Nd")), lambda: blank.blank_umol(0.05, "Nd", "144Nd")),
+    Case("standard-factor", "rdStandardFactor", (col(RUNS), OMIT, L("JNdi-1"), L("143Nd/144Nd")),
+         lambda: ((_std().factor, _std().factor_sigma_1s_random, _std().factor_sigma_1s_systematic, _std().n,
+                   _std().mean, _std().reproducibility_rel_1s),), array=True),
+    Case("standard-apply", "rdStandardApply", (L(0.51230), L(4e-6), col(RUNS), OMIT, L("JNdi-1"), L("143Nd/144Nd")),
+         lambda: (tuple(standards.apply_standard(0.51230, 4e-6, _std())),), array=True),
+    Case("analysis", "rdAnalysisBlock",
+         (L("sm-nd"), _SM_NAMES, _SM_VALUES, _ND_NAMES, _ND_VALUES, L(0.30), L(0.08), spike_block(SM_SPIKE),
+          spike_block(ND_SPIKE), R((tuple(SM_MIX_1S[k] for k in SM_KEYS),)),
+          R((tuple(ND_MIX_1S[k] for k in ND_KEYS),)), L("147Sm/152Sm"), OMIT, OMIT, L(0.02)), _analysis, array=True),
+    # the template's own functions: numbers are checked against the batch path by
+    # tests/integration/test_template_live.py; here the messages naming the sheet cell
+    Case("msg-workbook-analysis", "rdWorkbookAnalysis",
+         (L("x"), L("QM-1"), R((("analysis",), ("QM-1",))), R((("a",),)), R((("a",),)), R((("a",),)),
+          R((("a",),))), Msg(("Samples, row 4", "'system' is missing"))),
+    Case("msg-workbook-isochron", "rdWorkbookIsochron",
+         (L("age"), L("Sm-Nd"), OMIT, R((("analysis", "use"), ("QM-1", 1.0))), R((("analysis",), (None,))),
+          R((("a",),))), Msg(("Isochron, row 5", "'QM-1' is not on the Results sheet"))),
+    Case("msg-spike-block", "rdDilutionConc",
+         (L(0.26), L("150Nd/144Nd"), L(0.30), L(0.08), R((("150Nd", "x144"), (0.97, 0.03), ("150Nd", 0.004)))),
+         Msg(("'x144' is not an isotope name",))),
+    Case("msg-cycles-text", "rdCycles", (col(CYC[:3] + ["spike"] + CYC[4:]),), Msg(("row 4 of cycles", "text")),
+         array=True),
+    Case("msg-names-values", "rdDilutionBlock",
+         (R((ND_KEYS[:2],)), _ND_VALUES, spike_block(ND_SPIKE), L(0.30), L(0.08)), Msg(("names has 2 cells",)),
+         array=True),
+]
+
 _P1 = R(((X[0], SX[0], Y[0], SY[0], RHO[0]),))
 _P2 = R(((X[4], SX[4], Y[4], SY[4], RHO[4]),))
 _GAP = [None]
@@ -277,6 +411,7 @@ CASES: List[Case] = [
     Case("msg-slope-undefined", "rdAgeSlope", (L(-1.5), L("sm-nd")), Msg(("undefined", "slope"))),
 ]
 
+CASES += PART2
 BY_ID: Dict[str, Case] = {c.id: c for c in CASES}
 
 

@@ -62,7 +62,10 @@ def test_stored_names_never_change():
     assert functions.INTERFACE_NAME == "org.ratiodesk.XCalcFunctions"
     for m in ("rdVersion", "rdEcho", "rdIsochronBlock", "rdIsochronSlope", "rdIsochronIntercept", "rdIsochronMswd",
               "rdIsochronValue", "rdAgeIsochron", "rdAgeSlope", "rdMeanWeighted", "rdAgeTwoPoint", "rdAgeModel",
-              "rdInitialRatio", "rdEpsilon", "rdEllipse"):
+              "rdInitialRatio", "rdEpsilon", "rdEllipse", "rdCycles", "rdInterferenceStrip", "rdMassbiasFactor",
+              "rdMassbiasCorrect", "rdMassbiasNormalise", "rdDilutionConc", "rdDilutionBlock", "rdBlankCorrect",
+              "rdBlankUmol", "rdStandardFactor", "rdStandardApply", "rdAnalysisBlock", "rdWorkbookAnalysis",
+              "rdWorkbookIsochron"):
         assert m in functions.BY_METHOD
 
 
