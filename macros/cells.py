@@ -835,27 +835,21 @@ def rdStandardApply(value: Any, sigma: Any, runs: Any, accepted: Any = None, mat
 # --------------------------------------------------------------------------------------------
 # one spiked analysis with propagated sigma and rho
 # --------------------------------------------------------------------------------------------
-@cell_function(array=True, rename={"parent_mix": "parentValues", "daughter_mix": "daughterValues",
-                                   "sample_mass_g": "sampleMass", "spike_mass_g": "spikeMass",
-                                   "parent_spike": "parentSpike", "daughter_spike": "daughterSpike",
-                                   "parent_norm_ratio": "parentNorm", "parent_bias_factor": "parentBias",
-                                   "parent_blank_ng": "parentBlankNg", "daughter_blank_ng": "daughterBlankNg"})
+_ANALYSIS_NAMES = {"parent_mix": "parentValues", "daughter_mix": "daughterValues", "sample_mass_g": "sampleMass",
+                   "spike_mass_g": "spikeMass", "parent_spike": "parentSpike", "daughter_spike": "daughterSpike",
+                   "parent_norm_ratio": "parentNorm", "parent_bias_factor": "parentBias",
+                   "parent_blank_ng": "parentBlankNg", "daughter_blank_ng": "daughterBlankNg",
+                   "parent_mix_sigma_1s": "parentSigmas", "daughter_mix_sigma_1s": "daughterSigmas"}
+
+
+@cell_function(array=True, rename=_ANALYSIS_NAMES)
 def rdAnalysisBlock(system: Any, parentNames: Any, parentValues: Any, daughterNames: Any, daughterValues: Any,
                     sampleMass: Any, spikeMass: Any, parentSpike: Any, daughterSpike: Any, parentSigmas: Any = None,
                     daughterSigmas: Any = None, parentNorm: Any = None, parentBias: Any = None,
                     parentBlankNg: Any = None, daughterBlankNg: Any = None) -> Any:
-    pm, ps = names_values("parentNames", parentNames, "parentValues", parentValues, "parentSigmas",
-                          parentSigmas if isinstance(parentSigmas, tuple) else None)
-    dm, ds = names_values("daughterNames", daughterNames, "daughterValues", daughterValues, "daughterSigmas",
-                          daughterSigmas if isinstance(daughterSigmas, tuple) else None)
-    norm = None if parentNorm is None or parentNorm == 0.0 or parentNorm == "" else _isotope_text("parentNorm",
-                                                                                                  parentNorm)
-    r = engine("chain").reduce_spiked_analysis(
-        text("system", system), pm, dm, number("sampleMass", sampleMass), number("spikeMass", spikeMass),
-        spike("parentSpike", parentSpike), spike("daughterSpike", daughterSpike), parent_mix_sigma_1s=ps,
-        daughter_mix_sigma_1s=ds, parent_norm_ratio=norm, parent_bias_factor=_optional_number("parentBias", parentBias),
-        parent_blank_ng=number("parentBlankNg", parentBlankNg, 0.0),
-        daughter_blank_ng=number("daughterBlankNg", daughterBlankNg, 0.0))
+    r = analysis(system, parentNames, parentValues, daughterNames, daughterValues, sampleMass, spikeMass,
+                 parentSpike, daughterSpike, parentSigmas, daughterSigmas, parentNorm, parentBias, parentBlankNg,
+                 daughterBlankNg)
     rows = [(r.parent_ratio_name, cell(r.parent_ratio)), ("1s", cell(r.parent_ratio_sigma_1s)),
             (r.daughter_ratio_name, cell(r.daughter_ratio)), ("1s", cell(r.daughter_ratio_sigma_1s)),
             ("rho", cell(r.rho)), ("parent_ug_g", cell(r.parent_conc_ug_g)),
@@ -865,6 +859,42 @@ def rdAnalysisBlock(system: Any, parentNames: Any, parentValues: Any, daughterNa
         rows += [(f"{name} 1s {kind}", cell(v)) for name, v in parts.items()]
     rows.append(("poor_mix", ", ".join(r.poor_mix) if r.poor_mix else "no"))
     return tuple(rows)
+
+
+@cell_function(array=True, rename=_ANALYSIS_NAMES)
+def rdAnalysisRow(*args: Any) -> Any:
+    r = analysis(*args)
+    return row(cell(r.parent_ratio), cell(r.parent_ratio_sigma_1s), cell(r.daughter_ratio),
+               cell(r.daughter_ratio_sigma_1s), cell(r.rho))
+
+
+ANALYSIS_CACHE = _Cache(512)
+
+
+def analysis(system: Any, parentNames: Any, parentValues: Any, daughterNames: Any, daughterValues: Any,
+             sampleMass: Any, spikeMass: Any, parentSpike: Any, daughterSpike: Any, parentSigmas: Any = None,
+             daughterSigmas: Any = None, parentNorm: Any = None, parentBias: Any = None,
+             parentBlankNg: Any = None, daughterBlankNg: Any = None) -> Any:
+    """The engine's reduction of one spiked analysis (cached by the cells, shared by block and row)."""
+    raw = (system, parentNames, parentValues, daughterNames, daughterValues, sampleMass, spikeMass, parentSpike,
+           daughterSpike, parentSigmas, daughterSigmas, parentNorm, parentBias, parentBlankNg, daughterBlankNg)
+    try:
+        return ANALYSIS_CACHE.hit(raw)
+    except KeyError:
+        pass
+    pm, ps = names_values("parentNames", parentNames, "parentValues", parentValues, "parentSigmas",
+                          parentSigmas if isinstance(parentSigmas, tuple) else None)
+    dm, ds = names_values("daughterNames", daughterNames, "daughterValues", daughterValues, "daughterSigmas",
+                          daughterSigmas if isinstance(daughterSigmas, tuple) else None)
+    norm = None if parentNorm is None or parentNorm == 0.0 or parentNorm == "" else _isotope_text("parentNorm",
+                                                                                                  parentNorm)
+    args = (text("system", system), pm, dm, number("sampleMass", sampleMass), number("spikeMass", spikeMass),
+            spike("parentSpike", parentSpike), spike("daughterSpike", daughterSpike))
+    kw = dict(parent_mix_sigma_1s=ps, daughter_mix_sigma_1s=ds, parent_norm_ratio=norm,
+              parent_bias_factor=_optional_number("parentBias", parentBias),
+              parent_blank_ng=number("parentBlankNg", parentBlankNg, 0.0),
+              daughter_blank_ng=number("daughterBlankNg", daughterBlankNg, 0.0))
+    return ANALYSIS_CACHE.get(raw, lambda: engine("chain").reduce_spiked_analysis(*args, **kw))
 
 
 # --------------------------------------------------------------------------------------------

@@ -128,6 +128,23 @@ _P = _c("parent", "Parent/daughter ratio today, e.g. 147Sm/144Nd.")
 _P1S = _c("parentSigma", "1 sigma of the parent ratio.")
 _TMA = _c("tMa", "Time in Ma (0 for today).")
 
+_ANALYSIS_ARGS = (
+    _SYSTEM,
+    _r("parentNames", "Names of the parent element's mixture ratios, e.g. 147Sm/152Sm, 149Sm/152Sm."),
+    _r("parentValues", "Their measured values."),
+    _r("daughterNames", "Names of the daughter element's mixture ratios, e.g. 143Nd/144Nd, ..."),
+    _r("daughterValues", "Their measured values."),
+    _c("sampleMass", "Sample mass (g)."), _c("spikeMass", "Mixed-spike solution mass (g)."),
+    _r("parentSpike", "Spike block of the parent element (3 rows, as for RD.DILUTION)."),
+    _r("daughterSpike", "Spike block of the daughter element."),
+    _ro("parentSigmas", "Optional: 1 sigma of each parent mixture ratio (same order)."),
+    _ro("daughterSigmas", "Optional: 1 sigma of each daughter mixture ratio."),
+    _v("parentNorm", "Optional: parent normalising ratio, e.g. 147Sm/152Sm."),
+    _v("parentBias", "Optional: external parent mass-bias factor (two-isotope Lu, Rb)."),
+    _v("parentBlankNg", "Optional: parent blank in ng (default 0)."),
+    _v("daughterBlankNg", "Optional: daughter blank in ng (default 0)."),
+)
+
 FUNCTIONS: Tuple[Function, ...] = (
     # -- meta --------------------------------------------------------------------------------
     Function("rdVersion", "RD.VERSION", "meta",
@@ -245,21 +262,11 @@ FUNCTIONS: Tuple[Function, ...] = (
              "One spiked analysis from mixture ratios to isochron inputs with propagated uncertainties, as a "
              "labelled block of 2 columns: parent and daughter ratio with 1 sigma, their correlation rho, "
              "concentrations with 1 sigma, random and systematic parts.",
-             (_SYSTEM,
-              _r("parentNames", "Names of the parent element's mixture ratios, e.g. 147Sm/152Sm, 149Sm/152Sm."),
-              _r("parentValues", "Their measured values."),
-              _r("daughterNames", "Names of the daughter element's mixture ratios, e.g. 143Nd/144Nd, ..."),
-              _r("daughterValues", "Their measured values."),
-              _c("sampleMass", "Sample mass (g)."), _c("spikeMass", "Mixed-spike solution mass (g)."),
-              _r("parentSpike", "Spike block of the parent element (3 rows, as for RD.DILUTION)."),
-              _r("daughterSpike", "Spike block of the daughter element."),
-              _ro("parentSigmas", "Optional: 1 sigma of each parent mixture ratio (same order)."),
-              _ro("daughterSigmas", "Optional: 1 sigma of each daughter mixture ratio."),
-              _v("parentNorm", "Optional: parent normalising ratio, e.g. 147Sm/152Sm."),
-              _v("parentBias", "Optional: external parent mass-bias factor (two-isotope Lu, Rb)."),
-              _v("parentBlankNg", "Optional: parent blank in ng (default 0)."),
-              _v("daughterBlankNg", "Optional: daughter blank in ng (default 0).")),
-             "chain.reduce_spiked_analysis", "array"),
+             _ANALYSIS_ARGS, "chain.reduce_spiked_analysis", "array"),
+    Function("rdAnalysisRow", "RD.ANALYSIS.ROW", "propagate",
+             "The isochron inputs of one spiked analysis as one row of 5 cells: x, 1 sigma, y, 1 sigma, rho "
+             "(propagated; same arguments as RD.ANALYSIS, whose result it shares).",
+             _ANALYSIS_ARGS, "chain.reduce_spiked_analysis", "array"),
     # -- isochron (York regression) ------------------------------------------------------------
     Function("rdIsochronBlock", "RD.ISOCHRON", "isochron",
              "Isochron by York regression (York et al. 2004) as a labelled block of 2 columns and 16 rows: "

@@ -64,7 +64,8 @@ def test_stored_names_never_change():
               "rdIsochronValue", "rdAgeIsochron", "rdAgeSlope", "rdMeanWeighted", "rdAgeTwoPoint", "rdAgeModel",
               "rdInitialRatio", "rdEpsilon", "rdEllipse", "rdCycles", "rdInterferenceStrip", "rdMassbiasFactor",
               "rdMassbiasCorrect", "rdMassbiasNormalise", "rdDilutionConc", "rdDilutionBlock", "rdBlankCorrect",
-              "rdBlankUmol", "rdStandardFactor", "rdStandardApply", "rdAnalysisBlock", "rdWorkbookAnalysis",
+              "rdBlankUmol", "rdStandardFactor", "rdStandardApply", "rdAnalysisBlock", "rdAnalysisRow",
+              "rdWorkbookAnalysis",
               "rdWorkbookIsochron"):
         assert m in functions.BY_METHOD
 
@@ -112,3 +113,23 @@ def test_shipped_engine_imports_under_its_own_name(tmp_path):
                          text=True, cwd=tmp_path)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == package.version()
+
+
+def test_menu_commands_component_is_registered_when_present(tmp_path, monkeypatch):
+    (tmp_path / "commands.py").write_text('import uno\nIMPLEMENTATION_NAME = "org.ratiodesk.Commands.Impl"\n'
+                                          'SERVICE_NAME = "org.ratiodesk.Commands"\n', encoding="utf-8")
+    (tmp_path / "Addons.xcu").write_text("<x/>", encoding="utf-8")
+    monkeypatch.setattr(package, "HERE", tmp_path)
+    comps = package.components()
+    assert comps[1] == ("commands.py", "org.ratiodesk.Commands.Impl", ("org.ratiodesk.Commands",))
+    root = ET.fromstring(package.components_text())
+    uris = [c.get("uri") for c in root]
+    assert uris == ["addin.py", "commands.py"]
+    assert "Addons.xcu" in package.manifest_text(["CalcAddIns.xcu", "Addons.xcu", "ratiodesk.rdb"])
+
+
+def test_menu_commands_without_constants_is_an_error(tmp_path, monkeypatch):
+    (tmp_path / "commands.py").write_text("X = 1\n", encoding="utf-8")
+    monkeypatch.setattr(package, "HERE", tmp_path)
+    with pytest.raises(SystemExit, match="IMPLEMENTATION_NAME"):
+        package.components()

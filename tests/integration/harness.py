@@ -23,7 +23,12 @@ DRIVER = Path(__file__).with_name("driver.py")
 
 
 def why_unavailable() -> Optional[str]:
-    """None when LibreOffice and the system Python's uno are present, else what is missing."""
+    """None when LibreOffice and the system Python's uno are present, else what is missing.
+
+    ``RATIODESK_PRETEND_NO_LIBREOFFICE=1`` reports it missing (to test the skip and CI paths).
+    """
+    if os.environ.get("RATIODESK_PRETEND_NO_LIBREOFFICE") == "1":
+        return "RATIODESK_PRETEND_NO_LIBREOFFICE=1 (pretending LibreOffice is absent)"
     if lo.soffice_binary() is None:
         return "LibreOffice (soffice) is not installed"
     if not os.path.exists(SYSTEM_PYTHON):
