@@ -272,6 +272,12 @@ ISOCHRON_SUMMARY_COL = 8                            # column I (0-based 8): labe
 ISOCHRON_TREATMENT_ROW = FIRST_ROW + 1              # row with the treatment inputs
 ISOCHRON_FIRST_Q_ROW = FIRST_ROW + 3
 
+#: Error-ellipse outlines for the isochron charts: one array formula (points + 1 rows x 2 columns) per
+#: selection row, side by side from column N, drawn from the ellipse function (rdEllipse).
+ELLIPSE_COL0 = 13
+ELLIPSE_POINTS = 32
+ELLIPSE_CONFIDENCE = 0.95
+
 SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, RESULTS, ISOCHRON)
 SHEET_BY_NAME = {s.name: s for s in SHEETS}
 INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured")
@@ -839,6 +845,31 @@ def isochron_summary_formula(quantity: str, system: str, treatment_cell: Ref) ->
                                        table_ref(RESULTS), table_ref(CONSTANTS)))
 
 
+def selection_rows() -> List[Tuple[str, int]]:
+    """(system, sheet row) of every isochron selection row, in order."""
+    return [(system, row) for system, (first, last) in ISOCHRON_BLOCK.items() for row in range(first, last + 1)]
+
+
+def ellipse_formulas() -> Dict[Tuple[int, int], Tuple[Formula, int]]:
+    """(top row, left column) of each ellipse array formula on the Isochron sheet -> (formula, selection row)."""
+    out: Dict[Tuple[int, int], Tuple[Formula, int]] = {}
+    for k, (_system, row) in enumerate(selection_rows()):
+        here = Ref("Isochron", 0, row, absolute=False, abs_col_only=True)
+        args = tuple(Ref("Isochron", ISOCHRON.col_index(key), row, absolute=False, abs_col_only=True)
+                     for key in ("x", "x_1s", "y", "y_1s", "rho")) + (float(ELLIPSE_POINTS), ELLIPSE_CONFIDENCE)
+        out[(FIRST_ROW, ELLIPSE_COL0 + 2 * k)] = (Formula("rdEllipse", args, guard=here), row)
+    return out
+
+
+def all_computed_cells() -> List[Tuple[str, int, int]]:
+    """Every computed cell, ellipse outlines included (for comparing the grid with the batch path)."""
+    cells = set(expected_formulas())
+    for (top, left), _f in ellipse_formulas().items():
+        for r in range(top, top + ELLIPSE_POINTS + 1):
+            cells.update({("Isochron", r, left), ("Isochron", r, left + 1)})
+    return sorted(cells)
+
+
 def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
     """Every computed cell of the template: (sheet, row, 0-based column) -> formula."""
     out: Dict[Tuple[str, int, int], Formula] = {}
@@ -911,6 +942,24 @@ def sheet_block(grid: Mapping[str, Sequence[Sequence[Cell]]], sheet: str, r1: in
 def _block(grid: Mapping[str, Sequence[Sequence[Cell]]], ref: Ref) -> Rows:
     return sheet_block(grid, ref.sheet, ref.row, ref.col, ref.row2 or ref.row, ref.col2 if ref.col2 is not None
                        else ref.col)
+
+
+def _ellipse(pt: Sequence[Cell]) -> List[Tuple[float, float]]:
+    """The ellipse outline of one selection row, as the ellipse cell function returns it."""
+    from .regression import ellipse_points
+
+    ci = [ISOCHRON.col_index(k) for k in ("x", "x_1s", "y", "y_1s", "rho")]
+    vals = [pt[i] for i in ci]
+    for v, i in zip(vals, ci):
+        if not isinstance(v, float):
+            text = str(v)
+            raise CellError("Isochron", None, col_letter(i), ISOCHRON.columns[i].header,
+                            f"ellipse needs a number, got {text[:80]!r}")
+    try:
+        xs, ys = ellipse_points(*vals, n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
+    except InputError as exc:
+        raise CellError("Isochron", None, None, "", f"ellipse: {exc}") from None
+    return [(float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist())]
 
 
 def _raise(exc: Exception) -> Any:
@@ -986,6 +1035,20 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
                     continue
                 hits = res_t.find(analysis=str(a))
                 put("Isochron", row, j, res_t.get(hits[0], c.quantity) if hits else "#N/A")
+    for (top, left), (_f, srow) in ellipse_formulas().items():
+        pt = sheet_block(work, "Isochron", srow, 0, srow, len(ISOCHRON.columns) - 1)[0]
+        vals: Any = ""
+        if pt[0] != "":
+            vals = run(lambda pt=pt: _ellipse(pt))
+        for i in range(ELLIPSE_POINTS + 1):
+            for j in (0, 1):
+                if not isinstance(vals, str):
+                    v: Any = vals[i][j]
+                elif vals == "" or (i == 0 and j == 0):
+                    v = vals                  # "" fills the whole range; a message shows in the first cell
+                else:
+                    v = "#N/A"                # what Calc shows beside a one-cell answer in a larger range
+                put("Isochron", top + i, left + j, v)
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         col = ISOCHRON_SUMMARY_COL + 1 + k
         treat = sheet_block(work, "Isochron", ISOCHRON_TREATMENT_ROW, col, ISOCHRON_TREATMENT_ROW, col)[0][0]
@@ -1009,6 +1072,7 @@ class CellSpec:
     formula: Optional[Formula] = None
     style: str = "plain"          # title, note, header, key, input, computed, label, plain
     number_format: str = "General"
+    array: Optional[Tuple[int, int]] = None   # (rows, columns) of an array formula in its top-left cell
 
 
 Layout = Dict[str, Dict[Tuple[int, int], CellSpec]]   # sheet -> (row, 0-based col) -> cell
@@ -1111,6 +1175,14 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         elif col < len(ISOCHRON.columns):
             spec.number_format = ISOCHRON.columns[col].number_format
         target[(row, col)] = spec
+    for (top, left), (f, srow) in ellipse_formulas().items():
+        iso[(HEADER_ROW, left)] = CellSpec(f"Ellipse of row {srow}: x", style="header")
+        iso[(HEADER_ROW, left + 1)] = CellSpec("y (95 % outline)", style="header")
+        for i in range(ELLIPSE_POINTS + 1):
+            for j in (0, 1):
+                iso[(top + i, left + j)] = CellSpec(style="computed", number_format="0.000000E+00")
+        iso[(top, left)] = CellSpec(formula=f, style="computed", number_format="0.000000E+00",
+                                    array=(ELLIPSE_POINTS + 1, 2))
     lay["Results"] = res
     lay["Isochron"] = iso
     return lay
@@ -1156,6 +1228,7 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
     """Write a layout as .xlsx: formulas (with cached values) or, with ``values_only``, values."""
     from openpyxl import Workbook
     from openpyxl.styles import Alignment, Font, PatternFill, Protection
+    from openpyxl.worksheet.formula import ArrayFormula
 
     wb = Workbook()
     wb.remove(wb.active)
@@ -1169,7 +1242,12 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
         for (r, c), spec in sorted(lay[name].items()):
             cell = ws.cell(row=r, column=c + 1)
             if spec.formula is not None and not values_only:
-                cell.value = spec.formula.render(name, "xlsx")
+                text = spec.formula.render(name, "xlsx")
+                if spec.array:
+                    ref = f"{col_letter(c)}{r}:{col_letter(c + spec.array[1] - 1)}{r + spec.array[0] - 1}"
+                    cell.value = ArrayFormula(ref, text)
+                else:
+                    cell.value = text
                 cached.setdefault(name, {})[f"{col_letter(c)}{r}"] = spec.value
             else:
                 v = spec.value
@@ -1189,6 +1267,8 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
             ws.protection.formatColumns = False
             ws.protection.formatRows = False
         ws.freeze_panes = None if name == ABOUT_SHEET else f"A{FIRST_ROW}"
+        if name == "Isochron":
+            _xlsx_charts(ws)
     for name, rows in (extra_sheets or {}).items():
         ws = wb.create_sheet(name)
         for r in rows:
@@ -1200,6 +1280,34 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
     wb.save(path)
     if cached and not values_only:
         _xlsx_add_cached_values(path, wb.sheetnames, cached)
+
+
+def _xlsx_charts(ws: Any) -> None:
+    """One scatter chart per system: the 95 % error ellipses of its selection rows (lines, no markers)."""
+    from openpyxl.chart import Reference, ScatterChart, Series
+
+    sel = selection_rows()
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        ch = ScatterChart()
+        ch.title = f"{system} isochron — 95 % error ellipses"
+        ch.style = 13
+        ch.x_axis.title = "147Sm/144Nd" if system == "Sm-Nd" else "176Lu/177Hf"
+        ch.y_axis.title = "143Nd/144Nd" if system == "Sm-Nd" else "176Hf/177Hf"
+        ch.legend = None
+        ch.height, ch.width = 9.5, 16
+        for i, (s_name, row) in enumerate(sel):
+            if s_name != system:
+                continue
+            col = ELLIPSE_COL0 + 2 * i + 1
+            xs = Reference(ws, min_col=col, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
+            ys = Reference(ws, min_col=col + 1, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
+            series = Series(ys, xs, title=f"row {row}")
+            series.marker.symbol = "none"
+            series.smooth = False
+            ch.series.append(series)
+        ch.x_axis.delete = False
+        ch.y_axis.delete = False
+        ws.add_chart(ch, f"I{ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2 + 20 * k}")
 
 
 def _xlsx_add_cached_values(path: Any, names: Sequence[str], cached: Mapping[str, Mapping[str, Any]]) -> None:
@@ -1214,7 +1322,7 @@ def _xlsx_add_cached_values(path: Any, names: Sequence[str], cached: Mapping[str
     with zipfile.ZipFile(src) as z:
         items = {n: z.read(n) for n in z.namelist()}
         infos = z.infolist()
-    pat = re.compile(rb'<c r="([A-Z]+[0-9]+)"([^>]*)><f>(.*?)</f><v\s*/?>(?:</v>)?</c>')
+    pat = re.compile(rb'<c r="([A-Z]+[0-9]+)"([^>]*)><f((?: [^>]*)?)>(.*?)</f><v\s*/?>(?:</v>)?</c>')
     for k, name in enumerate(names, start=1):
         if name not in cached:
             continue
@@ -1226,9 +1334,11 @@ def _xlsx_add_cached_values(path: Any, names: Sequence[str], cached: Mapping[str
             v = vals.get(ref, "")
             attrs = re.sub(rb'\s+t="[^"]*"', b"", m.group(2))
             if isinstance(v, float) and math.isfinite(v):
-                return b'<c r="%s"%s><f>%s</f><v>%s</v></c>' % (m.group(1), attrs, m.group(3), repr(v).encode())
+                return b'<c r="%s"%s><f%s>%s</f><v>%s</v></c>' % (m.group(1), attrs, m.group(3), m.group(4),
+                                                                 repr(v).encode())
             text = escape("" if v is None else str(v)).encode()
-            return b'<c r="%s"%s t="str"><f>%s</f><v>%s</v></c>' % (m.group(1), attrs, m.group(3), text)
+            return b'<c r="%s"%s t="str"><f%s>%s</f><v>%s</v></c>' % (m.group(1), attrs, m.group(3), m.group(4),
+                                                                     text)
         items[part] = pat.sub(sub, items[part])
     with zipfile.ZipFile(src, "w", zipfile.ZIP_DEFLATED) as z:
         for info in infos:
@@ -1256,7 +1366,10 @@ def read_xlsx(path: Any) -> WorkbookData:
         for r, row in enumerate(ws.iter_rows(values_only=True), start=1):
             out = []
             for c, v in enumerate(row):
-                if isinstance(v, str) and v.startswith("="):
+                if hasattr(v, "ref") and hasattr(v, "text"):      # an array formula
+                    formulas[(ws.title, r, c)] = str(v.text)
+                    out.append("")
+                elif isinstance(v, str) and v.startswith("="):
                     formulas[(ws.title, r, c)] = v
                     out.append("")
                 else:

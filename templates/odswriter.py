@@ -98,6 +98,9 @@ def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only
     attrs = [f'table:style-name="{styles.cell(spec.style, spec.number_format)}"']
     if spec.formula is not None and not values_only:
         attrs.append("table:formula=" + quoteattr(spec.formula.render(sheet, "ods")))
+        if spec.array:
+            attrs.append(f'table:number-matrix-rows-spanned="{spec.array[0]}" '
+                         f'table:number-matrix-columns-spanned="{spec.array[1]}"')
     v = spec.value
     if isinstance(v, bool):
         v = float(v)

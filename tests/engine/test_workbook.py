@@ -33,6 +33,7 @@ from reduction.workbook import (
     analysis_value,
     build_layout,
     col_letter,
+    ellipse_formulas,
     evaluate,
     expected_formulas,
     formula_drift,
@@ -116,7 +117,9 @@ def test_write_read_round_trip_keeps_inputs_and_formulas(tmp_path, demo_grid, ex
         want = sheet_block(demo_grid, s, 1, 0, sh.last_row, len(sh.columns) - 1)
         got = sheet_block(data.grid, s, 1, 0, sh.last_row, len(sh.columns) - 1)
         assert got == want, s
-    assert set(data.formulas) == {(s, r, c) for (s, r, c) in expected_formulas()}
+    ellipses = {("Isochron", r, c) for (r, c) in ellipse_formulas()}
+    assert set(data.formulas) == set(expected_formulas()) | ellipses
+    assert all("RDELLIPSE" in data.formulas[k].upper() for k in ellipses)
     assert formula_drift(data.formulas) == []
     ev = evaluate(data.grid)
     assert ev.cells[AGE_SMND] == evaluate(demo_grid).cells[AGE_SMND]
@@ -143,6 +146,24 @@ def test_computed_cells_locked_inputs_unlocked(tmp_path):
     assert ws["I5"].protection.locked
     assert not wb["Samples"]["F5"].protection.locked
     assert wb["Samples"]["F5"].fill.fgColor.rgb != ws["I5"].fill.fgColor.rgb
+
+
+def test_ellipse_cells_are_the_ellipse_function_of_each_point(demo_grid):
+    """The chart data: each selection row's 95 % outline (regression.ellipse_points) in its two columns."""
+    from reduction.regression import ellipse_points
+    from reduction.workbook import ELLIPSE_POINTS, ISOCHRON_BLOCK
+
+    ev = evaluate(demo_grid)
+    (top, left), (_f, srow) = sorted(ellipse_formulas().items())[1]
+    pt = [ev.cells[("Isochron", srow, ISOCHRON.col_index(k))] for k in ("x", "x_1s", "y", "y_1s", "rho")]
+    xs, ys = ellipse_points(*pt, n_points=ELLIPSE_POINTS, confidence=0.95)
+    got = [(ev.cells[("Isochron", top + i, left)], ev.cells[("Isochron", top + i, left + 1)])
+           for i in range(ELLIPSE_POINTS + 1)]
+    assert got == list(zip(xs.tolist(), ys.tolist()))
+    # an empty selection row has an empty outline
+    last = ISOCHRON_BLOCK["Lu-Hf"][1]
+    empty = [k for k, (_f, r) in ellipse_formulas().items() if r == last][0]
+    assert ev.cells[("Isochron", empty[0], empty[1])] == ""
 
 
 def test_edited_formula_is_reported(tmp_path):

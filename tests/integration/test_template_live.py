@@ -137,8 +137,8 @@ if __name__ != "__main__":
         ISOCHRON_FIRST_Q_ROW,
         ISOCHRON_SUMMARY_COL,
         SPIKES,
+        all_computed_cells,
         evaluate,
-        expected_formulas,
         layout_grid,
         read_ods,
         write_xlsx,
@@ -174,11 +174,13 @@ if __name__ != "__main__":
         return a == b
 
     def _is_sigma(key):
-        from reduction.workbook import ISOCHRON, ISOCHRON_QUANTITIES, RESULTS
+        from reduction.workbook import ELLIPSE_COL0, ISOCHRON, ISOCHRON_QUANTITIES, RESULTS
 
         sheet, row, col = key
         if sheet == "Results":
             name = RESULTS.columns[col].key
+        elif col >= ELLIPSE_COL0:
+            name = "ellipse_1s"      # outline = centre + Cholesky factor of the covariance: σ-derived
         elif col < len(ISOCHRON.columns):
             name = ISOCHRON.columns[col].key
         else:
@@ -192,7 +194,7 @@ if __name__ != "__main__":
         book = work / f"demo{request.param}"
         (write_ods if request.param == ".ods" else write_xlsx)(lay, book)
         grid = layout_grid(lay)
-        cells = sorted(expected_formulas())
+        cells = all_computed_cells()
         edits, grids = [], []
         g = copy.deepcopy(grid)
         vcol = CONSTANTS.col_index("value")
