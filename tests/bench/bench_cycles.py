@@ -2,10 +2,12 @@
 normalisation (146Nd/144Nd = 0.7219): the vectorised engine against plain Python loops.
 
 Two loops, each timed on a subset and scaled to 1 000 000 cycles:
+  * bare loop     — the bare arithmetic (math module, no validation); the 50x target is checked on
+                    this one, the stricter peer;
   * engine loop   — the same engine functions called once per cycle (what a cycle-by-cycle
-                    reduction without vectorisation costs); the 50x target is checked on this one;
-  * bare loop     — the bare arithmetic (math module, no validation), printed for information.
-The vectorised time is the best of 5 runs. Prints the ratios and PASS/FAIL; exits 0.
+                    reduction without vectorisation costs), printed for information.
+The vectorised path and the bare loop run in interleaved rounds (best of each), so both see the
+same machine load. Prints the ratios and PASS/FAIL; exits 0.
 """
 from __future__ import annotations
 
@@ -26,6 +28,7 @@ N = 1_000_000
 N_LOOP = 50_000
 N_ENGINE_LOOP = 5_000
 TARGET = 50.0
+ROUNDS = 5
 
 
 def beams(n: int, seed: int = 1):
@@ -64,29 +67,31 @@ def loop(b):
 
 def main() -> int:
     b = beams(N)
-    times = []
-    for _ in range(5):
-        t0 = time.perf_counter()
-        v = vectorised(b)
-        times.append(time.perf_counter() - t0)
-    t_vec = min(times)
     sub = {k: v_[:N_LOOP].tolist() for k, v_ in b.items()}
-    t0 = time.perf_counter()
-    ref = loop(sub)
-    t_loop = (time.perf_counter() - t0) * N / N_LOOP
+    # interleaved rounds, best of each: the vectorised path and the bare loop see the same machine load
+    t_vec = t_loop = float("inf")
+    for _ in range(ROUNDS):
+        for _ in range(3):
+            t0 = time.perf_counter()
+            v = vectorised(b)
+            t_vec = min(t_vec, time.perf_counter() - t0)
+        t0 = time.perf_counter()
+        ref = loop(sub)
+        t_loop = min(t_loop, (time.perf_counter() - t0) * N / N_LOOP)
     sub_e = {k: v_[:N_ENGINE_LOOP].tolist() for k, v_ in b.items()}
     t0 = time.perf_counter()
     ref_e = engine_loop(sub_e)
     t_eng = (time.perf_counter() - t0) * N / N_ENGINE_LOOP
     agree = np.allclose(v[:N_LOOP], ref, rtol=1e-12) and np.allclose(v[:N_ENGINE_LOOP], ref_e, rtol=1e-13)
     ratio, ratio_bare = t_eng / t_vec, t_loop / t_vec
-    verdict = "PASS" if ratio >= TARGET and agree else "FAIL"
+    verdict = "PASS" if ratio_bare >= TARGET and agree else "FAIL"
     print(f"bench_cycles: {N} cycles, 144Sm stripping + exponential-law normalisation")
-    print(f"  vectorised engine      {t_vec * 1e3:9.1f} ms (best of 5)")
-    print(f"  engine loop per cycle  {t_eng * 1e3:9.0f} ms (scaled from {N_ENGINE_LOOP})  speed-up {ratio:7.0f}x")
-    print(f"  bare arithmetic loop   {t_loop * 1e3:9.0f} ms (scaled from {N_LOOP})  speed-up {ratio_bare:7.1f}x "
+    print(f"  vectorised engine      {t_vec * 1e3:9.1f} ms (best of {3 * ROUNDS})")
+    print(f"  bare arithmetic loop   {t_loop * 1e3:9.0f} ms (best of {ROUNDS}, scaled from {N_LOOP})  "
+          f"speed-up {ratio_bare:7.1f}x")
+    print(f"  engine loop per cycle  {t_eng * 1e3:9.0f} ms (scaled from {N_ENGINE_LOOP})  speed-up {ratio:7.0f}x "
           "(information)")
-    print(f"  results agree: {agree}; target >= {TARGET:.0f}x on the engine loop -> {verdict}")
+    print(f"  results agree: {agree}; target >= {TARGET:.0f}x on the bare loop -> {verdict}")
     return 0
 
 
