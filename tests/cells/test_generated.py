@@ -133,3 +133,13 @@ def test_menu_commands_without_constants_is_an_error(tmp_path, monkeypatch):
     monkeypatch.setattr(package, "HERE", tmp_path)
     with pytest.raises(SystemExit, match="IMPLEMENTATION_NAME"):
         package.components()
+
+
+def test_builds_without_the_sdk_from_the_committed_type_library(tmp_path, monkeypatch):
+    monkeypatch.setattr(package, "UNOIDL_WRITE", tmp_path / "no-unoidl-write")
+    oxt = package.build(tmp_path)
+    with zipfile.ZipFile(oxt) as zf:
+        assert zf.read("ratiodesk.rdb") == (GEN / "ratiodesk.rdb").read_bytes()
+    monkeypatch.setattr(package, "idl_text", lambda: "// a table that changed\n")
+    with pytest.raises(SystemExit, match="update-generated"):
+        package.build(tmp_path / "again")
