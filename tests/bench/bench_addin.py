@@ -8,8 +8,9 @@ Prints the per-call time of
   isochron accessor =RD.ISOCHRON.MSWD over a fixed range),
 and the full recalculation of a sheet holding 500 analyses (per row: initial ratio, ε, model age;
 one isochron block and age over all rows). Target: a RatioDesk function's per-call cost is at
-most 2x the floor. Timings are the best of 5 interleaved full recalculations
-(the sheets of analyses also report their first, cold one). Exits 0 (rule 6: speed targets
+most 2x the floor. Timings are the best of 3 passes over all jobs, each pass
+with a fresh document: one cold recalculation and 3 warm ones (the sheets of analyses report the
+cold one). Exits 0 (rule 6: speed targets
 are reported here, never asserted in tests); skips when LibreOffice is absent.
 """
 from __future__ import annotations
