@@ -44,6 +44,7 @@ TREATMENTS: Tuple[str, ...] = ("analytical", "expanded", "equal-weights", "exces
 _CHUNK_VALUES = 65536   # values per array in one batch chunk (512 kB: fastest in bench_regression)
 _BLAS_MAX = 4096  # below this length a single fit uses np.dot for its sums
 _ATOL = 1e-300  # absolute floor of the convergence test, only matters for a slope of exactly 0
+_FLOOR_RTOL = 1e-12  # a repeated update within this of its input ends the iteration (rounding floor)
 
 
 # --------------------------------------------------------------------------------------------
@@ -245,7 +246,7 @@ class _Work:
         d += self.vy
         np.divide(1.0, d, out=w)
         if self.small:
-            sw, swx, swy = self.p1xy @ w
+            sw, swx, swy = (self.p1xy @ w).tolist()   # Python floats: cheaper scalar arithmetic
             self.sw = sw
             self.xb = xb = swx / sw
             self.yb = yb = swy / sw
@@ -268,7 +269,7 @@ class _Work:
         t *= w
         t *= w
         if self.small:
-            den, num = self.uv @ t
+            den, num = (self.uv @ t).tolist()
             return num / den
         return self.wsum(t, v) / self.wsum(t, u)
 
@@ -297,6 +298,7 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
     if not batch:
         bw = float(b)
         b_prev = h_prev = None
+        seen = set()
         iterations: Any = 0
         for _ in range(max_iter):
             g = float(work.update(bw))
@@ -305,12 +307,19 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
             if abs(h) <= rtol * abs(g) + _ATOL:
                 b = g
                 break
+            # the update returned a slope it has returned before, within 1e-12: the iteration has
+            # reached the rounding floor of the slope equation (above rtol for ill-conditioned data)
+            if g in seen and abs(h) <= _FLOOR_RTOL * abs(g):
+                b = g
+                break
+            seen.add(g)
             # secant step on h(b) = g(b) − b (same fixed point, fewer steps); York's plain update
-            # where the secant is undefined or would step further than 4 plain updates
+            # where the secant is undefined, would step further than 4 plain updates, or would step
+            # against the plain update (towards another root of h, away from York's fixed point)
             nxt = g
             if h_prev is not None and h != h_prev:
                 sec = bw - h * (bw - b_prev) / (h - h_prev)
-                if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h):
+                if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h) and (sec - bw) * h > 0:
                     nxt = sec
             b_prev, h_prev, bw = bw, h, nxt
         else:
@@ -333,7 +342,7 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
             else:
                 with np.errstate(divide="ignore", invalid="ignore"):
                     sec = bw - h * (bw - bp) / (h - hp)
-                ok = np.isfinite(sec) & (np.abs(sec - bw) <= 4.0 * np.abs(h))
+                ok = np.isfinite(sec) & (np.abs(sec - bw) <= 4.0 * np.abs(h)) & ((sec - bw) * h > 0)
                 nxt = np.where(ok, sec, g)
             iterations[idx] += ~fin
             b[idx] = np.where(fin, b[idx], g)
@@ -383,14 +392,21 @@ def _check_points(x: Any, sx: Any, y: Any, sy: Any, rho: Any, ndim: int = 1,
     """Validate the five point arrays (copies; the caller's arrays are never modified)."""
     if ndim == 1:
         # fast path: one stacked copy, checked at once; on any doubt the named checks below run
+        # (a finite sum means every value is finite; sx and sy are rows 1 and 3, checked by one min)
         try:
-            r0 = np.zeros(np.shape(x)) if rho is None else np.broadcast_to(rho, np.shape(x))
-            stacked = np.array([x, sx, y, sy, r0], dtype=float)
+            if rho is None:
+                stacked = np.array([x, sx, y, sy], dtype=float)
+                ok = stacked.ndim == 2 and np.isfinite(stacked.sum()) and stacked[1::2].min() > 0
+                if ok:
+                    return stacked[0], stacked[1], stacked[2], stacked[3], np.zeros(stacked.shape[1])
+            else:
+                stacked = np.array([x, sx, y, sy, np.broadcast_to(rho, np.shape(x))], dtype=float)
+                ok = (stacked.ndim == 2 and np.isfinite(stacked.sum()) and stacked[1:4:2].min() > 0
+                      and -1.0 < stacked[4].min() and stacked[4].max() < 1.0)
+                if ok:
+                    return stacked[0], stacked[1], stacked[2], stacked[3], stacked[4]
         except (TypeError, ValueError):
-            stacked = None
-        if (stacked is not None and stacked.ndim == 2 and np.isfinite(stacked).all()
-                and (stacked[1] > 0).all() and (stacked[3] > 0).all() and (np.abs(stacked[4]) < 1).all()):
-            return stacked[0], stacked[1], stacked[2], stacked[3], stacked[4]
+            pass
     xa = as_array(names[0], x, ndim=ndim)
     sxa = as_array(names[1], sx, ndim=ndim)
     ya = as_array(names[2], y, ndim=ndim)
@@ -448,13 +464,18 @@ def _make_fit(n: int, dof: int, b: float, a: float, sb: float, sa: float, cab: f
     if scale_by_mswd and mswd is not None and mswd > 1.0:
         scale = math.sqrt(mswd)
     rab = cab / (sb * sa) if sb > 0 and sa > 0 else 0.0
-    return IsochronFit(
+    # every field given, in declaration order: filled directly, skipping the frozen dataclass's
+    # per-field object.__setattr__ (the instance is the same: fields, equality, repr, replace)
+    fit = object.__new__(IsochronFit)
+    fit.__dict__.update(
         n=n, dof=dof, slope=float(b), slope_sigma_1s=float(sb) * scale, intercept=float(a),
         intercept_sigma_1s=float(sa) * scale, cov_slope_intercept=float(cab) * scale * scale,
         rho_slope_intercept=float(max(-1.0, min(1.0, rab))), mswd=mswd, p_value=p, mswd_limits_95=limits,
         treatment=treatment, x_centroid=float(xbar), y_centroid=float(ybar), iterations=int(iterations),
+        excess_sigma_y_1s=0.0, excess_sigma_y_sigma_1s=None,
         t95=t95, slope_sigma_95_expanded=sb95, intercept_sigma_95_expanded=sa95, sigma_scale=scale,
         chi2=None if s is None or dof == 0 else float(s), anchor=anchor)
+    return fit
 
 
 # --------------------------------------------------------------------------------------------
@@ -488,7 +509,9 @@ def york_fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int
     The slope is found by fixed-point iteration of York et al.'s (2004) equation
     ``b = Σ W β V / Σ W β U``, starting from the ordinary least-squares slope of y on x.
     **Convergence rule:** iteration stops at the first step with
-    ``|b_k − b_{k−1}| ≤ rtol·|b_k| + 1e-300``; after ``max_iter`` steps without that,
+    ``|b_k − b_{k−1}| ≤ rtol·|b_k| + 1e-300``, or, for ill-conditioned data whose slope equation
+    cannot be evaluated to ``rtol``, at the first update that repeats an earlier one exactly with
+    ``|b_k − b_{k−1}| ≤ 1e-12·|b_k|`` (the rounding floor); after ``max_iter`` steps without either,
     :class:`~reduction.errors.ConvergenceError` is raised. The standard errors are York et al.'s
     (2004) unified formulas (σ_b² = 1/Σ W u², σ_a² = 1/Σ W + x̄² σ_b², cov(a, b) = −x̄ σ_b², with
     x̄ the weighted mean of the adjusted x); they are not multiplied by √MSWD.
