@@ -208,15 +208,9 @@ class _Work:
         self.has_rho = has_rho
         self.d = np.empty_like(x)
         self.w = np.empty_like(x)
-        # a short single fit gets its sums from two matrix-vector products instead of five dots
-        self.small = x.ndim == 1 and x.size < _BLAS_MAX
-        if self.small:
-            self.p1xy = np.stack([np.ones_like(x), x, y])
-            self.uv = np.empty((2, x.size))
-            self.u, self.v = self.uv[0], self.uv[1]
-        else:
-            self.u = np.empty_like(x)
-            self.v = np.empty_like(x)
+        # (a short single fit, n < _BLAS_MAX, is solved by _york_single instead)
+        self.u = np.empty_like(x)
+        self.v = np.empty_like(x)
         self.t = np.empty_like(x)
         self.tmp = np.empty_like(x)
         self.e = np.empty_like(x)
@@ -245,15 +239,9 @@ class _Work:
         d *= b
         d += self.vy
         np.divide(1.0, d, out=w)
-        if self.small:
-            sw, swx, swy = (self.p1xy @ w).tolist()   # Python floats: cheaper scalar arithmetic
-            self.sw = sw
-            self.xb = xb = swx / sw
-            self.yb = yb = swy / sw
-        else:
-            self.sw = sw = np.add.reduce(w, axis=0)
-            self.xb = xb = self.wsum(w, self.x) / sw
-            self.yb = yb = self.wsum(w, self.y) / sw
+        self.sw = sw = np.add.reduce(w, axis=0)
+        self.xb = xb = self.wsum(w, self.x) / sw
+        self.yb = yb = self.wsum(w, self.y) / sw
         np.subtract(self.x, xb, out=u)
         np.subtract(self.y, yb, out=v)
         # W β = W² [U σy² + b V σx² − (bU + V) ρσxσy]
@@ -268,10 +256,98 @@ class _Work:
             t -= tmp
         t *= w
         t *= w
-        if self.small:
-            den, num = (self.uv @ t).tolist()
-            return num / den
         return self.wsum(t, v) / self.wsum(t, u)
+
+
+def _york_single(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r: np.ndarray,
+                 max_iter: int, rtol: float) -> Tuple[Any, ...]:
+    """:func:`_york_solve` for one short dataset (n < ``_BLAS_MAX``): the same operations in the same
+    order (so the same numbers), with the update inlined, one working block and Python-float
+    scalars, because at small n the cost is in the number of calls, not in the arithmetic."""
+    n = x.size
+    has_rho = bool(r.any())
+    vx = sx * sx
+    vy = sy * sy
+    blk = np.empty((9, n))
+    blk[0] = 1.0
+    blk[1] = x
+    blk[2] = y
+    p1xy, uv = blk[0:3], blk[3:5]
+    u, v, d, w, t, tmp = blk[3], blk[4], blk[5], blk[6], blk[7], blk[8]
+    if has_rho:
+        c = r * sx * sy
+        c2 = 2.0 * c
+    mul, sub = np.multiply, np.subtract
+    # start from ordinary least squares of y on x (York et al. 2004, step 1)
+    sub(x, np.add.reduce(x, axis=0) / n, out=u)
+    sxx = float(u @ u)
+    if not sxx > 0:
+        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    bw = float(u @ y) / sxx
+    b_prev = h_prev = None
+    seen = set()
+    iterations = 0
+    for _ in range(max_iter):
+        # York's slope update g(b) = Σ W β V / Σ W β U (York et al. 2004, eqs. 13a and 18), as _Work.update
+        mul(vx, bw, out=d)
+        if has_rho:
+            d -= c2
+        d *= bw
+        d += vy
+        np.divide(1.0, d, out=w)
+        sw, swx, swy = (p1xy @ w).tolist()
+        xb = swx / sw
+        yb = swy / sw
+        sub(x, xb, out=u)
+        sub(y, yb, out=v)
+        mul(u, vy, out=t)
+        mul(v, vx, out=tmp)
+        tmp *= bw
+        t += tmp
+        if has_rho:
+            mul(u, bw, out=tmp)
+            tmp += v
+            tmp *= c
+            t -= tmp
+        t *= w
+        t *= w
+        den, num = (uv @ t).tolist()
+        g = num / den
+        h = g - bw
+        iterations += 1
+        if abs(h) <= rtol * abs(g) + _ATOL:
+            break
+        if g in seen and abs(h) <= _FLOOR_RTOL * abs(g):
+            break
+        seen.add(g)
+        nxt = g
+        if h_prev is not None and h != h_prev:
+            sec = bw - h * (bw - b_prev) / (h - h_prev)
+            if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h) and (sec - bw) * h > 0:
+                nxt = sec
+        b_prev, h_prev, bw = bw, h, nxt
+    else:
+        raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
+    b = g
+    if not math.isfinite(b):
+        raise UndefinedResultError("the York slope is not finite (degenerate data)")
+    # final quantities (York et al. 2004, steps 5-8) from the state of the last update
+    a = yb - b * xb
+    e = tmp
+    mul(u, b, out=e)
+    sub(v, e, out=e)
+    mul(e, e, out=e)
+    s = float(w @ e)
+    beta = np.divide(t, w, out=t)
+    xadj_bar = xb + float(w @ beta) / sw
+    np.add(beta, xb - xadj_bar, out=d)
+    mul(d, d, out=d)
+    swuu = float(w @ d)
+    if not swuu > 0:
+        raise UndefinedResultError("all adjusted x values are equal: the slope error is undefined")
+    var_b = 1.0 / swuu
+    var_a = 1.0 / sw + xadj_bar * xadj_bar * var_b
+    return b, a, math.sqrt(var_b), math.sqrt(var_a), -xadj_bar * var_b, s, iterations, xb, yb
 
 
 def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r: np.ndarray,
@@ -549,7 +625,8 @@ def _york_checked(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarr
         w = 1.0 / (sya ** 2 + b * b * sxa ** 2 - 2 * b * ra * sxa * sya)
         xbar = float(w @ xa / w.sum())
         return _make_fit(n_report, 0, b, a, sb, sa, cab, None, treatment, xbar, a + b * xbar, 0, anchor=anchor)
-    b, a, sb, sa, cab, s, it, xbar, ybar = _york_solve(xa, sxa, ya, sya, ra, max_iter, rtol)
+    solve = _york_single if n < _BLAS_MAX else _york_solve
+    b, a, sb, sa, cab, s, it, xbar, ybar = solve(xa, sxa, ya, sya, ra, max_iter, rtol)
     return _make_fit(n_report, n - 2, float(b), float(a), float(sb), float(sa), float(cab), float(s), treatment,
                      float(xbar), float(ybar), int(it), scale_by_mswd=scale_by_mswd, anchor=anchor)
 
