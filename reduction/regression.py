@@ -226,6 +226,8 @@ class _Work:
         # BLAS dot for short vectors only: a threaded dot stalls on a busy machine
         if a.ndim == 1 and a.size < _BLAS_MAX:
             return a @ b
+        if a.ndim == 2:   # one pass, no temporary: column sums of the product, in the same order
+            return np.einsum("ij,ij->j", a, b)
         np.multiply(a, b, out=self.tmp)
         return np.add.reduce(self.tmp, axis=0)
 
