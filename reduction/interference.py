@@ -126,10 +126,6 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
     UndefinedResultError
         If the interference is larger than the total beam in any cycle.
     """
-    if isinstance(total, np.ndarray) and isinstance(monitor, np.ndarray) and total.size >= _FAST_MIN:
-        fast = _strip_fast(total, monitor, interferent, monitor_isotope, bias_factor, law, true_ratio)
-        if fast is not None:
-            return fast
     t = _beam("total", total)
     m = _beam("monitor", monitor)
     if np.any(m < 0):
@@ -154,39 +150,6 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
         return Stripped(float(out), float(corr), float(rel))
     if corr.shape != out.shape:
         corr = np.broadcast_to(corr, out.shape).copy()
-    return Stripped(out, corr, rel)
-
-
-_FAST_MIN = 256  # float arrays at least this long take the single-check path of strip_isobar
-
-
-def _strip_fast(total: np.ndarray, monitor: np.ndarray, interferent: str, monitor_isotope: str,
-                bias_factor: Any, law: str, true_ratio: Optional[float]) -> Optional[Stripped]:
-    """:func:`strip_isobar` for float arrays without missing cycles, checked after the arithmetic.
-
-    The same operations as the checked path (so the same numbers). A finite sum of the stripped
-    beam rules out NaN and inf in both beams, a non-negative correction a negative monitor, and a
-    positive minimum an interference as large as the beam; anything else returns ``None`` and the
-    caller takes the checked path (which also handles NaN as a missing cycle and names the error).
-    """
-    if total.dtype != np.float64 or monitor.dtype != np.float64 or total.shape != monitor.shape:
-        return None
-    try:
-        r_true = interferent_ratio(interferent, monitor_isotope) if true_ratio is None else float(true_ratio)
-        if not r_true > 0:
-            return None
-        r_meas = bias_apply(r_true, isotope_mass(interferent).value, isotope_mass(monitor_isotope).value,
-                            bias_factor, law)
-    except (InputError, UndefinedResultError, TypeError, ValueError):
-        return None
-    if np.ndim(r_meas) != 0:
-        return None
-    with np.errstate(all="ignore"):
-        corr = np.multiply(monitor, r_meas)
-        out = np.subtract(total, corr)
-        if not (np.isfinite(out.sum()) and out.min() > 0 and corr.min() >= 0 and r_meas > 0):
-            return None
-        rel = np.divide(corr, total)
     return Stripped(out, corr, rel)
 
 

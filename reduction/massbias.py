@@ -225,51 +225,5 @@ def normalise(measured: Any, ratio: str, measured_norm: Any, norm_ratio: str, *,
     >>> round(normalise(0.511500, "143Nd/144Nd", 0.7219, "146Nd/144Nd"), 9)
     0.5115
     """
-    if law == "exponential" and isinstance(measured, np.ndarray) and isinstance(measured_norm, np.ndarray) \
-            and measured.size >= _FAST_MIN and measured.dtype == np.float64 and measured_norm.dtype == np.float64:
-        out = _normalise_exponential(measured, ratio, measured_norm, norm_ratio, true_norm)
-        if out is not None:
-            return out
     f = bias_factor_from(measured_norm, norm_ratio, true_norm=true_norm, law=law)
     return correct_named(measured, ratio, f, law)
-
-
-_FAST_MIN = 256  # arrays at least this long take the fused exponential-law path of normalise
-
-
-def _normalise_exponential(measured: np.ndarray, ratio: str, measured_norm: np.ndarray, norm_ratio: str,
-                           true_norm: Optional[float]) -> Optional[np.ndarray]:
-    """Exponential-law normalisation of float arrays in one working buffer, checked once at the end.
-
-    The same operations in the same order as :func:`bias_factor` followed by :func:`bias_correct`
-    (so the same numbers), but in place. A positive finite result implies positive finite inputs
-    (the gain is positive and finite only for a positive finite normalising ratio); anything else
-    returns ``None`` and the caller repeats the work on the fully checked path, which raises the
-    error naming the argument (or returns the same value).
-    """
-    try:
-        mk, ml = ratio_masses(norm_ratio)
-        mi, mj = ratio_masses(ratio)
-        rt = float(normalising_ratio(norm_ratio).value if true_norm is None else true_norm)
-    except (InputError, TypeError, ValueError):
-        return None
-    if not (rt > 0 and np.isfinite(rt) and mk > 0 and ml > 0 and mi > 0 and mj > 0 and mk != ml and mi != mj):
-        return None
-    try:
-        shape = np.broadcast_shapes(measured.shape, measured_norm.shape)
-    except ValueError:
-        return None
-    if shape != measured_norm.shape:
-        return None
-    log_k = np.log(np.asarray(mk) / np.asarray(ml))
-    log_i = np.log(np.asarray(mi) / np.asarray(mj))
-    with np.errstate(all="ignore"):
-        w = np.divide(rt, measured_norm)       # q = R_t,n / R_m,n
-        np.log(w, out=w)
-        np.divide(w, log_k, out=w)             # β
-        np.multiply(w, log_i, out=w)
-        np.exp(w, out=w)                       # gain (m_i/m_j)^β
-        np.multiply(measured, w, out=w)
-    if w.min() > 0 and np.isfinite(w.sum()):
-        return w
-    return None
