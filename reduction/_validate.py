@@ -5,6 +5,7 @@ the first offending 1-based row.
 """
 from __future__ import annotations
 
+import math
 from typing import Any, Optional
 
 import numpy as np
@@ -44,7 +45,7 @@ def as_scalar(name: str, x: Any) -> float:
         v = float(x)
     except (TypeError, ValueError):
         raise InputError(name, f"is not a number: {x!r}") from None
-    if not np.isfinite(v):
+    if not math.isfinite(v):  # math, not numpy: this runs once per cell call
         raise InputError(name, f"must be a finite number, got {v!r}")
     return v
 
