@@ -1307,6 +1307,9 @@ def _xlsx_charts(ws: Any) -> None:
             ch.series.append(series)
         ch.x_axis.delete = False
         ch.y_axis.delete = False
+        ch.x_axis.number_format = "0.00"
+        ch.y_axis.number_format = "0.0000"
+        ch.x_axis.majorGridlines = None
         ws.add_chart(ch, f"I{ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2 + 20 * k}")
 
 
