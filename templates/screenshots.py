@@ -4,7 +4,8 @@
     /usr/bin/python3 templates/screenshots.py OXT DEMO.ods OUTDIR [FILE.png:SHEET:CELL ...]
 
 Needs the full ``libreoffice-calc`` and ``libreoffice-gtk3`` packages, ``xvfb`` and ``imagemagick``
-(``import``), and ``xdotool`` to size the window. Starts ``Xvfb`` on a free display and LibreOffice with its own throwaway profile
+(``import``), and ``xdotool`` to size the window. Starts ``Xvfb`` on a free display and LibreOffice
+with its own throwaway profile
 (RatioDesk installed into it), opens the workbook, shows a few sheets and grabs the screen;
 stops both by their process ids.
 """
