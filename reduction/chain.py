@@ -72,7 +72,8 @@ def _split(r: str) -> Tuple[str, str]:
 def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], ratios: Sequence[str], *,
                   norm_ratio: Optional[str] = None, norm_true: Optional[float] = None, law: str = "exponential",
                   bias_factors: Optional[Mapping[str, Union[float, str]]] = None,
-                  reject_k: Optional[float] = 2.0, max_bias_iter: int = 20) -> CycleReduction:
+                  reject_k: Optional[float] = 2.0, max_bias_iter: int = 20,
+                  interferent_ratios: Optional[Mapping[str, float]] = None) -> CycleReduction:
     """Strip isobars cycle by cycle, form ratios, normalise per cycle (optional), then average.
 
     Parameters
@@ -90,8 +91,17 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
         Bias factor of each interfering element (``"Sm"``, ``"Yb"``, ``"Lu"``, ``"Rb"``): a number, or the
         string ``"analyte"`` to use the analyte's own per-cycle factor (needs ``norm_ratio``; solved by
         fixed-point iteration because the stripped beam enters the normalising ratio).
+        An interfering element not listed is stripped with β = 0 (see
+        :func:`reduction.interference.strip_beams`).
     reject_k : float or None
         Outlier threshold for :func:`reduction.cycles.cycle_stats`.
+    interferent_ratios : mapping of str to float, optional
+        True interferent/monitor ratios keyed ``"144Sm/147Sm"`` etc., passed to
+        :func:`reduction.interference.strip_beams`; default natural. **Spiked runs:** the residual
+        parent element in a daughter run has the spike–sample mixture's composition, so give the
+        mixture's bias-corrected ratio from the parent-element run of the same aliquot (e.g.
+        144Sm/147Sm, 148Sm/147Sm, 150Sm/147Sm of a 149Sm-spiked mixture; 176Lu/175Lu with a 176Lu
+        spike; 87Rb/85Rb with an 87Rb spike). The natural ratio can be wrong ~100-fold there.
 
     Returns
     -------
@@ -116,7 +126,8 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
             if iso not in raw:
                 raise InputError("beams", f"no beam for {iso!r}, needed by norm_ratio {norm_ratio!r}")
     fixed = {el: v for el, v in factors.items() if not isinstance(v, str)}
-    strip = strip_beams(raw, sysm, bias_factors=fixed, law=law)
+    ir = dict(interferent_ratios or {})
+    strip = strip_beams(raw, sysm, bias_factors=fixed, law=law, interferent_ratios=ir)
     for _ in range(max(1, int(max_bias_iter)) if use_analyte else 1):
         b = strip.beams
         if norm_ratio is None:
@@ -129,7 +140,8 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
         beta = new_beta
         if not use_analyte or done:
             break
-        strip = strip_beams(raw, sysm, bias_factors={**fixed, **{el: beta for el in use_analyte}}, law=law)
+        strip = strip_beams(raw, sysm, bias_factors={**fixed, **{el: beta for el in use_analyte}}, law=law,
+                            interferent_ratios=ir)
     b = strip.beams
     out_r: Dict[str, Any] = {}
     out_s: Dict[str, Any] = {}

@@ -12,6 +12,23 @@ drifting interference does not bias the mean. Inputs are beam intensities (V, A 
 ratios to one common, interference-free isotope; both behave identically.
 
 NaN is passed through untouched as a missing cycle (the 2-D cycle form of :mod:`reduction.cycles`).
+
+Isobars handled (:data:`INTERFERENCES`; daughter-element runs only):
+
+* Sm-Nd: 144Sm on 144Nd, 148Sm on 148Nd and 150Sm on 150Nd (monitor 147Sm); 142Ce on 142Nd
+  (monitor 140Ce);
+* Lu-Hf: 176Yb on 176Hf (monitor 173Yb) and 176Lu on 176Hf (monitor 175Lu);
+* Rb-Sr: 87Rb on 87Sr (monitor 85Rb).
+
+An interference is stripped only when its target mass is among the beams. Not handled: isobars
+in the parent-element run (e.g. 144Nd, 148Nd, 150Nd on Sm; 176Yb and 176Hf on 176Lu; 87Sr on
+87Rb), oxide and hydride interferences, and doubly charged ions; strip those before calling.
+
+Spiked runs: the residual parent element in the daughter run is a spike–sample mixture, so its
+interferent/monitor ratio is not the natural one (e.g. 176Lu/175Lu with a 176Lu spike, 87Rb/85Rb
+with an 87Rb spike, 144Sm/147Sm and 150Sm/147Sm with a 149Sm or 147Sm spike); stripping with the
+natural ratio can then be wrong by orders of magnitude. Pass the mixture's true (bias-corrected)
+ratio, measured in the parent-element run of the same aliquot, as ``interferent_ratios``.
 """
 from __future__ import annotations
 
@@ -36,7 +53,8 @@ __all__ = [
 
 #: system key -> (target isotope, interfering isotope, monitor isotope) for each isobar stripped.
 INTERFERENCES: Dict[str, Tuple[Tuple[str, str, str], ...]] = {
-    "sm-nd": (("144Nd", "144Sm", "147Sm"),),
+    "sm-nd": (("144Nd", "144Sm", "147Sm"), ("148Nd", "148Sm", "147Sm"), ("150Nd", "150Sm", "147Sm"),
+              ("142Nd", "142Ce", "140Ce")),
     "lu-hf": (("176Hf", "176Yb", "173Yb"), ("176Hf", "176Lu", "175Lu")),
     "rb-sr": (("87Sr", "87Rb", "85Rb"),),
 }
@@ -115,7 +133,9 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
     law : str
         Mass-bias law of ``bias_factor`` (see :mod:`reduction.massbias`).
     true_ratio : float, optional
-        True interferent/monitor ratio; default from :func:`interferent_ratio`.
+        True interferent/monitor ratio; default from :func:`interferent_ratio` (natural). For a spiked
+        run whose interfering element carries spike (e.g. 176Lu/175Lu in a Hf run spiked with
+        176Lu), give the spike–sample mixture's bias-corrected ratio from the parent-element run.
 
     Returns
     -------
@@ -132,7 +152,7 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
         raise InputError("monitor", "beam intensities must be >= 0")
     r_true = interferent_ratio(interferent, monitor_isotope) if true_ratio is None else float(true_ratio)
     if not r_true > 0:
-        raise InputError("true_ratio", f"must be > 0, got {true_ratio!r}")
+        raise InputError("true_ratio", f"must be > 0, got {r_true!r}")
     r_meas = bias_apply(r_true, isotope_mass(interferent).value, isotope_mass(monitor_isotope).value,
                         bias_factor, law)
     corr = m * r_meas
@@ -142,8 +162,8 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
     if np.any(bad):
         i = int(np.flatnonzero(np.ravel(bad))[0])
         raise UndefinedResultError(
-            f"total: the {interferent} interference ({np.ravel(corr)[i]!r}) is not smaller than the beam "
-            f"({np.ravel(t)[i]!r}) at element {i + 1}")
+            f"total: the {interferent} interference ({float(np.ravel(corr)[i]):g}) is not smaller than the "
+            f"beam ({float(np.ravel(np.broadcast_to(t, out.shape))[i]):g}) at element {i + 1}")
     with np.errstate(invalid="ignore", divide="ignore"):
         rel = corr / t
     if out.ndim == 0:
@@ -174,7 +194,8 @@ class BeamStrip:
 
 def strip_beams(beams: Mapping[str, Any], system: Any, *,
                 bias_factors: Optional[Mapping[str, Union[float, Any]]] = None,
-                law: str = "exponential", require_monitors: bool = True) -> BeamStrip:
+                law: str = "exponential", require_monitors: bool = True,
+                interferent_ratios: Optional[Mapping[str, float]] = None) -> BeamStrip:
     """Strip every isobar of ``system`` (see :data:`INTERFERENCES`) from raw beams, cycle by cycle.
 
     Parameters
@@ -186,13 +207,23 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
     system : str or IsotopeSystem
         ``"sm-nd"``, ``"lu-hf"`` or ``"rb-sr"``.
     bias_factors : mapping of str to float or array, optional
-        Mass-bias factor of each interfering element (``"Sm"``, ``"Yb"``, ``"Lu"``, ``"Rb"``), scalar or per
-        cycle; a missing element gets 0 (no bias).
+        Mass-bias factor of each interfering element (``"Sm"``, ``"Ce"``, ``"Yb"``, ``"Lu"``, ``"Rb"``),
+        scalar or per cycle. **An element not listed gets 0, i.e. its interferent/monitor ratio is
+        subtracted unfractionated.** When the interfering element's own bias is not measured, common
+        practice is to use the analyte's factor: pass it here, or use ``bias_factors={"Sm": "analyte"}``
+        in :func:`reduction.chain.reduce_cycles`, which solves for it per cycle.
     law : str
         Mass-bias law for the factors.
     require_monitors : bool, default True
         Missing monitor beam -> InputError. With False, that interference is skipped (reported as 0).
         An interference whose target mass is not among the beams is skipped and not reported.
+    interferent_ratios : mapping of str to float, optional
+        True interferent/monitor ratio per isobar, keyed ``"interferent/monitor"`` as in
+        :data:`INTERFERENCES` (``"144Sm/147Sm"``, ``"176Lu/175Lu"``, ``"87Rb/85Rb"``); an isobar not
+        listed uses the natural ratio of :func:`interferent_ratio`. **For spiked runs** the residual
+        parent element has the spike–sample mixture's composition: give its bias-corrected ratio from
+        the parent-element run of the same aliquot (the bias of this run is applied on top, from
+        ``bias_factors``). A key that names no isobar of ``system`` raises InputError.
 
     Returns
     -------
@@ -201,6 +232,24 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
     sysm = get_system(system)
     work: Dict[str, np.ndarray] = {k: np.array(_beam(f"beams[{k!r}]", v)) for k, v in beams.items()}
     factors = dict(bias_factors or {})
+    for el, v in factors.items():
+        if isinstance(v, str):
+            raise InputError("bias_factors", f"{el}: must be a number or an array here, got {v!r} "
+                             "('analyte' is resolved by reduction.chain.reduce_cycles)")
+    known = {f"{i}/{m}" for _, i, m in INTERFERENCES[sysm.key]}
+    overrides: Dict[str, float] = {}
+    for k, v in dict(interferent_ratios or {}).items():
+        name = str(k).replace(" ", "")
+        if name not in known:
+            raise InputError("interferent_ratios", f"{k!r} is not an isobar of {sysm.key} "
+                             f"(use one of {sorted(known)})")
+        try:
+            fv = float(v)
+        except (TypeError, ValueError):
+            raise InputError("interferent_ratios", f"{k!r}: is not a number: {v!r}") from None
+        if not (np.isfinite(fv) and fv > 0):
+            raise InputError("interferent_ratios", f"{k!r}: must be a finite number > 0, got {fv!r}")
+        overrides[name] = fv
     corrections: Dict[str, np.ndarray] = {}
     rel_mean: Dict[str, Any] = {}
     original = {t: work[t] for t, _, _ in INTERFERENCES[sysm.key] if t in work}
@@ -217,7 +266,8 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
             continue
         total = work[target]
         s = strip_isobar(total, work[monitor], interferent, monitor,
-                         bias_factor=factors.get(_element(interferent), 0.0), law=law)
+                         bias_factor=factors.get(_element(interferent), 0.0), law=law,
+                         true_ratio=overrides.get(f"{interferent}/{monitor}"))
         corrections[key] = np.asarray(s.correction)
         with np.errstate(invalid="ignore", divide="ignore"):
             rel_mean[key] = _row_mean(np.asarray(s.correction) / original[target])

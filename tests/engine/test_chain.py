@@ -4,8 +4,10 @@ Invented scenario (demo data, rule 3): the fictional "Quillmere schist" (samples
 QM-Lch (garnet leachate), QM-WR), forward-modelled from a chosen true age of 412.0 Ma and initial
 143Nd/144Nd = 0.511900 with λ(147Sm) of the default reference set (Lugmair & Marti 1978). Natural
 compositions: CIAAW via reduction.constants; masses AME2020; spikes: the INVENTED demo mixed spike;
-mass bias: exponential law (Russell et al. 1978) with a different β per run; 144Sm on 144Nd added per
-cycle from a drifting 147Sm monitor. The forward model is written out here (moles of each isotope).
+mass bias: exponential law (Russell et al. 1978) with a different β per run; residual Sm in the Nd run
+(144Sm on 144Nd, 150Sm on 150Nd) added per cycle from a drifting 147Sm monitor with the composition of
+the spike–sample Sm mixture (the Sm is spiked too). The forward model is written out here (moles of
+each isotope).
 """
 import numpy as np
 import pytest
@@ -45,11 +47,16 @@ def truth(name):
     return dict(x=x, y=y, nd_ugg=nd_ugg, sm_ugg=sm_ugg, ws=ws, rn=rn, rs=rs, n_nd=n_nd, n_sm=n_sm)
 
 
-def mixture_beams(rt, element, ref, n_sample, spike, w_t, beta, isos, scale, n_cycles, pattern_iso):
-    """Beams (V) per cycle of a spiked mixture, exponential-law fractionated; a zero-sum ±δ pattern on one beam."""
+def mixture_amounts(rt, element, n_sample, spike, w_t):
+    """µmol of each isotope in the spike–sample mixture."""
     tot = sum(rt.values())
     n_spk = spike.element_umol_g * w_t
-    amt = {i: n_sample * rt[i] / tot + n_spk * spike.abundance(i) for i in element_isotopes(element)}
+    return {i: n_sample * rt[i] / tot + n_spk * spike.abundance(i) for i in element_isotopes(element)}
+
+
+def mixture_beams(rt, element, ref, n_sample, spike, w_t, beta, isos, scale, n_cycles, pattern_iso):
+    """Beams (V) per cycle of a spiked mixture, exponential-law fractionated; a zero-sum ±δ pattern on one beam."""
+    amt = mixture_amounts(rt, element, n_sample, spike, w_t)
     m_r = isotope_mass(ref).value
     beams = {}
     for i in isos:
@@ -66,11 +73,15 @@ def raw_runs(name, w_t=0.08, beta_nd=1.62, beta_sm=1.35, n_cycles=60):
                        ["143Nd", "144Nd", "146Nd", "150Nd"], 2.0, n_cycles, "143Nd")
     sm = mixture_beams(t["rs"], "Sm", "152Sm", t["n_sm"], SM, w_t, beta_sm,
                        ["147Sm", "149Sm", "152Sm"], 1.5, n_cycles, "147Sm")
-    # residual Sm in the Nd cut: drifting 147Sm monitor, 144Sm added on mass 144 with the Sm bias
+    # residual Sm in the Nd cut: drifting 147Sm monitor; 144Sm and 150Sm added on masses 144 and 150 with
+    # the Sm bias and the composition of the spiked Sm mixture (its true ratios, as the Sm run measures them)
     mon = np.linspace(2e-4, 6e-4, n_cycles)
-    m44, m47 = isotope_mass("144Sm").value, isotope_mass("147Sm").value
-    r44 = interferent_ratio("144Sm", "147Sm") * (m44 / m47) ** (-beta_sm)
-    nd["144Nd"] = nd["144Nd"] + mon * r44
+    amt = mixture_amounts(t["rs"], "Sm", t["n_sm"], SM, w_t)
+    m47 = isotope_mass("147Sm").value
+    t["sm_mix_ratios"] = {f"{i}/147Sm": amt[i] / amt["147Sm"] for i in ("144Sm", "150Sm")}
+    for iso, target in (("144Sm", "144Nd"), ("150Sm", "150Nd")):
+        r = t["sm_mix_ratios"][f"{iso}/147Sm"] * (isotope_mass(iso).value / m47) ** (-beta_sm)
+        nd[target] = nd[target] + mon * r
     nd["147Sm"] = mon
     # one wild cycle in each run, appended (rejected at 2 SD)
     for b, iso in ((nd, "143Nd"), (sm, "147Sm")):
@@ -82,7 +93,8 @@ def raw_runs(name, w_t=0.08, beta_nd=1.62, beta_sm=1.35, n_cycles=60):
 
 def reduce(name, **kw):
     t, nd, sm, beta_sm = raw_runs(name)
-    cn = reduce_cycles(nd, "sm-nd", ["143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd"], bias_factors={"Sm": beta_sm})
+    cn = reduce_cycles(nd, "sm-nd", ["143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd"], bias_factors={"Sm": beta_sm},
+                       interferent_ratios=t["sm_mix_ratios"])
     cs = reduce_cycles(sm, "sm-nd", ["147Sm/152Sm", "149Sm/152Sm"])
     assert cn.n_rejected["143Nd/144Nd"] == 1 and cs.n_rejected["147Sm/152Sm"] == 1
     assert 0 < cn.correction_rel_mean["144Sm on 144Nd"] < 1e-2
@@ -163,7 +175,8 @@ def test_separate_unspiked_aliquot():
     cu = reduce_cycles(un, "sm-nd", ["143Nd/144Nd"], norm_ratio="146Nd/144Nd", bias_factors={"Sm": "analyte"})
     assert cu.ratios["143Nd/144Nd"] == pytest.approx(t["y"], rel=1e-10)
     assert cu.bias_factor_mean == pytest.approx(beta, rel=1e-9)
-    cn = reduce_cycles(nd, "sm-nd", ["146Nd/144Nd", "150Nd/144Nd"], bias_factors={"Sm": beta_sm})
+    cn = reduce_cycles(nd, "sm-nd", ["146Nd/144Nd", "150Nd/144Nd"], bias_factors={"Sm": beta_sm},
+                       interferent_ratios=t["sm_mix_ratios"])
     cs = reduce_cycles(sm, "sm-nd", ["147Sm/152Sm", "149Sm/152Sm"])
     r = reduce_spiked_analysis("sm-nd", cs.ratios, cn.ratios, t["ws"], 0.08, SM, ND,
                                parent_norm_ratio="147Sm/152Sm", daughter_unspiked=cu.ratios,
@@ -208,7 +221,8 @@ def test_lu_hf_and_rb_sr_chains():
 
 def test_bad_input_is_named():
     t, nd, sm, beta_sm = raw_runs("QM-WR")
-    cn = reduce_cycles(nd, "sm-nd", ["143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd"], bias_factors={"Sm": beta_sm})
+    cn = reduce_cycles(nd, "sm-nd", ["143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd"], bias_factors={"Sm": beta_sm},
+                       interferent_ratios=t["sm_mix_ratios"])
     cs = reduce_cycles(sm, "sm-nd", ["147Sm/152Sm", "149Sm/152Sm"])
     base = dict(system="sm-nd", parent_mix=cs.ratios, daughter_mix=cn.ratios, sample_mass_g=0.02, spike_mass_g=0.08,
                 parent_spike=SM, daughter_spike=ND, parent_norm_ratio="147Sm/152Sm")
