@@ -33,7 +33,7 @@ def as_array(name: str, x: Any, ndim: Optional[int] = 1, min_len: int = 0) -> np
     bad = ~np.isfinite(arr)
     if bad.any():
         i = int(np.flatnonzero(bad.ravel())[0])
-        raise InputError(name, f"must be a finite number, got {arr.ravel()[i]!r}", row=i + 1)
+        raise InputError(name, f"must be a finite number, got {float(arr.ravel()[i])!r}", row=i + 1)
     if arr.ndim == 1 and arr.size < min_len:
         raise InputError(name, f"needs at least {min_len} values, got {arr.size}")
     return arr
@@ -59,7 +59,7 @@ def require_positive(name: str, arr: np.ndarray, allow_zero: bool = False) -> np
         if a.ndim == 0:
             raise InputError(name, f"must be {op}, got {float(a)!r}")
         i = int(np.flatnonzero(bad.ravel())[0])
-        raise InputError(name, f"must be {op}, got {a.ravel()[i]!r}", row=i + 1)
+        raise InputError(name, f"must be {op}, got {float(a.ravel()[i])!r}", row=i + 1)
     return a
 
 
@@ -80,5 +80,5 @@ def require_correlation(name: str, rho: np.ndarray) -> np.ndarray:
     bad = np.abs(r) >= 1
     if np.any(bad):
         i = int(np.flatnonzero(bad.ravel())[0])
-        raise InputError(name, f"must lie strictly between -1 and 1, got {r.ravel()[i]!r}", row=i + 1)
+        raise InputError(name, f"must lie strictly between -1 and 1, got {float(r.ravel()[i])!r}", row=i + 1)
     return r

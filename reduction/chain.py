@@ -250,7 +250,7 @@ def _num(name: str, v: Any, positive: bool = True) -> float:
     except (TypeError, ValueError):
         raise InputError(name, f"must be a number, got {v!r}") from None
     if not np.isfinite(x) or (x <= 0 if positive else x < 0):
-        raise InputError(name, f"must be {'> 0' if positive else '>= 0'}, got {v!r}")
+        raise InputError(name, f"must be {'> 0' if positive else '>= 0'}, got {x!r}")
     return x
 
 
@@ -369,7 +369,7 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
     wt = _num("spike_mass_g", spike_mass_g)
     rho_sp = float(spike_rho)
     if not -1 <= rho_sp <= 1:
-        raise InputError("spike_rho", f"must lie in [-1, 1], got {spike_rho!r}")
+        raise InputError("spike_rho", f"must lie in [-1, 1], got {rho_sp!r}")
     if standard is not None and not isinstance(standard, StandardFactor):
         raise InputError("standard", "must be a StandardFactor (see reduction.standards.standard_factor)")
 

@@ -42,20 +42,26 @@ def read_columns(path: str, required: Sequence[str], optional: Sequence[str] = (
     regard to case or surrounding spaces. Returns the columns (float arrays) and the file line
     number of each data row. Any bad cell raises :class:`InputError` naming the line and column.
     """
-    with open(path, encoding="utf-8-sig", newline="") as fh:
-        reader = csv.reader(fh)
-        header: Optional[List[str]] = None
-        header_line = 0
-        rows: List[Tuple[int, List[str]]] = []
-        for cells in reader:
-            line = reader.line_num
-            if not cells or all(not c.strip() for c in cells) or cells[0].lstrip().startswith("#"):
-                continue
-            if header is None:
-                header = [c.strip().lower() for c in cells]
-                header_line = line
-                continue
-            rows.append((line, cells))
+    header: Optional[List[str]] = None
+    header_line = 0
+    rows: List[Tuple[int, List[str]]] = []
+    line = 0
+    try:
+        with open(path, encoding="utf-8-sig", newline="") as fh:
+            reader = csv.reader(fh)
+            for cells in reader:
+                line = reader.line_num
+                if not cells or all(not c.strip() for c in cells) or cells[0].lstrip().startswith("#"):
+                    continue
+                if header is None:
+                    header = [c.strip().lower() for c in cells]
+                    header_line = line
+                    continue
+                rows.append((line, cells))
+    except UnicodeDecodeError:
+        raise InputError(str(path), "is not a UTF-8 text CSV (save it as CSV, UTF-8)") from None
+    except csv.Error as exc:
+        raise InputError(str(path), f"is not a readable CSV (near line {line + 1}: {exc})") from None
     if header is None:
         raise InputError(str(path), "the file is empty (expected a header line with " + ", ".join(required) + ")")
     index: Dict[str, int] = {}
@@ -94,7 +100,7 @@ def _to_1s_abs(values: np.ndarray, sigma: np.ndarray, lines: List[int], column: 
     """Convert a sigma column to 1σ absolute; reject σ <= 0 naming the line."""
     for k, s in enumerate(sigma):
         if s <= 0:
-            raise InputError(f"line {lines[k]}, column {column}", f"uncertainty must be > 0, got {s!r}")
+            raise InputError(f"line {lines[k]}, column {column}", f"uncertainty must be > 0, got {float(s)!r}")
     out = np.abs(values) * sigma / 100.0 if relative else sigma.copy()
     for k, s in enumerate(out):
         if s <= 0:
@@ -107,7 +113,7 @@ def _check_rho(rho: np.ndarray, lines: List[int]) -> None:
     for k, r in enumerate(rho):
         if not -1 < r < 1:
             raise InputError(f"line {lines[k]}, column rho", f"error correlation must lie strictly between -1 and 1, "
-                                                             f"got {r!r}")
+                                                             f"got {float(r)!r}")
 
 
 # --------------------------------------------------------------------------------------------
@@ -219,7 +225,8 @@ def _isochron_table(r: Dict[str, Any]) -> str:
     else:
         lo, hi = r["mswd_limits_95"]
         lines.append(f"  MSWD = {r['mswd']:.4g}  p(chi2) = {r['p_value']:.3g}  "
-                     f"acceptable range (Wendt & Carl 1991, exact 95 %): {lo:.3g} - {hi:.3g}")
+                     f"MSWD range (chi-square 5-95 %; upper = 95 % rejection limit, cf. Wendt & Carl 1991): "
+                     f"{lo:.3g} - {hi:.3g}")
     if "age_ma" in r:
         lines.append(f"  system {r['system']}: x = {r['x_ratio']}, y = {r['y_ratio']}; decay constant "
                      f"{r['decay_constant']:.6g} +/- {r['decay_constant_se']:.3g} /a "

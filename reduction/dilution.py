@@ -207,9 +207,9 @@ def make_spike(element: str, isotopes: Sequence[str], abundances: Sequence[float
     c = float(concentration_umol_g)
     s = float(concentration_sigma_1s)
     if not (np.isfinite(c) and c > 0):
-        raise InputError("concentration_umol_g", f"must be > 0, got {concentration_umol_g!r}")
+        raise InputError("concentration_umol_g", f"must be > 0, got {c!r}")
     if not (np.isfinite(s) and s >= 0):
-        raise InputError("concentration_sigma_1s", f"must be >= 0, got {concentration_sigma_1s!r}")
+        raise InputError("concentration_sigma_1s", f"must be >= 0, got {s!r}")
     ab = ab / ab.sum()
     return Spike(label or f"{spike_isotope} spike", element, isos, tuple(float(a) for a in ab), spike_isotope,
                  c, s, calibrated)
@@ -399,7 +399,7 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     if not isinstance(spike, Spike):
         raise InputError("spike", "must be a Spike (see make_spike)")
     if not (np.isfinite(tol) and 0 < tol < 1e-3):
-        raise InputError("tol", f"must lie in (0, 1e-3), got {tol!r}")
+        raise InputError("tol", f"must lie in (0, 1e-3), got {float(tol)!r}")
     if int(max_iter) < 1:
         raise InputError("max_iter", f"must be >= 1, got {max_iter!r}")
     if not measured:
@@ -426,7 +426,7 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     if norm_ratio is not None:
         n_iso, n_den = _split(norm_ratio, "norm_ratio")
         if norm_true is not None and not (np.isfinite(norm_true) and norm_true > 0):
-            raise InputError("norm_true", f"must be > 0, got {norm_true!r}")
+            raise InputError("norm_true", f"must be > 0, got {float(norm_true)!r}")
         r_true = normalising_ratio(norm_ratio).value if norm_true is None else float(norm_true)
         if n_iso == ref:  # e.g. 86Sr/88Sr with reference 86Sr: use 88Sr/86Sr = 1/0.1194
             n_iso, n_den, r_true = n_den, n_iso, 1.0 / r_true

@@ -6,7 +6,8 @@
   (a fixed intercept ± σ).
 * :func:`weighted_mean` — inverse-variance weighted mean with MSWD, an optional external scatter
   estimated by maximum likelihood, and outlier flags.
-* :func:`wendt_carl_limits` — acceptable range of the MSWD (Wendt & Carl 1991).
+* :func:`wendt_carl_limits` — MSWD range from the χ² 5 % and 95 % quantiles (upper end = the 95 %
+  rejection limit; cf. Wendt & Carl 1991).
 * :func:`ellipse_points` — outline of a point's error ellipse for a chart.
 
 All inputs and outputs are 1σ absolute unless a name says otherwise. Probabilities use the
@@ -60,6 +61,8 @@ class IsochronFit:
     MSWD > 1, else 1), so the unscaled errors are always ``slope_sigma_1s / sigma_scale``.
     ``mswd``, ``p_value`` and ``mswd_limits_95`` describe the scatter of the data about the line
     relative to the analytical errors; they are ``None`` for two points (no degrees of freedom).
+    ``mswd_limits_95`` is the χ² 5 %–95 % range of the MSWD (a 90 % two-sided interval whose upper
+    end is the 95 % rejection limit; see :func:`wendt_carl_limits`).
     The ``*_95_expanded`` errors are ``t95 * sqrt(max(MSWD, 1))`` times the analytical 1σ
     errors (95 % limits, Student-t with ``dof`` degrees of freedom; common practice).
     """
@@ -153,22 +156,22 @@ def _limits_95(dof: int) -> Tuple[float, float]:
 
 
 def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = False) -> Tuple[float, float]:
-    """Acceptable range of the MSWD for ``dof`` degrees of freedom.
+    """MSWD range for ``dof`` degrees of freedom: the χ² quantiles ``1 − level`` and ``level`` over dof.
 
-    Wendt & Carl (1991) show that for data scattering only by their analytical errors the MSWD
-    has expectation 1 and standard deviation ``sqrt(2/dof)``, and propose ``1 ± 2*sqrt(2/dof)``
-    as the 95 % range. Exactly, MSWD·dof follows χ² with ``dof`` degrees of freedom; this function
-    returns the exact one-sided limits ``chi2.ppf(1 - level, dof)/dof`` and
-    ``chi2.ppf(level, dof)/dof`` (an MSWD above ``upper`` has probability ``1 - level`` for a true
-    line), or with ``approximate=True`` the Wendt & Carl form ``1 ± 2*sqrt(2/dof)`` (lower
-    limit clipped at 0).
+    For data scattering only by their analytical errors, MSWD·dof follows χ² with ``dof`` degrees of
+    freedom. This function returns ``(chi2.ppf(1 − level, dof)/dof, chi2.ppf(level, dof)/dof)``; with
+    the default ``level = 0.95`` that is the 5 %–95 % range, i.e. a **90 % two-sided interval**
+    whose upper end is the **95 % one-sided rejection limit** (an MSWD above it has probability
+    5 % for a true line). That upper limit is what Wendt & Carl (1991) approximate by
+    ``1 + 2*sqrt(2/dof)`` (their 95 % rejection rule, from E[MSWD] = 1 and σ(MSWD) = sqrt(2/dof));
+    ``approximate=True`` returns their form ``1 ± 2*sqrt(2/dof)`` (lower end clipped at 0).
 
     Parameters
     ----------
     dof : int
         Degrees of freedom, ≥ 1.
     level : float
-        Confidence level in (0, 1).
+        One-sided level in (0, 1) of each end (0.95: 5 % and 95 % quantiles).
     approximate : bool
         Return the Wendt & Carl approximation instead of the exact χ² limits.
 
@@ -197,6 +200,26 @@ def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = Fals
 # York core: points on axis 0, so one code path serves a single fit (n,) and a batch (n, m).
 # The loop works in preallocated buffers (in-place ufuncs): for large n, fresh temporaries cost
 # more than the arithmetic.
+# --------------------------------------------------------------------------------------------
+_ALL_EQUAL = "all x values are equal: the slope of a line through them is undefined"
+_EPS = float(np.finfo(float).eps)
+_FP_PROBLEM = ("the values or their errors are too large or too small for double precision (a square, "
+               "weight or product of them overflows or underflows); rescale x and y and their errors "
+               "(e.g. express them in other units) before fitting")
+
+
+def _x_spread(sxx: Any, xm: Any, n: int) -> Any:
+    """False where Σ(x − x̄)² is zero up to rounding: x values equal to within a few ulps of their
+    mean (e.g. 0.1, 0.1, 0.1, whose deviations from the computed mean are ~1e-17, not 0)."""
+    return sxx > n * (16.0 * _EPS * xm) ** 2
+
+
+def _fp_guard() -> Any:
+    """Floating-point overflow, division by zero and invalid operations raise (underflow to a
+    subnormal or 0 is allowed): they become an UndefinedResultError with :data:`_FP_PROBLEM`."""
+    return np.errstate(over="raise", divide="raise", invalid="raise", under="ignore")
+
+
 # --------------------------------------------------------------------------------------------
 class _Work:
     """Per-iteration arrays of the York solver for one working set of datasets."""
@@ -281,10 +304,11 @@ def _york_single(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r
         c2 = 2.0 * c
     mul, sub = np.multiply, np.subtract
     # start from ordinary least squares of y on x (York et al. 2004, step 1)
-    sub(x, np.add.reduce(x, axis=0) / n, out=u)
+    xm = float(np.add.reduce(x, axis=0)) / n
+    sub(x, xm, out=u)
     sxx = float(u @ u)
-    if not sxx > 0:
-        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    if not _x_spread(sxx, xm, n):
+        raise UndefinedResultError(_ALL_EQUAL)
     bw = float(u @ y) / sxx
     b_prev = h_prev = None
     seen = set()
@@ -314,6 +338,9 @@ def _york_single(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r
         t *= w
         t *= w
         den, num = (uv @ t).tolist()
+        if den == 0:
+            raise UndefinedResultError("the York slope equation is degenerate (Σ W β U = 0): the x values do "
+                                       "not spread enough for a slope")
         g = num / den
         h = g - bw
         iterations += 1
@@ -367,10 +394,11 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
     cxy = r * sx * sy if has_rho else r
     work = _Work(x, vx, y, vy, cxy, has_rho)
     # start from ordinary least squares of y on x (York et al. 2004, step 1)
-    dx = np.subtract(x, add(x, axis=0) / n, out=work.u)
+    xm = add(x, axis=0) / n
+    dx = np.subtract(x, xm, out=work.u)
     sxx = work.wsum(dx, dx)
-    if np.any(sxx <= 0):
-        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    if not np.all(_x_spread(sxx, xm, n)):
+        raise UndefinedResultError(_ALL_EQUAL)
     b = work.wsum(dx, y) / sxx
 
     if not batch:
@@ -580,7 +608,8 @@ def york_fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int
     -------
     IsochronFit
         Slope, intercept, their unscaled 1σ standard errors and covariance, MSWD = S/(n − 2),
-        p = P(χ²_{n−2} > S), the Wendt & Carl (1991) MSWD range, Student-t expanded 95 % errors.
+        p = P(χ²_{n−2} > S), the χ² 5 %–95 % MSWD range (upper end = 95 % rejection limit, cf. Wendt &
+        Carl 1991), Student-t expanded 95 % errors.
 
     Notes
     -----
@@ -620,15 +649,27 @@ def _york_checked(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarr
     if not (isinstance(max_iter, int) and max_iter >= 1):
         raise InputError("max_iter", f"must be a whole number >= 1, got {max_iter!r}")
     if not (rtol > 0):
-        raise InputError("rtol", f"must be > 0, got {rtol!r}")
+        raise InputError("rtol", f"must be > 0, got {float(rtol)!r}")
     n_report = n if n_report is None else n_report
     if n == 2:
-        b, a, sb, sa, cab = _two_point(xa, sxa, ya, sya, ra)
-        w = 1.0 / (sya ** 2 + b * b * sxa ** 2 - 2 * b * ra * sxa * sya)
-        xbar = float(w @ xa / w.sum())
+        try:
+            with _fp_guard():
+                b, a, sb, sa, cab = _two_point(xa, sxa, ya, sya, ra)
+                w = 1.0 / (sya ** 2 + b * b * sxa ** 2 - 2 * b * ra * sxa * sya)
+                xbar = float(w @ xa / w.sum())
+        except (FloatingPointError, ZeroDivisionError, OverflowError):
+            raise UndefinedResultError(f"two-point line: {_FP_PROBLEM}") from None
+        if not (sb > 0 and sa > 0 and math.isfinite(sb) and math.isfinite(sa)):
+            raise UndefinedResultError(f"two-point line: {_FP_PROBLEM}")
         return _make_fit(n_report, 0, b, a, sb, sa, cab, None, treatment, xbar, a + b * xbar, 0, anchor=anchor)
     solve = _york_single if n < _BLAS_MAX else _york_solve
-    b, a, sb, sa, cab, s, it, xbar, ybar = solve(xa, sxa, ya, sya, ra, max_iter, rtol)
+    try:
+        with _fp_guard():
+            b, a, sb, sa, cab, s, it, xbar, ybar = solve(xa, sxa, ya, sya, ra, max_iter, rtol)
+    except (FloatingPointError, ZeroDivisionError, OverflowError):
+        raise UndefinedResultError(f"York fit: {_FP_PROBLEM}") from None
+    if not all(math.isfinite(float(v)) for v in (b, a, sb, sa, cab, s)):
+        raise UndefinedResultError(f"York fit: {_FP_PROBLEM}")
     return _make_fit(n_report, n - 2, float(b), float(a), float(sb), float(sa), float(cab), float(s), treatment,
                      float(xbar), float(ybar), int(it), scale_by_mswd=scale_by_mswd, anchor=anchor)
 
@@ -666,7 +707,14 @@ def york_fit_batch(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_ite
     chunk = max(256, _CHUNK_VALUES // n)
     for i in range(0, m, chunk):
         j = min(m, i + chunk)
-        res = _york_solve(*(np.ascontiguousarray(z[i:j].T) for z in (xa, sxa, ya, sya, ra)), max_iter, rtol)
+        try:
+            with _fp_guard():
+                res = _york_solve(*(np.ascontiguousarray(z[i:j].T) for z in (xa, sxa, ya, sya, ra)),
+                                  max_iter, rtol)
+        except (FloatingPointError, ZeroDivisionError, OverflowError):
+            raise UndefinedResultError(f"York fit of datasets {i + 1}-{j}: {_FP_PROBLEM}") from None
+        if not all(np.all(np.isfinite(res[k])) for k in range(6)):
+            raise UndefinedResultError(f"York fit of datasets {i + 1}-{j}: {_FP_PROBLEM}")
         for k in range(6):
             out[k][i:j] = res[k]
         its[i:j] = res[6]
@@ -680,8 +728,8 @@ def _equal_weights(xa: np.ndarray, ya: np.ndarray) -> Tuple[float, float, float,
     xm = xa.mean()
     dx = xa - xm
     sxx = float(dx @ dx)
-    if sxx <= 0:
-        raise UndefinedResultError("all x values are equal: the slope of a line through them is undefined")
+    if not _x_spread(sxx, float(xm), n):
+        raise UndefinedResultError(_ALL_EQUAL)
     b = float(dx @ (ya - ya.mean())) / sxx
     a = float(ya.mean() - b * xm)
     res = ya - a - b * xa

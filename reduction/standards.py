@@ -101,9 +101,9 @@ def standard_factor(measured: Any, accepted: Optional[float] = None, *, material
         acc_s = 0.0 if accepted_sigma_1s is None else float(accepted_sigma_1s)
         src = "given by the caller"
     if not (np.isfinite(acc) and acc > 0):
-        raise InputError("accepted", f"must be > 0, got {accepted!r}")
+        raise InputError("accepted", f"must be > 0, got {acc!r}")
     if not (np.isfinite(acc_s) and acc_s >= 0):
-        raise InputError("accepted_sigma_1s", f"must be >= 0, got {accepted_sigma_1s!r}")
+        raise InputError("accepted_sigma_1s", f"must be >= 0, got {acc_s!r}")
     n = int(x.size)
     mean = float(x.mean())
     sd = float(x.std(ddof=1)) if n > 1 else 0.0

@@ -136,6 +136,11 @@ def test_comments_and_blank_lines_keep_line_numbers(tmp_path, capsys):
     ("x,sx,y,sy\n1,0.1,1,0.1\n2,0.1,2,0.1\n3,0.1,3,0\n", "line 4, column sy"),
     ("x,sx,y,sy,rho\n1,0.1,1,0.1,0\n2,0.1,2,0.1,1.0\n3,0.1,3,0.1,0\n", "line 3, column rho"),
     ("x,sx,y,sy\n1,0.1,1,0.1\n1,0.1,2,0.1\n1,0.1,3,0.1\n", "all x values are equal"),
+    ("x,sx,y,sy\n0.1,0.01,1,0.1\n0.1,0.01,2,0.1\n0.1,0.01,3,0.1\n", "all x values are equal"),
+    ("x,sx,y,sy\n1,1e-300,1,1e-300\n2,1e-300,2,1e-300\n3.3,1e-300,3.1,1e-300\n", "too large or too small"),
+    ("x,sx,y,sy\n1e200,1e199,1e200,1e199\n2e200,1e199,2e200,1e199\n3.3e200,1e199,3.1e200,1e199\n",
+     "too large or too small"),
+    ("x,sx,y,sy\n1,0.1,1,0.1\n2,0.1,2,0.1\n3,0.1,3,0.0\n", "got 0.0"),
     ("x,sx,y,sy\n1,0.1,1,0.1\n2,0.1,nan,0.1\n3,0.1,3,0.1\n", "line 3, column y: must be a finite number"),
     ("x,sx,y,sy\n1,0.1,1,0.1\n2,inf,2,0.1\n3,0.1,3,0.1\n", "line 3, column sx: must be a finite number"),
     ("x,sx,y,sy\n1,0.1,1,0.1\n2,0.1,,0.1\n3,0.1,3,0.1\n", "line 3, column y: empty cell"),
@@ -147,6 +152,28 @@ def test_isochron_bad_input(tmp_path, capsys, text, expected):
     assert rc == 1 and out == ""
     assert expected in err
     assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_isochron_messages_have_no_numpy_reprs(tmp_path, capsys):
+    rc, _, err = run(capsys, "isochron", write(tmp_path, "x,sx,y,sy,rho\n1,0.1,1,0.1,0\n2,0.1,2,0.1,1.5\n"))
+    assert rc == 1 and "got 1.5" in err and "np." not in err
+
+
+def test_non_utf8_and_binary_files(tmp_path, capsys):
+    p = tmp_path / "latin1.csv"
+    p.write_bytes("x,sx,y,sy\n1,0.1,1,0.1 \xb5\n".encode("latin-1") + b"\xff\xfe\n")
+    rc, out, err = run(capsys, "isochron", str(p))
+    assert rc == 1 and out == "" and "is not a UTF-8 text CSV" in err and str(p) in err
+    assert err.count("\n") == 1
+    q = tmp_path / "nul.csv"
+    q.write_bytes(b"x,sx,y,sy\n1,0.1,1\x00,0.1\n")
+    rc, out, err = run(capsys, "isochron", str(q))
+    assert rc == 1 and out == "" and "Traceback" not in err
+    # a field beyond the csv module's field size limit (csv.Error) names the file
+    big = tmp_path / "big.csv"
+    big.write_text('x,sx,y,sy\n"' + "1" * 200000 + '",0.1,1,0.1\n', encoding="utf-8")
+    rc, out, err = run(capsys, "isochron", str(big))
+    assert rc == 1 and out == "" and "is not a readable CSV" in err and str(big) in err
 
 
 def test_missing_file(capsys):
@@ -176,7 +203,7 @@ def test_wmean_outliers_reported_by_file_line(tmp_path, capsys):
     rc, out, _ = run(capsys, "wmean", write(tmp_path, text), "--json", "--external")
     assert json.loads(out)["external_sigma"] > 0.1
     rc, out, _ = run(capsys, "wmean", write(tmp_path, text), "--outlier-k", "3")
-    assert "1 sigma" in out and "6" in out
+    assert "1 sigma" in out and "outliers flagged (file lines): 6" in out
 
 
 def test_wmean_bad_sigma(tmp_path, capsys):

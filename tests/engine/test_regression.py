@@ -1,8 +1,10 @@
 """York regression, scatter treatments, weighted mean: checks against the outside world.
 
 Sources named beside each check:
-* Pearson (1901) data with York (1966) weights: REFERENCE.md §6a (values [C], agreeing with the
-  published York et al. 2004, Am. J. Phys. 72, 367, Table II to 4 digits).
+* Pearson (1901) data with York (1966) weights: REFERENCE.md §6a (values [C], computed there and
+  agreeing with an independent general-purpose implementation to 12 digits). The published York et
+  al. 2004 (Am. J. Phys. 72, 367) Table II figures (b = −0.4805, σb = 0.0580, σa = 0.2950) are
+  recalled from memory (REFERENCE.md marks them [M]); they agree to 4 digits.
 * Wendt & Carl 1991 (Chem. Geol. 86, 275): MSWD limits, REFERENCE.md §6c.
 * odrpack 0.7 (general-purpose ODRPACK95 wrapper) for ρ = 0.
 * An independent maximum-likelihood fit (scipy.optimize.least_squares on the whitened bivariate
@@ -52,7 +54,8 @@ def synthetic(rng, n=12, slope=0.8, intercept=0.2, corr=True):
 # --- Pearson / York -------------------------------------------------------------------------
 
 def test_pearson_york_reference_values():
-    # REFERENCE.md §6a (Pearson 1901 data, York 1966 weights; York et al. 2004 Table II)
+    # REFERENCE.md §6a (Pearson 1901 data, York 1966 weights): the [C] values computed there; York et al.
+    # 2004 Table II (recalled from memory, [M]) agrees to its 4 printed digits
     fit = york_fit(*pearson())
     assert fit.slope == pytest.approx(-0.480533407446, rel=1e-10)
     assert fit.intercept == pytest.approx(5.479910224033, rel=1e-10)
@@ -361,6 +364,50 @@ def test_bad_input_named():
         york_fit(x, sx, y[:9], sy)
     with pytest.raises(InputError, match="not a number"):
         york_fit(list(x[:-1]) + ["abc"], sx, y, sy)
+
+
+@pytest.mark.parametrize("xv", [0.1, 1 / 3, 2.7e-3, 1234.5678])
+def test_equal_x_not_exactly_representable(xv):
+    # x = 0.1, 0.1, 0.1: the deviations from the computed mean are ~1e-17, not 0; the slope is still
+    # undefined and must be reported as such (not as a ZeroDivisionError), for every treatment
+    x, sx, y, sy = [xv] * 4, [0.01 * xv] * 4, [1.0, 2.0, 3.0, 4.5], [0.1] * 4
+    with pytest.raises(UndefinedResultError, match="all x values are equal"):
+        york_fit(x, sx, y, sy)
+    for t in ("expanded", "equal-weights", "excess-variance"):
+        with pytest.raises(UndefinedResultError, match="all x values are equal"):
+            fit_isochron(x, sx, y, sy, treatment=t)
+    with pytest.raises(UndefinedResultError, match="all x values are equal"):
+        york_fit_batch([x, [1.0, 2.0, 3.0, 4.0]], [sx, sx], [y, y], [sy, sy])
+    # a real spread of one part in 1e9 is still fitted
+    fit = york_fit([xv, xv * (1 + 1e-9), xv * (1 + 2e-9)], [1e-12 * xv] * 3, [1.0, 2.0, 3.0], [0.1] * 3)
+    assert np.isfinite(fit.slope)
+
+
+@pytest.mark.parametrize("sx, x", [(1e-300, 1.0), (1e-200, 1.0), (1e199, 1e200)])
+def test_extreme_magnitudes_reported(sx, x):
+    # σ² underflowing to 0 or values whose squares overflow: an UndefinedResultError naming the problem,
+    # no RuntimeWarning (pytest turns warnings into errors) and no misleading "did not converge"
+    xs = [x, 2 * x, 3.3 * x]
+    ys = [x, 2 * x, 3.1 * x]
+    with pytest.raises(UndefinedResultError, match="too large or too small for double precision"):
+        york_fit(xs, [sx] * 3, ys, [sx] * 3)
+    with pytest.raises(UndefinedResultError, match="too large or too small for double precision"):
+        york_fit(xs[:2], [sx] * 2, ys[:2], [sx] * 2)
+    with pytest.raises(UndefinedResultError, match="too large or too small for double precision"):
+        york_fit_batch([xs, xs], [[sx] * 3] * 2, [ys, ys], [[sx] * 3] * 2)
+
+
+def test_messages_show_plain_numbers():
+    # numpy 2 prints np.float64(0.0) for repr of its scalars; messages must read the same under numpy 1.24
+    with pytest.raises(InputError) as e:
+        york_fit([1.0, 2.0, 3.0], np.array([0.1, 0.0, 0.1]), [1.0, 2.0, 3.0], [0.1] * 3)
+    assert "got 0.0" in str(e.value) and "np." not in str(e.value)
+    with pytest.raises(InputError) as e:
+        york_fit([1.0, 2.0, 3.0], [0.1] * 3, [1.0, 2.0, 3.0], [0.1] * 3, rho=np.array([0.0, 1.0, 0.0]))
+    assert "got 1.0" in str(e.value) and "np." not in str(e.value)
+    with pytest.raises(InputError) as e:
+        york_fit([1.0, np.inf, 3.0], [0.1] * 3, [1.0, 2.0, 3.0], [0.1] * 3)
+    assert "got inf" in str(e.value) and "np." not in str(e.value)
 
 
 def test_caller_arrays_untouched():
