@@ -55,7 +55,10 @@ class IsochronAge:
     ``"analytical"`` treatment, √MSWD-scaled for ``"expanded"``). The ``*_95_expanded`` values
     are 95 % limits from the fit's Student-t × √MSWD expanded slope error (None for two points).
     ``decay_constant``, ``decay_constant_sigma_1s`` and ``decay_constant_source`` record the
-    constant used.
+    constant used. ``age_sigma_1s_ma_total`` combines in quadrature the slope error, the decay
+    constant's and the systematic x-scale (spike calibration) error ``x_scale_sigma_rel`` (1σ
+    relative, recorded here); with ``x_scale_sigma_rel = 0`` it equals
+    ``age_sigma_1s_ma_with_lambda``.
     """
 
     age_ma: float
@@ -75,6 +78,8 @@ class IsochronAge:
     treatment: str
     age_sigma_95_expanded_ma: Optional[float] = None
     initial_sigma_95_expanded: Optional[float] = None
+    age_sigma_1s_ma_total: Optional[float] = None
+    x_scale_sigma_rel: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -150,11 +155,22 @@ def _setup(system: SystemLike, ref: Optional[ReferenceSet]) -> Tuple[IsotopeSyst
     return sysobj, ref
 
 
-def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSet] = None) -> IsochronAge:
+def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSet] = None, *,
+                 x_scale_sigma_rel: float = 0.0) -> IsochronAge:
     """Age and initial ratio of an isochron fit.
 
     ``σ_t = σ_b / ((1 + b) λ)`` from the slope alone; with the decay constant,
     ``σ_t² = (σ_b/((1 + b)λ))² + (t σ_λ/λ)²`` (first-order propagation of ``t = ln(1 + b)/λ``).
+
+    **Systematic x-scale error.** The parent/daughter ratio x of every point of an isotope-dilution
+    isochron is proportional to the spike's parent/daughter concentration ratio, so an error k of
+    that calibration scales all x at once (x → k·x), which turns the line's slope into b/k and
+    leaves the intercept unchanged. With ``k = 1 ± s`` (``s = x_scale_sigma_rel``) the age
+    error from it is ``|∂t/∂k| s = b s / ((1 + b) λ)`` (first order), and
+    ``age_sigma_1s_ma_total² = σ_t,slope² + σ_t,λ² + (b s/((1 + b) λ))²``. This assumes the fit's
+    slope error is the random part only (points reduced with the spike-calibration error left
+    out, e.g. ``AnalysisResult.sigma_1s_random`` of :mod:`reduction.chain`); otherwise that error
+    is counted twice.
 
     Parameters
     ----------
@@ -165,9 +181,16 @@ def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSe
         ``"sm-nd"``, ``"lu-hf"`` or ``"rb-sr"``.
     ref : ReferenceSet, optional
         Source of the decay constant; the default set when None.
+    x_scale_sigma_rel : float, default 0
+        1σ relative systematic uncertainty common to all x (a fraction, e.g. 0.001 for 0.1 %): the
+        calibration of the (mixed) spike's parent/daughter concentration ratio (e.g. Sm/Nd). Enters
+        ``age_sigma_1s_ma_total`` only.
     """
     if not isinstance(fit, IsochronFit):
         raise InputError("fit", f"must be an IsochronFit, got {type(fit).__name__}")
+    ks = as_scalar("x_scale_sigma_rel", x_scale_sigma_rel)
+    if ks < 0:
+        raise InputError("x_scale_sigma_rel", f"must be >= 0 (a 1σ relative uncertainty), got {ks!r}")
     sysobj, ref = _setup(system, ref)
     lam_ref = ref.decay_constant(sysobj.decay_key)
     lam, slam = lam_ref.value, lam_ref.sigma_1s
@@ -175,6 +198,7 @@ def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSe
     dt_db = 1.0 / ((1.0 + fit.slope) * lam)
     s_b = abs(dt_db) * fit.slope_sigma_1s
     s_all = math.hypot(s_b, t * slam / lam)
+    s_total = math.hypot(s_all, abs(dt_db * fit.slope) * ks)   # x -> k x: b -> b/k, ∂b/∂k = −b at k = 1
     s95 = abs(dt_db) * fit.slope_sigma_95_expanded / _MA if fit.slope_sigma_95_expanded is not None else None
     return IsochronAge(
         age_ma=t / _MA, age_sigma_1s_ma=s_b / _MA, age_sigma_1s_ma_with_lambda=s_all / _MA,
@@ -182,7 +206,8 @@ def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSe
         decay_constant_sigma_1s=slam, decay_constant_source=lam_ref.source, system=sysobj.key,
         reference_set=ref.name, n=fit.n, dof=fit.dof, mswd=fit.mswd, p_value=fit.p_value,
         treatment=fit.treatment, age_sigma_95_expanded_ma=s95,
-        initial_sigma_95_expanded=fit.intercept_sigma_95_expanded)
+        initial_sigma_95_expanded=fit.intercept_sigma_95_expanded, age_sigma_1s_ma_total=s_total / _MA,
+        x_scale_sigma_rel=ks)
 
 
 def two_point_age(x1: float, sx1: float, y1: float, sy1: float, x2: float, sx2: float, y2: float, sy2: float,
@@ -246,7 +271,9 @@ def epsilon(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: float
     ``ε(t) = [R_s(t)/R_CHUR(t) − 1]·10⁴`` with ``R(t) = R_0 − P_0 (e^{λt} − 1)``
     (DePaolo & Wasserburg 1976). The 1σ propagates the sample's daughter and parent ratio
     errors (correlation ``rho``); with ``include_reference`` it also adds the reservoir's
-    present-day ratios and the decay constant (treated as independent).
+    present-day ratios and the decay constant (treated as independent). A sample ratio at t that
+    is not positive (t beyond the sample's own ingrowth) raises
+    :class:`~reduction.errors.UndefinedResultError`.
 
     Parameters
     ----------
@@ -277,6 +304,10 @@ def epsilon(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: float
     rc_t = rc.value - pc.value * g
     if rc_t <= 0:
         raise UndefinedResultError(f"reservoir ratio at {t:g} Ma is not positive")
+    if rs_t <= 0:
+        raise UndefinedResultError(f"the sample's {sysobj.daughter_ratio} at {t:g} Ma, {r:g} − {p:g}·(e^(λt) − 1) "
+                                   f"= {rs_t:.6g}, is not positive: t is older than the sample's own "
+                                   "ingrowth allows (check t and the parent ratio)")
     eps = (rs_t / rc_t - 1.0) * 1e4
     # partial derivatives of ε
     d_r = 1e4 / rc_t
@@ -303,6 +334,10 @@ def model_age(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: flo
     the depleted mantle). The 1σ propagates the sample's R and P errors with correlation
     ``rho``; the reservoir is taken as exact.
 
+    Raises :class:`~reduction.errors.UndefinedResultError` when ``P = P_res``, when the sample's
+    line never meets the reservoir's (``1 + ΔR/ΔP ≤ 0``), and when it meets it only in the future
+    (``ΔR/ΔP < 0``: R and P on opposite sides of the reservoir, a negative age).
+
     Examples
     --------
     >>> round(model_age(0.511500, 0.0, 0.1100, 0.0, "sm-nd").age_ma, 2)   # REFERENCE.md §2 [C]
@@ -321,6 +356,13 @@ def model_age(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: flo
     if q <= -1:
         raise UndefinedResultError(f"the sample never had the {kind} composition (1 + ΔR/ΔP = {1 + q:.4g} <= 0): "
                                    "no model age")
+    if q < 0:
+        side = "above" if r > rr.value else "below"
+        pside = "below" if dp < 0 else "above"
+        raise UndefinedResultError(
+            f"negative ('future') {kind} model age: the sample's {sysobj.daughter_ratio} {r:g} is {side} the "
+            f"{kind} value {rr.value:g} while its {sysobj.parent_ratio} {p:g} is {pside} the {kind} value "
+            f"{pr.value:g}, so its evolution line meets the {kind} line only in the future: no model age")
     t = math.log1p(q) / lam
     d_r = 1.0 / (lam * (1.0 + q) * dp)
     d_p = -q / (lam * (1.0 + q) * dp)

@@ -136,6 +136,10 @@ def add_arguments_isochron(parser: argparse.ArgumentParser) -> None:
                              "excess-variance (maximum-likelihood added scatter on y)")
     parser.add_argument("--anchor", nargs=2, type=float, metavar=("VALUE", "SIGMA"),
                         help="force the line through the intercept VALUE +/- SIGMA (absolute, at the --sigma level)")
+    parser.add_argument("--x-scale-sigma-rel", type=float, default=0.0, metavar="PERCENT",
+                        help="systematic uncertainty common to all x, in PERCENT of x at the --sigma level (e.g. "
+                             "0.2 means 0.2 %%), such as the mixed spike's parent/daughter (Sm/Nd) calibration; "
+                             "with --system it is added to the age error as age_se_ma_total (default 0)")
     parser.add_argument("--reference-set", choices=list_reference_sets(), default=None,
                         help="decay constants and reservoirs to use (default: " + list_reference_sets()[0] + ")")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
@@ -185,7 +189,10 @@ def isochron_result(args: argparse.Namespace) -> Dict[str, Any]:
         out["anchor"] = list(fit.anchor)
     if args.system:
         ref = reference_set(args.reference_set)
-        age = isochron_age(base, args.system, ref)
+        xs = getattr(args, "x_scale_sigma_rel", 0.0) or 0.0
+        if not (math.isfinite(xs) and xs >= 0):
+            raise InputError("--x-scale-sigma-rel", f"must be a finite percentage >= 0, got {xs!r}")
+        age = isochron_age(base, args.system, ref, x_scale_sigma_rel=xs / 100.0 / args.sigma)
         sysobj = get_system(args.system)
         out.update(
             system=sysobj.key, x_ratio=sysobj.parent_ratio, y_ratio=sysobj.daughter_ratio,
@@ -194,7 +201,8 @@ def isochron_result(args: argparse.Namespace) -> Dict[str, Any]:
             initial=age.initial, initial_se=age.initial_sigma_1s,
             initial_se_95_expanded=age.initial_sigma_95_expanded,
             decay_constant=age.decay_constant, decay_constant_se=age.decay_constant_sigma_1s,
-            decay_constant_source=age.decay_constant_source, reference_set=age.reference_set)
+            decay_constant_source=age.decay_constant_source, reference_set=age.reference_set,
+            x_scale_sigma_rel=age.x_scale_sigma_rel, age_se_ma_total=age.age_sigma_1s_ma_total)
         if fit.treatment == "expanded":
             out["age_se_ma_scaled"] = isochron_age(fit, args.system, ref).age_sigma_1s_ma
     return out
@@ -233,6 +241,8 @@ def _isochron_table(r: Dict[str, Any]) -> str:
                      f"(1 sigma; {r['decay_constant_source']})")
         row("age (Ma), slope error only", r["age_ma"], r["age_se_ma"], r["age_se_95_expanded_ma"], 6)
         row("age (Ma), with lambda error", r["age_ma"], r["age_se_ma_with_lambda"], None, 6)
+        if r.get("x_scale_sigma_rel"):
+            row(f"age (Ma), + x-scale {100 * r['x_scale_sigma_rel']:.3g} %", r["age_ma"], r["age_se_ma_total"], None, 6)
         row("initial " + r["y_ratio"], r["initial"], r["initial_se"], r["initial_se_95_expanded"], 8)
     lines.append("  1 sigma figures are analytical, not multiplied by sqrt(MSWD), unless the row says so.")
     return "\n".join(lines)

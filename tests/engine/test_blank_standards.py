@@ -4,7 +4,7 @@ Checks: forward-modelled sample + blank mixtures; σ against a central-differenc
 numpy Monte Carlo; accepted values from REFERENCE.md section 5 (JNdi-1 0.512115, Tanaka et al. 2000,
 Chem. Geol. 168, 279-281; BCR-2 0.512637, Jweda et al. 2016, GGR 40, 101-115; BHVO-2 0.512984, Weis et
 al. 2006, G3 7, Q08006, recalled from memory per REFERENCE.md) and εNd(0) against the Bouvier et al.
-2008 CHUR (check values [C] in REFERENCE.md section 2).
+2008 CHUR (0.512630, recalled from memory [M]; check values [C] in REFERENCE.md section 2).
 """
 import numpy as np
 import pytest
@@ -103,8 +103,9 @@ def test_standard_bad_input():
 
 def test_reference_material_plausibility_epsilon_nd():
     # A session whose JNdi-1 reads 15 ppm low; BCR-2 and BHVO-2 read equally low. After the ratio factor
-    # they must return their published values, and εNd(0) against Bouvier et al. 2008 CHUR must be
-    # +0.137 (BCR-2) and +6.906 (BHVO-2) (REFERENCE.md section 2, [C]).
+    # they must return their published values, and εNd(0) against Bouvier et al. 2008 CHUR (0.512630,
+    # recalled from memory, REFERENCE.md [M]) must be +0.137 (BCR-2) and +6.906 (BHVO-2) (REFERENCE.md
+    # section 2, [C] from that CHUR). BHVO-2 0.512984 of Weis et al. 2006 is also recalled from memory.
     ages = pytest.importorskip("reduction.ages")
     bias = 1 - 15e-6
     f = standard_factor([0.512115 * bias] * 3, material="JNdi-1", ratio="143Nd/144Nd")

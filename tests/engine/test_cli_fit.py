@@ -76,6 +76,22 @@ def test_isochron_iupac_set_adds_lambda_error(capsys):
     assert r["age_se_ma_with_lambda"] > r["age_se_ma"]
 
 
+def test_isochron_x_scale_option(capsys):
+    # --x-scale-sigma-rel 0.4 --sigma 2 = 0.2 % at 1σ; the total adds b·s/((1 + b)λ) in quadrature (first
+    # order of t = ln(1 + b/k)/λ at k = 1; the engine's finite-difference test checks the derivative)
+    demo = ROOT / "reduction" / "data" / "demo_isochron.csv"
+    rc, out, _ = run(capsys, "isochron", str(demo), "--system", "sm-nd", "--json", "--sigma", "2",
+                     "--x-scale-sigma-rel", "0.4")
+    r = json.loads(out)
+    assert rc == 0 and r["x_scale_sigma_rel"] == pytest.approx(0.002, rel=1e-15)
+    term = r["slope"] * 0.002 / (1 + r["slope"]) / r["decay_constant"] / 1e6
+    assert r["age_se_ma_total"] == pytest.approx(math.hypot(r["age_se_ma_with_lambda"], term), rel=1e-12)
+    rc, out, _ = run(capsys, "isochron", str(demo), "--system", "sm-nd", "--x-scale-sigma-rel", "0.2")
+    assert rc == 0 and "x-scale 0.2 %" in out
+    rc, _, err = run(capsys, "isochron", str(demo), "--system", "sm-nd", "--x-scale-sigma-rel", "-1")
+    assert rc == 1 and "--x-scale-sigma-rel" in err
+
+
 def test_isochron_table_states_levels(capsys):
     rc, out, _ = run(capsys, "isochron", str(PEARSON))
     assert rc == 0

@@ -21,11 +21,13 @@ def test_every_value_has_provenance():
 def test_default_set_is_documented_choice():
     rs = rd.reference_set()
     assert rs.name == "conventional"
-    # Lugmair & Marti 1978: 6.54e-12 /a; Soderlund et al. 2004: 1.867e-11 /a; Steiger & Jager 1977: 1.42e-11 /a
+    # Lugmair & Marti 1978: 6.54e-12 /a; Soderlund et al. 2004: 1.867e-11 /a (value confirmed by search,
+    # REFERENCE.md section 1); Steiger & Jager 1977: 1.42e-11 /a (recalled from memory, REFERENCE.md [M])
     assert rs.decay_constant("Sm147").value == 6.54e-12
     assert rs.decay_constant("Lu176").value == 1.867e-11
     assert rs.decay_constant("Rb87").value == 1.42e-11
-    # Bouvier, Vervoort & Patchett 2008 CHUR
+    # Bouvier, Vervoort & Patchett 2008 CHUR: 143Nd/144Nd 0.512630 recalled from memory (REFERENCE.md [M]);
+    # 176Hf/177Hf 0.282785 confirmed by search
     assert rs.reservoir("CHUR", "143Nd/144Nd").value == 0.512630
     assert rs.reservoir("CHUR", "176Hf/177Hf").value == 0.282785
 
@@ -60,7 +62,7 @@ def test_bad_override_named():
     ("147Sm/144Sm", 4.870, 1e-3),   # REFERENCE.md section 3, derived from CIAAW [C]
     ("85Rb/87Rb", 2.5932, 1e-4),    # CIAAW; Catanzaro et al. 1969 give 2.593
     ("176Yb/173Yb", 0.8005, 1e-3),  # CIAAW-derived [C]
-    ("86Sr/88Sr", 0.11940, 1e-3),   # CIAAW-derived [C]; convention 0.1194 (Steiger & Jager 1977)
+    ("86Sr/88Sr", 0.11940, 1e-3),   # CIAAW-derived [C]; convention 0.1194 (Steiger & Jager 1977, recalled from memory)
 ])
 def test_natural_ratios_from_ciaaw(ratio, expected, rel):
     assert rd.natural_ratio(ratio).value == pytest.approx(expected, rel=rel)
