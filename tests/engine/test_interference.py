@@ -52,6 +52,8 @@ def test_lu_hf_two_isobars_and_sizes_reported():
     hf176 = hf177 * 0.2828 * (isotope_mass("176Hf").value / isotope_mass("177Hf").value) ** (-beta["Hf"])
     yb173 = np.full((2, n), 0.01)
     lu175 = np.full((2, n), 0.02)
+    # 176Yb/173Yb = 0.79381 (Chu et al. 2002, recalled from memory); 176Lu/175Lu = 0.02651 (Goolaerts et al.
+    # 2004, Chem. Geol. 206, 1-9: 175Lu/176Lu = 37.72, inverted)
     yb176 = yb173 * bias_apply(0.79381, isotope_mass("176Yb").value, isotope_mass("173Yb").value, beta["Yb"])
     lu176 = lu175 * bias_apply(0.02651, isotope_mass("176Lu").value, isotope_mass("175Lu").value, beta["Lu"])
     beams = {"176Hf": hf176 + yb176 + lu176, "177Hf": hf177, "173Yb": yb173, "175Lu": lu175}
