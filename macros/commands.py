@@ -163,12 +163,13 @@ def provenance_rows(constants: Sequence[Sequence[Any]], spikes: Sequence[Sequenc
         ("Date (UTC)", now, "", "", "", ""),
         ("", "", "", "", "", ""),
         ("Reference values", "", "", "", "", ""),
-        ("Key", "Quantity", "Value", "1σ (abs)", "Unit", "Source")]
+        ("Key", "Quantity", "Value", "1σ (abs)", "How the 1σ (abs) was set / status", "Unit", "Source")]
     keys = [str(k) for k in (constants[0] if constants else ())]
     for r in constants[1:]:
         d = dict(zip(keys, r))
         if d.get("key", "") != "":
-            rows.append(tuple(d.get(k, "") for k in ("key", "quantity", "value", "sigma_1s", "unit", "source")))
+            rows.append(tuple(d.get(k, "") for k in ("key", "quantity", "value", "sigma_1s", "note", "unit",
+                                                      "source")))
     rows += [("", "", "", "", "", ""), ("Spike calibrations", "", "", "", "", ""),
              ("Spike", "Element", "Calibrated on", "Spike isotope", "µmol/g", "1σ (abs, µmol/g)")]
     keys = [str(k) for k in (spikes[0] if spikes else ())]

@@ -34,6 +34,7 @@ from .workbook import (
     ISOCHRON_SYSTEMS,
     ISOCHRON_TREATMENT_ROW,
     KEY_ROW,
+    PROVENANCE_HEADER,
     RESULTS,
     SHEET_BY_NAME,
     SPIKES,
@@ -44,6 +45,7 @@ from .workbook import (
     evaluate,
     fill_values,
     formula_drift,
+    provenance_constant_rows,
     read_workbook,
     sheet_block,
     write_xlsx,
@@ -116,10 +118,9 @@ def _provenance(data: WorkbookData, constants: Sequence[Mapping[str, Any]], spik
         ("Formulas edited by hand", f"{len(drift)} cell(s)" if drift else "none", "", "", "", ""),
         ("", "", "", "", "", ""),
         ("Reference values (Constants sheet)", "", "", "", "", ""),
-        ("Key", "Quantity", "Value", "1σ (abs)", "Unit", "Source"),
+        PROVENANCE_HEADER,
     ]
-    for r in constants:
-        rows.append(tuple(r.get(k, "") for k in ("key", "quantity", "value", "sigma_1s", "unit", "source")))
+    rows += provenance_constant_rows(constants)
     rows += [("", "", "", "", "", ""), ("Spike calibrations (Spikes sheet)", "", "", "", "", ""),
              ("Spike", "Element", "Calibrated on", "Spike isotope", "µmol/g", "1σ (abs, µmol/g)")]
     for s in spikes:
@@ -164,8 +165,7 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
             continue
         xl, yl = _axis_labels(system)
         panels.append(IsochronPanel(system, xl, yl, tuple(pts), summary, str(treatments.get(system, ""))))
-    const_rows = tuple(tuple(r.get(k, "") for k in ("key", "quantity", "value", "sigma_1s", "unit", "source"))
-                       for r in constants)
+    const_rows = tuple(provenance_constant_rows(constants))
     spike_rows = tuple(tuple(s.get(k, "") for k in ("spike", "element", "calibrated", "spike_isotope", "conc_umol_g",
                                                      "conc_sigma_1s")) for s in tables.get("Spikes", ()))
     name = os.path.basename(data.path)

@@ -38,7 +38,7 @@ class ReportData:
     date: str
     results: Tuple[Mapping[str, Any], ...]     # one dict per analysis, keyed by the Results column keys
     isochrons: Tuple[IsochronPanel, ...]
-    constants: Tuple[Tuple[str, str, Any, Any, str, str], ...]
+    constants: Tuple[Tuple[Any, ...], ...]     # PROVENANCE_KEYS order: key, quantity, value, 1σ, note, unit, source
     spikes: Tuple[Tuple[Any, ...], ...]
     notes: Tuple[str, ...] = field(default=())
 
@@ -171,7 +171,10 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
 
 def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Sequence[Any]], data: ReportData,
                  notes: Sequence[str] = (), rows_per_page: int = 26, col_widths: Optional[Sequence[float]] = None,
-                 fontsize: float = 6.5, landscape: bool = True) -> None:
+                 fontsize: float = 6.5, landscape: bool = True, wrap: Optional[Sequence[int]] = None) -> None:
+    """Table pages; ``wrap`` gives per column the characters per line (0 = no wrapping)."""
+    import textwrap
+
     import matplotlib.pyplot as plt
 
     size = (11.69, 8.27) if landscape else (8.27, 11.69)
@@ -182,6 +185,8 @@ def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Seq
         ax = fig.add_axes((0.03, 0.12, 0.94, 0.80))
         ax.axis("off")
         cells = [[v if isinstance(v, str) else _fmt(v) for v in r] for r in chunk] or [["" for _ in header]]
+        if wrap:
+            cells = [["\n".join(textwrap.wrap(t, w)) if w and t else t for t, w in zip(r, wrap)] for r in cells]
         tab = ax.table(cellText=cells, colLabels=list(header), loc="upper center", cellLoc="right",
                        colWidths=list(col_widths) if col_widths else None)
         tab.auto_set_font_size(False)
@@ -193,7 +198,13 @@ def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Seq
                 cell.set_facecolor("#e8e8e8")
                 cell.set_text_props(weight="bold", wrap=True)
                 cell.set_height(cell.get_height() * 2.2)
-        import textwrap
+            elif wrap:
+                lines = max(t.count("\n") + 1 for t in cells[r - 1])
+                cell.set_height(cell.get_height() * lines)
+            if wrap and r > 0:
+                cell.get_text().set_va("center")
+                cell.set_text_props(ha="left" if wrap[_c] else "right")
+                cell._loc = "left" if wrap[_c] else "right"
 
         y = 0.095
         for n in notes:
@@ -236,9 +247,14 @@ def write_report(data: ReportData, path: Any) -> None:
                      iso_rows, data, fontsize=8, landscape=False,
                      notes=("Fit: York et al. 2004 (Am. J. Phys. 72, 367). Scatter treatment as stated on each "
                             "isochron page. Ages use the decay constants listed under reference values.", CAUTION))
-        _table_pages(pdf, "Reference values used (Constants sheet)", ("Key", "Quantity", "Value", "1σ (abs)", "Unit",
-                                                                      "Source"), data.constants, data,
-                     col_widths=(0.14, 0.18, 0.1, 0.08, 0.06, 0.44), fontsize=6, notes=(CAUTION,))
+        from .workbook import PROVENANCE_HEADER
+
+        _table_pages(pdf, "Reference values used (Constants sheet)", PROVENANCE_HEADER, data.constants, data,
+                     col_widths=(0.11, 0.13, 0.08, 0.07, 0.27, 0.04, 0.30), fontsize=6, rows_per_page=12,
+                     wrap=(22, 22, 0, 0, 60, 0, 62),
+                     notes=("How the 1σ was set: the published uncertainty and its confidence level, converted to 1σ. "
+                            "Status 'recalled from memory' marks a value, level or citation that was not checked "
+                            "against the original publication: check it before reporting.", CAUTION))
         _table_pages(pdf, "Spike calibrations used (Spikes sheet)", ("Spike", "Element", "Calibrated on",
                                                                      "Spike isotope", "µmol/g", "1σ (abs, µmol/g)"),
                      data.spikes, data, fontsize=8, notes=(CAUTION,))

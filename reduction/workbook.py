@@ -40,6 +40,9 @@ __all__ = [
     "analysis_value",
     "constants_rows",
     "isochron_value",
+    "provenance_constant_rows",
+    "provenance_note",
+    "status_text",
 ]
 
 TITLE_ROW, NOTE_ROW, HEADER_ROW, KEY_ROW, FIRST_ROW = 1, 2, 3, 4, 5
@@ -151,6 +154,7 @@ CONSTANTS = Sheet(
     (_c("key", "Key", "text", width=30), _c("quantity", "Quantity", "text", width=44),
      _c("value", "Value", width=16, number_format="0.000000E+00"),
      _c("sigma_1s", "1σ (abs)", width=14, number_format="0.000E+00"),
+     _c("note", "How the 1σ (abs) was set / status", "text", required=False, width=60),
      _c("unit", "Unit", "text", required=False, width=10),
      _c("source", "Source", "text", required=False, width=80)),
     capacity=30)
@@ -290,27 +294,106 @@ ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10,
 # --------------------------------------------------------------------------------------------
 # Constants sheet contents
 # --------------------------------------------------------------------------------------------
+_STATUS_WORDS = {"M": "recalled from memory, not checked against the original",
+                 "S": "checked against the source", "C": "computed from published data"}
+
+
+def status_text(status: str) -> str:
+    """A reference value's status code spelt out (``"M"`` → recalled from memory, ...).
+
+    Codes are those of ``reduction/data/*.json`` (see :class:`reduction.constants.RefValue`):
+    ``M`` recalled from memory, ``S`` checked against the source, ``C`` computed from published
+    data; a compound status such as ``"value S, uncertainty M"`` is spelt out word by word.
+    """
+    st = status.strip()
+    if not st:
+        return ""
+    if st == "override":
+        return "lab override"
+    if st in _STATUS_WORDS:
+        return _STATUS_WORDS[st]
+    return re.sub(r"\b([MSC])\b", lambda m: _STATUS_WORDS[m.group(1)].split(",")[0], st)
+
+
+def provenance_note(v: Any) -> str:
+    """'How the 1σ (abs) was set / status' of a :class:`reduction.constants.RefValue`: its level note and its status."""
+    note = re.sub(r"\blevel M\b", "level recalled from memory", v.note.strip())
+    st = status_text(v.status)
+    if note and st:
+        return f"{note}; status: {st}"
+    return note or (f"status: {st}" if st else "")
+
+
 def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
-    """Rows of the Constants sheet from a reference set (default: the engine's default set)."""
+    """Rows of the Constants sheet from a reference set (default: the engine's default set).
+
+    Each row carries ``note``: how the published uncertainty was converted to 1σ and whether the
+    value was checked against the original or recalled from memory (:func:`provenance_note`).
+    """
     from .constants import reference_material, reference_set
 
     rs = reference_set(refset)
     rows: List[Dict[str, Any]] = [
         {"key": "set", "quantity": "Reference set these values started from", "value": rs.name, "sigma_1s": "",
-         "unit": "", "source": rs.description}]
+         "note": "", "unit": "", "source": rs.description}]
     for key, label in (("Sm147", "λ 147Sm"), ("Lu176", "λ 176Lu")):
         v = rs.decay_constant(key)
         rows.append({"key": f"decay.{key}", "quantity": f"Decay constant {label}", "value": v.value,
-                     "sigma_1s": v.sigma_1s, "unit": v.unit, "source": v.source})
+                     "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit, "source": v.source})
     for ratio in ("143Nd/144Nd", "147Sm/144Nd", "176Hf/177Hf", "176Lu/177Hf"):
         v = rs.reservoir("CHUR", ratio)
         rows.append({"key": f"CHUR.{ratio}", "quantity": f"CHUR present-day {ratio}", "value": v.value,
-                     "sigma_1s": v.sigma_1s, "unit": v.unit, "source": v.source})
+                     "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit, "source": v.source})
     for material, ratio in (("JNdi-1", "143Nd/144Nd"), ("JMC-475", "176Hf/177Hf")):
         v = reference_material(material, ratio)
         rows.append({"key": f"rm.{material}.{ratio}", "quantity": f"{material} accepted {ratio}",
-                     "value": v.value, "sigma_1s": v.sigma_1s, "unit": v.unit, "source": v.source})
+                     "value": v.value, "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit,
+                     "source": v.source})
     return rows
+
+
+#: Columns of the reference-value tables of the Provenance sheets and the report.
+PROVENANCE_KEYS = ("key", "quantity", "value", "sigma_1s", "note", "unit", "source")
+PROVENANCE_HEADER = ("Key", "Quantity", "Value", "1σ (abs)", "How the 1σ (abs) was set / status", "Unit", "Source")
+
+
+def _same_number(a: Any, b: Any) -> bool:
+    if isinstance(a, (int, float)) and isinstance(b, (int, float)):
+        return math.isclose(float(a), float(b), rel_tol=1e-12, abs_tol=0.0)
+    return a == b
+
+
+def provenance_constant_rows(constants: Sequence[Mapping[str, Any]]) -> List[Tuple[Any, ...]]:
+    """Reference-value rows for a Provenance sheet or the report (:data:`PROVENANCE_KEYS` order).
+
+    A row whose value or σ differs from the reference set it started from (the ``set`` row) is
+    marked as edited in the workbook: its shipped status then no longer describes the value.
+    """
+    name = ""
+    for r in constants:
+        if str(r.get("key", "")).strip() == "set":
+            name = str(r.get("value", "")).strip()
+    try:
+        shipped = {r["key"]: r for r in constants_rows(name or None)}
+    except InputError:
+        shipped = {}
+    out = []
+    for r in constants:
+        key = str(r.get("key", "")).strip()
+        if not key:
+            continue
+        row = dict(r)
+        ref = shipped.get(key)
+        if key != "set" and ref is not None:
+            same = all(_same_number(row.get(k), ref[k]) for k in ("value", "sigma_1s"))
+            if not same:
+                row["note"] = (f"EDITED in this workbook (the set {name or 'default'!r} has "
+                               f"{ref['value']!r} ± {ref['sigma_1s']!r}); the shipped note was: "
+                               f"{ref['note'] or 'none'}")
+            elif str(row.get("note", "")).strip() == "":
+                row["note"] = ref["note"]
+        out.append(tuple(row.get(k, "") for k in PROVENANCE_KEYS))
+    return out
 
 
 # --------------------------------------------------------------------------------------------

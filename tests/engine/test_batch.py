@@ -103,3 +103,35 @@ def test_demo_command_writes_into_out_demo(tmp_path, monkeypatch, capsys):
         assert name in out
     assert "true ages" in out
     assert RESULTS.name == "Results"
+
+
+def test_provenance_sheet_and_report_carry_how_sigma_was_set(tmp_path):
+    """results.xlsx Provenance and the report's reference table show the note/status column; a value
+    edited in the workbook is marked as edited (its shipped status no longer describes it)."""
+    import shutil
+    import subprocess
+
+    from reduction.workbook import PROVENANCE_HEADER, constants_rows, provenance_constant_rows
+
+    path = tmp_path / "d.xlsx"
+    write_xlsx(demo.demo_layout(), path)
+    reduce_workbook(path, tmp_path / "o")
+    wb = load_workbook(tmp_path / "o" / "results.xlsx")
+    rows = [tuple(r) for r in wb["Provenance"].iter_rows(values_only=True)]
+    assert PROVENANCE_HEADER in [r[:len(PROVENANCE_HEADER)] for r in rows]
+    # Soderlund et al. 2004: +/- 0.008e-11 at 2 sigma, the level recalled from memory
+    lu = next(r for r in rows if r[0] == "decay.Lu176")
+    assert "2 sigma" in lu[4] and "recalled from memory" in lu[4]
+    chur = next(r for r in rows if r[0] == "CHUR.143Nd/144Nd")      # Bouvier et al. 2008, status M
+    assert "recalled from memory" in chur[4]
+    if shutil.which("pdftotext"):
+        text = subprocess.run(["pdftotext", "-layout", str(tmp_path / "o" / "report.pdf"), "-"],
+                              capture_output=True, text=True, check=True).stdout
+        assert "How the 1σ (abs) was set / status" in text and "recalled from memory" in text
+    # an edited value is flagged
+    edited = [dict(r) for r in constants_rows()]
+    k = next(i for i, r in enumerate(edited) if r["key"] == "decay.Sm147")
+    edited[k]["value"] = 6.5238e-12
+    out = {r[0]: r for r in provenance_constant_rows(edited)}
+    assert out["decay.Sm147"][4].startswith("EDITED in this workbook")
+    assert not out["decay.Lu176"][4].startswith("EDITED")

@@ -268,3 +268,36 @@ def test_analysis_value_is_what_the_grid_cell_receives(demo_grid):
     assert v == ev.cells[("Results", FIRST_ROW + 2, RESULTS.col_index("y"))]
     with pytest.raises(InputError):
         analysis_value("no-such-quantity", "SN-03", *args)
+
+
+# ------------------------------------------------------------------ provenance of reference values
+def test_constants_sheet_states_how_sigma_was_set_and_what_was_recalled_from_memory(demo_grid):
+    """The note column carries reduction/data/*.json 'level_note' and 'status' (M = recalled from memory)."""
+    from reduction.constants import decay_constant_entry, reference_set
+
+    note_col = CONSTANTS.col_index("note")
+    lu = _row_of(demo_grid, "Constants", "decay.Lu176")
+    note = demo_grid["Constants"][lu - 1][note_col]
+    # Soderlund et al. 2004: +/- 0.008e-11 at 2 sigma (level recalled from memory), halved to 1 sigma
+    assert "0.008e-11" in note and "2 sigma" in note and "halved" in note and "recalled from memory" in note
+    assert demo_grid["Constants"][lu - 1][CONSTANTS.col_index("sigma_1s")] == decay_constant_entry(
+        "Lu176_S2004").sigma_1s == pytest.approx(0.008e-11 / 2)
+    # Bouvier et al. 2008 CHUR values have status M: every one says so
+    for ratio in ("143Nd/144Nd", "147Sm/144Nd", "176Hf/177Hf", "176Lu/177Hf"):
+        assert "M" in reference_set().reservoir("CHUR", ratio).status
+        row = _row_of(demo_grid, "Constants", f"CHUR.{ratio}")
+        assert "recalled from memory" in demo_grid["Constants"][row - 1][note_col], ratio
+    # a value checked against its source (status S) is not called recalled
+    row = _row_of(demo_grid, "Constants", "rm.JMC-475.176Hf/177Hf")
+    assert "recalled" not in demo_grid["Constants"][row - 1][note_col]
+
+
+def test_status_codes_are_spelt_out():
+    from reduction.workbook import status_text
+
+    assert status_text("M") == "recalled from memory, not checked against the original"
+    assert status_text("value S, uncertainty M") == ("value checked against the source, uncertainty recalled "
+                                                     "from memory")
+    assert status_text("override") == "lab override"
+    assert status_text("") == ""
+
