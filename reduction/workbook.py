@@ -70,6 +70,10 @@ class CellError(InputError):
         return self.args[0]
 
 
+class FollowOnError(CellError):
+    """A cell that only repeats another cell's problem (already listed): shown in the cell, not listed again."""
+
+
 # --------------------------------------------------------------------------------------------
 # the definition
 # --------------------------------------------------------------------------------------------
@@ -555,20 +559,38 @@ def _spike(spikes: Table, label: str, element: str, where: Callable[[str], CellE
         raise where(f"spike {label!r} has no {element} row on the Spikes sheet (spikes there: "
                     f"{', '.join(known) or 'none'})")
     i = hits[0]
-    isotopes, abundances = [], []
+    isotopes, abundances, slots = [], [], []
     for k in range(1, 8):
         iso = spikes.text(i, f"iso{k}", required=k <= 2)
         if not iso:
             continue
         isotopes.append(iso)
         abundances.append(spikes.number(i, f"ab{k}", positive=False))
+        slots.append(k)
+    # every cell is read (and a bad one reported at its own column) before the engine sees them
+    spike_isotope = spikes.text(i, "spike_isotope")
+    conc = spikes.number(i, "conc_umol_g", positive=True)
+    conc_s = spikes.number(i, "conc_sigma_1s", required=False)
+    calibrated = spikes.text(i, "calibrated", required=False)
     try:
-        return make_spike(element, tuple(isotopes), tuple(abundances), spikes.text(i, "spike_isotope"),
-                          spikes.number(i, "conc_umol_g", positive=True),
-                          spikes.number(i, "conc_sigma_1s", required=False), label=label,
-                          calibrated=spikes.text(i, "calibrated", required=False))
+        return make_spike(element, tuple(isotopes), tuple(abundances), spike_isotope, conc, conc_s, label=label,
+                          calibrated=calibrated)
     except InputError as exc:
-        raise spikes.error(i, "spike_isotope", str(exc)) from None
+        raise spikes.error(i, _spike_column(exc, slots, isotopes, abundances), exc.problem) from None
+
+
+def _spike_column(exc: InputError, slots: Sequence[int], isotopes: Sequence[str], abundances: Sequence[float]
+                  ) -> str:
+    """The Spikes column a :func:`reduction.dilution.make_spike` error is about (by its argument name)."""
+    arg = exc.argument
+    if arg == "isotopes":
+        named = [k for k, iso in zip(slots, isotopes) if repr(iso) in exc.problem]
+        return f"iso{(named or list(slots))[0]}"
+    if arg == "abundances":
+        bad = [k for k, a in zip(slots, abundances) if not (math.isfinite(a) and a >= 0)]
+        return f"ab{(bad or list(slots))[0]}"
+    return {"concentration_umol_g": "conc_umol_g", "concentration_sigma_1s": "conc_sigma_1s",
+            "spike_isotope": "spike_isotope"}.get(arg, "element")
 
 
 def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError]
@@ -746,11 +768,12 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
         j = hits[0]
         if _system_of(res.text(j, "system")) != sys_key:
             raise sel.error(i, "analysis", f"analysis {a!r} is {res.text(j, 'system')}, not {system}")
-        x.append(res.number(j, "x"))
-        sx.append(res.number(j, "x_1s"))
-        y.append(res.number(j, "y"))
-        sy.append(res.number(j, "y_1s"))
-        r.append(res.number(j, "rho"))
+        for key, out in (("x", x), ("x_1s", sx), ("y", y), ("y_1s", sy), ("rho", r)):
+            v = res.get(j, key)
+            if isinstance(v, str) and v.strip():
+                raise sel.error(i, "analysis", f"{system}: analysis {a!r} (Results row {res.first_row + j}) "
+                                f"has no {res.header(key)}: {_cell_message(v)}")
+            out.append(res.number(j, key))
         used += 1
     if used < 2:
         raise CellError("Isochron", None, "B", "Use (1/0)",
@@ -760,6 +783,14 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
     age = isochron_age(fit, sys_key, ref)
     eps = epsilon(age.initial, age.initial_sigma_1s, 0.0, age.age_ma, sys_key, ref)
     return fit, age, eps
+
+
+def _cell_message(v: str) -> str:
+    """The problem a message cell shows, without its marker (cells that repeat another cell's message)."""
+    t = v.strip()
+    if t.startswith(MARKER.strip()):
+        t = t[len(MARKER.strip()):].strip()
+    return t if len(t) <= 300 else t[:297] + "..."
 
 
 def isochron_value(quantity: str, system: Any, treatment: Any, selection: Any, results: Any,
@@ -1027,21 +1058,23 @@ def _block(grid: Mapping[str, Sequence[Sequence[Cell]]], ref: Ref) -> Rows:
                        else ref.col)
 
 
-def _ellipse(pt: Sequence[Cell]) -> List[Tuple[float, float]]:
-    """The ellipse outline of one selection row, as the ellipse cell function returns it."""
+def _ellipse(pt: Sequence[Cell], row: Optional[int] = None) -> List[Tuple[float, float]]:
+    """The ellipse outline of one selection row (sheet row ``row``), as the ellipse cell function returns it."""
     from .regression import ellipse_points
 
     ci = [ISOCHRON.col_index(k) for k in ("x", "x_1s", "y", "y_1s", "rho")]
     vals = [pt[i] for i in ci]
+    a = pt[0] if not isinstance(pt[0], float) else f"{pt[0]:g}"
     for v, i in zip(vals, ci):
         if not isinstance(v, float):
-            text = str(v)
-            raise CellError("Isochron", None, col_letter(i), ISOCHRON.columns[i].header,
-                            f"ellipse needs a number, got {text[:80]!r}")
+            text = _cell_message(str(v)) if isinstance(v, str) and v.strip() else repr(v)
+            err = FollowOnError if isinstance(v, str) and v.strip().startswith(MARKER.strip()) else CellError
+            raise err("Isochron", row, col_letter(i), ISOCHRON.columns[i].header,
+                      f"ellipse of analysis {a!r} needs a number here, the cell shows: {text}")
     try:
         xs, ys = ellipse_points(*vals, n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
     except InputError as exc:
-        raise CellError("Isochron", None, None, "", f"ellipse: {exc}") from None
+        raise CellError("Isochron", row, None, "", f"ellipse of analysis {a!r}: {exc}") from None
     return [(float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist())]
 
 
@@ -1078,7 +1111,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         except CellError as exc:
             if strict:
                 raise
-            if str(exc) not in {str(e) for e in errors}:
+            if not isinstance(exc, FollowOnError) and str(exc) not in {str(e) for e in errors}:
                 errors.append(exc)
             return MARKER + str(exc)
 
@@ -1122,7 +1155,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         pt = sheet_block(work, "Isochron", srow, 0, srow, len(ISOCHRON.columns) - 1)[0]
         vals: Any = ""
         if pt[0] != "":
-            vals = run(lambda pt=pt: _ellipse(pt))
+            vals = run(lambda pt=pt, srow=srow: _ellipse(pt, srow))
         for i in range(ELLIPSE_POINTS + 1):
             for j in (0, 1):
                 if not isinstance(vals, str):

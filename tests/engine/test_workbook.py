@@ -301,3 +301,42 @@ def test_status_codes_are_spelt_out():
     assert status_text("override") == "lab override"
     assert status_text("") == ""
 
+
+# ------------------------------------------------------------------ where a bad input is reported
+@pytest.mark.parametrize("key,value,problem", [
+    ("conc_umol_g", "abc", "is not a number: 'abc'"),
+    ("conc_umol_g", 0.0, "must be > 0, got 0.0"),
+    ("conc_sigma_1s", -1e-6, "must be >= 0"),
+    ("iso3", "999Xx", "'999Xx' is not an isotope of Nd"),
+])
+def test_spike_problem_is_reported_at_its_own_column(demo_grid, key, value, problem):
+    from reduction.workbook import SPIKES
+
+    g = copy.deepcopy(demo_grid)
+    row = _row_of(g, "Spikes", "LH-SmNd-3", "Nd")
+    _set(g, "Spikes", row, SPIKES.col_index(key), value)
+    msgs, _ev = _messages(g)
+    where = f"Spikes, row {row}, column {SPIKES.letter(key)} ({SPIKES.columns[SPIKES.col_index(key)].header}): "
+    assert any(m.startswith(where) and problem in m for m in msgs), msgs
+    # never attributed to the spike-isotope column (D) when the fault is elsewhere
+    assert not any(m.startswith(f"Spikes, row {row}, column {SPIKES.letter('spike_isotope')}") for m in msgs), msgs
+
+
+def test_isochron_follow_on_message_names_the_row_and_analysis_that_failed(demo_grid):
+    from reduction.workbook import SPIKES
+
+    g = copy.deepcopy(demo_grid)
+    row = _row_of(g, "Spikes", "LH-SmNd-3", "Nd")
+    _set(g, "Spikes", row, SPIKES.col_index("conc_umol_g"), "abc")
+    msgs, ev = _messages(g)
+    first = ISOCHRON_BLOCK["Sm-Nd"][0]
+    a = g["Isochron"][first - 1][0]
+    iso = [m for m in msgs if m.startswith("Isochron")]
+    assert len(iso) == 1, msgs                       # the ellipse cells repeat it without listing it again
+    assert iso[0].startswith(f"Isochron, row {first}, column A (Analysis): Sm-Nd: analysis {a!r} (Results row ")
+    assert "Spikes, row" in iso[0] and "column E" in iso[0]
+    assert str(ev.cells[AGE_SMND]).startswith(MARKER + f"Isochron, row {first}")
+    # the ellipse cell of that row shows which analysis and row
+    (top, left), _f = next(iter(ellipse_formulas().items()))
+    cell = ev.cells[("Isochron", top, left)]
+    assert cell.startswith(MARKER + f"Isochron, row {first}, column C") and repr(a) in cell
