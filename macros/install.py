@@ -43,6 +43,27 @@ def free_port() -> int:
         return s.getsockname()[1]
 
 
+def soffice_environment(env: Optional[dict] = None) -> dict:
+    """The environment for soffice, without whatever selects another Python.
+
+    LibreOffice embeds the system Python, which finds its standard library from the first
+    ``python3`` on PATH. Started from a pyenv or virtual-environment Python (as ``build.py`` and
+    the venv's pytest do), PATH begins with that interpreter's folder, the embedded Python then
+    loads a foreign standard library and site-packages, and every add-in call dies with
+    "std::bad_alloc". So drop those PATH entries and the variables that point at other Pythons.
+    """
+    env = dict(os.environ if env is None else env)
+    for var in ("PYTHONHOME", "PYTHONPATH", "VIRTUAL_ENV", "PYTHONSTARTUP"):
+        env.pop(var, None)
+    for var in [k for k in env if k.startswith("PYENV")]:
+        env.pop(var)
+    system_dirs = {"/usr/bin", "/bin", "/usr/sbin", "/sbin"}
+    keep = [d for d in env.get("PATH", "").split(os.pathsep)
+            if d in system_dirs or not os.path.exists(os.path.join(d, "python3"))]
+    env["PATH"] = os.pathsep.join(keep) or "/usr/bin:/bin"
+    return env
+
+
 def start_soffice(profile: Path, port: int, log_path: Optional[Path] = None) -> subprocess.Popen:
     """Start a headless LibreOffice listening on 127.0.0.1:port with its own profile folder.
 
@@ -59,9 +80,10 @@ def start_soffice(profile: Path, port: int, log_path: Optional[Path] = None) -> 
            f"--accept=socket,host=127.0.0.1,port={port};urp;"]
     if log_path is None:
         return subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                                start_new_session=True)
+                                start_new_session=True, env=soffice_environment())
     with open(log_path, "ab") as out:  # the child keeps its own copy of the handle
-        return subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=out, stderr=out, start_new_session=True)
+        return subprocess.Popen(cmd, stdin=subprocess.DEVNULL, stdout=out, stderr=out, start_new_session=True,
+                                env=soffice_environment())
 
 
 def connect(port: int, proc: Optional[subprocess.Popen] = None, timeout: float = 60.0) -> Any:
