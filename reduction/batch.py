@@ -239,14 +239,16 @@ def _progress(msg: str) -> None:
 
 def _summarise(outcome: ReduceOutcome) -> None:
     ev = outcome.evaluation
+    qrow = {q: ISOCHRON_FIRST_Q_ROW + i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         col = ISOCHRON_SUMMARY_COL + 1 + k
-        age = ev.cells.get(("Isochron", ISOCHRON_FIRST_Q_ROW + 1, col))
-        a2 = ev.cells.get(("Isochron", ISOCHRON_FIRST_Q_ROW + 2, col))
-        mswd = ev.cells.get(("Isochron", ISOCHRON_FIRST_Q_ROW + 9, col))
+        age, a2, tot, mswd = (ev.cells.get(("Isochron", qrow[q], col)) for q in ("age", "age_2s", "age_2s_total",
+                                                                                  "mswd"))
         if isinstance(age, float):
             m = f"{mswd:.2f}" if isinstance(mswd, float) else str(mswd)
-            print(f"  {system} isochron: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), MSWD {m}")
+            t = f"± {tot:.2f} Ma (2σ, with decay constant and spike calibration)" if isinstance(tot, float) else \
+                f"total: {tot}"
+            print(f"  {system} isochron: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), {t}, MSWD {m}")
     for w in outcome.warnings:
         print(f"  warning: {w}")
     print(f"wrote {outcome.results_xlsx}")

@@ -81,7 +81,8 @@ _TABLE_RATIOS = (("analysis", "Analysis", str), ("x", "P/D ratio", lambda v: _de
                  ("y_1s_total", "±1σ abs\n(total)", _sci), ("rho", "ρ\n(random)", lambda v: _dec(v, 3)),
                  ("eps0", "ε today", lambda v: _dec(v, 2)), ("eps0_2s", "±2σ abs", lambda v: _dec(v, 2)))
 _ISO_FMT = {"n": lambda v: _dec(v, 0), "age": lambda v: _dec(v, 2), "age_2s": lambda v: _dec(v, 2),
-            "age_2s_lambda": lambda v: _dec(v, 2), "age_95": lambda v: _dec(v, 2),
+            "age_2s_lambda": lambda v: _dec(v, 2), "age_2s_total": lambda v: _dec(v, 2),
+            "x_scale_1s_pct": lambda v: _dec(v, 4), "age_95": lambda v: _dec(v, 2),
             "initial": lambda v: _dec(v, 7), "initial_2s": lambda v: _dec(v, 7), "eps_t": lambda v: _dec(v, 2),
             "eps_t_2s": lambda v: _dec(v, 2), "mswd": lambda v: _dec(v, 2), "p": lambda v: _dec(v, 3),
             "slope": lambda v: _dec(v, 8), "slope_1s": _sci}
@@ -101,6 +102,11 @@ def _age_text(p: IsochronPanel) -> str:
     if isinstance(s.get("age"), float):
         lines.append(f"age = {s['age']:.2f} ± {s['age_2s']:.2f} Ma (2σ, slope only)")
         lines.append(f"      ± {s['age_2s_lambda']:.2f} Ma (2σ, with decay constant)")
+        tot = s.get("age_2s_total")
+        if isinstance(tot, float):
+            lines.append(f"      ± {tot:.2f} Ma (2σ, with decay constant and spike calibration)")
+        elif tot:
+            lines.append(f"      total with spike calibration: {tot}")
         if isinstance(s.get("age_95"), float):
             lines.append(f"      ± {s['age_95']:.2f} Ma (95 %, t·√MSWD)")
         lines.append(f"initial = {s['initial']:.7f} ± {s['initial_2s']:.7f} (2σ)")
@@ -206,11 +212,12 @@ def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Seq
                 cell.set_text_props(ha="left" if wrap[_c] else "right")
                 cell._loc = "left" if wrap[_c] else "right"
 
-        y = 0.095
-        for n in notes:
-            lines = textwrap.wrap(n, 190 if landscape else 130)
+        wrapped = [textwrap.wrap(n, 190 if landscape else 130) for n in notes]
+        step = 0.018 if landscape else 0.0128            # one 7-pt line as a fraction of the page height
+        y = max(0.095, 0.03 + sum(step * len(lines) + 0.008 for lines in wrapped))
+        for lines in wrapped:
             fig.text(0.04, y, "\n".join(lines), fontsize=7, va="top")
-            y -= 0.018 * len(lines) + 0.008
+            y -= step * len(lines) + 0.008
         fig.text(0.5, 0.005, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center",
                  fontsize=7, color="#666666")
         pdf.savefig(fig)
@@ -244,9 +251,14 @@ def write_report(data: ReportData, path: Any) -> None:
             fmt = _ISO_FMT.get(q, str)
             iso_rows.append((label, *[fmt(p.summary.get(q, "")) for p in data.isochrons], unit))
         _table_pages(pdf, "Isochron summaries", ("Quantity", *[p.system for p in data.isochrons], "Unit / level"),
-                     iso_rows, data, fontsize=8, landscape=False,
+                     iso_rows, data, fontsize=8, landscape=False, wrap=(56,) + (0,) * (len(data.isochrons) + 1),
+                     col_widths=(0.46,) + (0.54 / (len(data.isochrons) + 1),) * (len(data.isochrons) + 1),
                      notes=("Fit: York et al. 2004 (Am. J. Phys. 72, 367). Scatter treatment as stated on each "
-                            "isochron page. Ages use the decay constants listed under reference values.", CAUTION))
+                            "isochron page. Ages use the decay constants listed under reference values. The spike's "
+                            "parent/daughter calibration scales every x of an isochron alike (slope b -> b/k); it "
+                            "enters the total only (first order, added in quadrature). The reference-material "
+                            "accepted value scales every y alike and is not included (its relative σ is far smaller).",
+                            CAUTION))
         from .workbook import PROVENANCE_HEADER
 
         _table_pages(pdf, "Reference values used (Constants sheet)", PROVENANCE_HEADER, data.constants, data,

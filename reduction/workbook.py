@@ -214,6 +214,7 @@ MEASURED = Sheet(
 _RESULT_SPEC = (
     ("analysis", "Analysis", "", "General"), ("sample", "Sample", "", "General"),
     ("fraction", "Fraction type", "", "General"), ("system", "System", "", "General"),
+    ("spike", "Spike used", "", "General"),
     ("parent_conc", "Parent (µg/g)", "parent_conc", "0.0000"),
     ("parent_conc_1s", "Parent 1σ (abs, µg/g, total)", "parent_conc_1s", "0.0000"),
     ("daughter_conc", "Daughter (µg/g)", "daughter_conc", "0.0000"),
@@ -222,6 +223,7 @@ _RESULT_SPEC = (
     ("x_1s", "P/D 1σ (abs, random)", "x_1s", "0.0E+00"),
     ("x_2s_pct", "P/D 2σ (%, random)", "x_2s_pct", "0.000"),
     ("x_1s_total", "P/D 1σ (abs, total)", "x_1s_total", "0.0E+00"),
+    ("x_spike_1s_pct", "Spike P/D calibration 1σ (%)", "x_spike_1s_pct", "0.0000"),
     ("y", "Daughter ratio", "y", "0.0000000"),
     ("y_1s", "D ratio 1σ (abs, random)", "y_1s", "0.0E+00"),
     ("y_2s_ppm", "D ratio 2σ (ppm, random)", "y_2s_ppm", "0.0"),
@@ -243,13 +245,15 @@ RESULTS = Sheet(
     capacity=60)
 
 ANALYSIS_QUANTITIES = tuple(q for _k, _h, q, _f in _RESULT_SPEC if q)
+#: Results columns copied from the Samples sheet (no engine call).
+COPIED_FROM_SAMPLES = tuple(k for k, _h, q, _f in _RESULT_SPEC if not q)
 
 ISOCHRON_SYSTEMS = ("Sm-Nd", "Lu-Hf")
 ISOCHRON = Sheet(
     "Isochron", "Isochrons — choose the rows, read the ages",
     "Type analysis IDs in column A and 1 (use) or 0 (leave out) in column B; choose the scatter treatment. "
     "Ages in Ma. The fit is the York regression (York et al. 2004); ages use the decay constants of the "
-    "Constants sheet.",
+    "Constants sheet. The spike calibration scales every P/D ratio alike: it enters only the total age error.",
     (_c("analysis", "Analysis", "text", width=10), _c("use", "Use (1/0)", "flag", width=9),
      _c("x", "P/D ratio", "computed", quantity="x", number_format="0.000000"),
      _c("x_1s", "P/D 1σ (abs, random)", "computed", quantity="x_1s", number_format="0.0E+00"),
@@ -264,6 +268,8 @@ ISOCHRON_QUANTITIES: Tuple[Tuple[str, str, str], ...] = (
     ("age", "Age", "Ma"),
     ("age_2s", "Age ± (2σ, slope only)", "Ma, 2σ abs"),
     ("age_2s_lambda", "Age ± (2σ, with decay constant)", "Ma, 2σ abs"),
+    ("age_2s_total", "Age ± (2σ, with decay constant and spike calibration)", "Ma, 2σ abs"),
+    ("x_scale_1s_pct", "Spike P/D calibration used (1σ %, scales every x)", "1σ %"),
     ("age_95", "Age ± (95 %, t·√MSWD expanded)", "Ma, 95 % abs"),
     ("initial", "Initial ratio", "mol/mol"),
     ("initial_2s", "Initial ratio ± (2σ)", "2σ abs"),
@@ -627,10 +633,29 @@ def _standard(standards: Table, constants: Rows, session: str, ratio: str,
         raise standards.error(hits[0], "measured", str(exc)) from None
 
 
+#: Correlation of a mixed spike's two concentrations the workbook passes to the chain (the Spikes
+#: sheet has no column for it: the two calibrations are treated as independent).
+SPIKE_RHO = 0.0
+
+
+def spike_ratio_sigma_rel(parent_spike: Any, daughter_spike: Any, spike_rho: float = SPIKE_RHO) -> float:
+    """Relative 1σ of a spike's parent/daughter concentration ratio (e.g. 149Sm/150Nd of a mixed spike).
+
+    First-order propagation of a ratio of two quantities with relative 1σ ``r_p``, ``r_d`` and
+    correlation ρ: ``(r_p² + r_d² − 2 ρ r_p r_d)^½`` (e.g. Taylor 1997, An Introduction to Error
+    Analysis, 2nd ed., eq. 9.9 — recalled from memory), with the same ρ the chain receives
+    (:func:`reduction.chain.reduce_spiked_analysis` ``spike_rho``). Every parent/daughter ratio
+    reduced with that spike scales with this ratio, so its error is common to all of them.
+    """
+    rp = parent_spike.concentration_sigma_1s / parent_spike.concentration_umol_g
+    rd = daughter_spike.concentration_sigma_1s / daughter_spike.concentration_umol_g
+    return math.sqrt(max(rp * rp + rd * rd - 2.0 * spike_rho * rp * rd, 0.0))
+
+
 @lru_cache(maxsize=256)
 def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standards: Rows,
-              constants: Rows, mc_draws: int = 0) -> Tuple[Any, Any]:
-    """(AnalysisResult, epsilon today) of one analysis, from the workbook's tables."""
+              constants: Rows, mc_draws: int = 0) -> Tuple[Any, Any, float]:
+    """(AnalysisResult, epsilon today, spike P/D calibration rel. 1σ) of one analysis, from the workbook's tables."""
     from .ages import epsilon
     from .chain import reduce_spiked_analysis
     from .systems import get_system
@@ -672,11 +697,11 @@ def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standa
         res = reduce_spiked_analysis(
             system.key, p_mix, d_mix, sample_mass, spike_mass, p_spike, d_spike,
             parent_mix_sigma_1s=p_sig, daughter_mix_sigma_1s=d_sig, daughter_norm_ratio=_NORM_RATIO.get(d_el),
-            parent_blank_ng=pb, daughter_blank_ng=db, standard=std, mc_draws=mc_draws, **kw)
+            parent_blank_ng=pb, daughter_blank_ng=db, standard=std, spike_rho=SPIKE_RHO, mc_draws=mc_draws, **kw)
         eps = epsilon(res.daughter_ratio, res.daughter_ratio_sigma_1s, res.parent_ratio, 0.0, system, ref)
     except RatioDeskError as exc:
         raise CellError("Samples", FIRST_ROW + i, "A", "Analysis", f"analysis {analysis!r}: {exc}") from None
-    return res, eps
+    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike)
 
 
 def analysis_result(analysis: str, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any,
@@ -714,7 +739,7 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
     if not a:
         return ""
     rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
-    res, eps = _analysis(a, *rows)
+    res, eps, x_scale = _analysis(a, *rows)
     rnd = res.sigma_1s_random
     q = quantity.strip().lower()
     table: Dict[str, Callable[[], Any]] = {
@@ -722,7 +747,7 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
         "daughter_conc": lambda: res.daughter_conc_ug_g, "daughter_conc_1s": lambda: res.daughter_conc_sigma_1s,
         "x": lambda: res.parent_ratio, "x_1s": lambda: rnd["parent_ratio"],
         "x_2s_pct": lambda: 2 * rnd["parent_ratio"] / res.parent_ratio * 100,
-        "x_1s_total": lambda: res.parent_ratio_sigma_1s,
+        "x_1s_total": lambda: res.parent_ratio_sigma_1s, "x_spike_1s_pct": lambda: 100 * x_scale,
         "y": lambda: res.daughter_ratio, "y_1s": lambda: rnd["daughter_ratio"],
         "y_2s_ppm": lambda: 2 * rnd["daughter_ratio"] / res.daughter_ratio * 1e6,
         "y_1s_total": lambda: res.daughter_ratio_sigma_1s,
@@ -740,7 +765,9 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
 # isochrons
 # --------------------------------------------------------------------------------------------
 @lru_cache(maxsize=64)
-def _isochron(system: str, treatment: str, selection: Rows, results: Rows, constants: Rows) -> Tuple[Any, Any, Any]:
+def _isochron(system: str, treatment: str, selection: Rows, results: Rows, constants: Rows
+              ) -> Tuple[Any, Any, Any, str]:
+    """(fit, age, ε at the age, why no spike-calibration total ('' when there is one))."""
     from .ages import epsilon, isochron_age
     from .regression import fit_isochron
 
@@ -748,6 +775,7 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
     res = Table.from_range(RESULTS, results)
     sys_key = _system_of(system)
     x, sx, y, sy, r = [], [], [], [], []
+    scales: Dict[str, float] = {}
     used = 0
     for i in range(len(sel.rows)):
         if not sel.filled(i):
@@ -774,15 +802,25 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
                 raise sel.error(i, "analysis", f"{system}: analysis {a!r} (Results row {res.first_row + j}) "
                                 f"has no {res.header(key)}: {_cell_message(v)}")
             out.append(res.number(j, key))
+        if "spike" in res.keys and "x_spike_1s_pct" in res.keys:
+            scales.setdefault(res.text(j, "spike"), res.number(j, "x_spike_1s_pct") / 100.0)
         used += 1
     if used < 2:
         raise CellError("Isochron", None, "B", "Use (1/0)",
                         f"{system}: {used} row(s) selected; an isochron needs at least two")
     fit = fit_isochron(x, sx, y, sy, r, treatment=treatment or "analytical")
     ref = _refset(constants)
-    age = isochron_age(fit, sys_key, ref)
+    # one spike: its P/D calibration scales every x alike (a common factor, ages.isochron_age);
+    # several spikes: independent factors per group, which one scale factor does not describe
+    why = ""
+    if not scales:
+        why = "n/a: the Results sheet has no spike columns"
+    elif len(scales) > 1:
+        why = f"n/a: the rows use {len(scales)} spikes ({', '.join(sorted(scales))}); no common x scale"
+    ks = next(iter(scales.values())) if len(scales) == 1 else 0.0
+    age = isochron_age(fit, sys_key, ref, x_scale_sigma_rel=ks)
     eps = epsilon(age.initial, age.initial_sigma_1s, 0.0, age.age_ma, sys_key, ref)
-    return fit, age, eps
+    return fit, age, eps, why
 
 
 def _cell_message(v: str) -> str:
@@ -802,14 +840,19 @@ def isochron_value(quantity: str, system: Any, treatment: Any, selection: Any, r
     is one of the first entries of :data:`ISOCHRON_QUANTITIES`. The fit is
     :func:`reduction.regression.fit_isochron` (York et al. 2004, Am. J. Phys. 72, 367) and the age
     :func:`reduction.ages.isochron_age`, with the decay constant of the Constants sheet.
+    ``age_2s_total`` adds the spike calibration: every x of an isochron reduced with one spike scales
+    with that spike's parent/daughter concentration ratio (Results column ``x_spike_1s_pct``), a
+    common factor passed as ``x_scale_sigma_rel``; with rows from several spikes it is text ("n/a").
     """
-    fit, age, eps = _isochron(str(system).strip(), str(treatment or "").strip().lower(), as_rows(selection),
+    fit, age, eps, why = _isochron(str(system).strip(), str(treatment or "").strip().lower(), as_rows(selection),
                               as_rows(results), as_rows(constants))
     q = quantity.strip().lower()
     t95 = fit.t95 if fit.t95 is not None else float("nan")
     table: Dict[str, Callable[[], Any]] = {
         "n": lambda: fit.n, "age": lambda: age.age_ma, "age_2s": lambda: 2 * age.age_sigma_1s_ma,
         "age_2s_lambda": lambda: 2 * age.age_sigma_1s_ma_with_lambda,
+        "age_2s_total": lambda: why or 2 * age.age_sigma_1s_ma_total,
+        "x_scale_1s_pct": lambda: why or 100 * age.x_scale_sigma_rel,
         "age_95": lambda: _age_95(fit, age, t95),
         "initial": lambda: age.initial, "initial_2s": lambda: 2 * age.initial_sigma_1s,
         "eps_t": lambda: eps.value, "eps_t_2s": lambda: 2 * eps.sigma_1s,
@@ -936,7 +979,7 @@ def isochron_selection_ref(system: str) -> Ref:
 def results_formula(column: Column, row: int) -> Formula:
     """The formula of one Results cell (row is the sheet row)."""
     here = Ref("Results", 0, row, absolute=False, abs_col_only=True)
-    if column.quantity in ("analysis", "sample", "fraction", "system"):
+    if column.quantity in COPIED_FROM_SAMPLES:
         src = Ref("Samples", SAMPLES.col_index(column.quantity), row, absolute=False)
         return Formula("IF", (Formula("ISBLANK", (src,), addin=False), "", src), addin=False)
     args = (column.quantity, here, table_ref(SAMPLES), table_ref(MEASURED), table_ref(SPIKES),
@@ -1127,7 +1170,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
             continue
         analysis = samples.get(i, "analysis")
         for j, c in enumerate(RESULTS.columns):
-            if c.quantity in ("analysis", "sample", "fraction", "system"):
+            if c.quantity in COPIED_FROM_SAMPLES:
                 put("Results", row, j, samples.get(i, c.quantity))
                 continue
             if analysis == "":
@@ -1273,7 +1316,8 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         iso[(ISOCHRON_TREATMENT_ROW, col0 + 1 + k)] = CellSpec("analytical", style="input")
     iso[(ISOCHRON_TREATMENT_ROW, col0 + 3)] = CellSpec("analytical, expanded, equal-weights, excess-variance",
                                                         style="note")
-    fmt = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_95": "0.00", "initial": "0.0000000",
+    fmt = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_2s_total": "0.00", "x_scale_1s_pct": "0.0000",
+           "age_95": "0.00", "initial": "0.0000000",
            "initial_2s": "0.0E+00", "eps_t": "0.00", "eps_t_2s": "0.00", "mswd": "0.00", "p": "0.000",
            "slope": "0.0000000", "slope_1s": "0.0E+00", "n": "0"}
     for q_i, (q, label, unit) in enumerate(ISOCHRON_QUANTITIES):

@@ -340,3 +340,89 @@ def test_isochron_follow_on_message_names_the_row_and_analysis_that_failed(demo_
     (top, left), _f = next(iter(ellipse_formulas().items()))
     cell = ev.cells[("Isochron", top, left)]
     assert cell.startswith(MARKER + f"Isochron, row {first}, column C") and repr(a) in cell
+
+
+# ------------------------------------------------------------------ spike calibration in the isochron age
+def _used_points(ev, grid, system):
+    first, last = ISOCHRON_BLOCK[system]
+    pts = []
+    for row in range(first, last + 1):
+        if grid["Isochron"][row - 1][:2] and grid["Isochron"][row - 1][1] == 1.0:
+            pts.append([ev.cells[("Isochron", row, ISOCHRON.col_index(k))] for k in ("x", "x_1s", "y", "y_1s", "rho")])
+    return [list(c) for c in zip(*pts)]
+
+
+@pytest.mark.parametrize("k,system,lam_key,spike", [(0, "Sm-Nd", "decay.Sm147", "LH-SmNd-3"),
+                                                    (1, "Lu-Hf", "decay.Lu176", "LH-LuHf-2")])
+def test_total_age_error_with_spike_calibration_by_finite_differences(demo_grid, k, system, lam_key, spike):
+    """Rescale every x (and its σ) by (1 + δ), refit, and take the age change: the spike's P/D
+    calibration σ times that derivative, added in quadrature to the slope-only and decay-constant
+    parts, must equal the sheet's 'with decay constant and spike calibration' row."""
+    from reduction.regression import fit_isochron
+    from reduction.workbook import SPIKES
+
+    ev = evaluate(demo_grid)
+    col = ISOCHRON_SUMMARY_COL + 1 + k
+    cell = {q: ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + i, col)] for q, i in Q.items()}
+    x, sx, y, sy, rho = _used_points(ev, demo_grid, system)
+    row = _row_of(demo_grid, "Constants", lam_key)
+    lam = demo_grid["Constants"][row - 1][CONSTANTS.col_index("value")]
+    slam = demo_grid["Constants"][row - 1][CONSTANTS.col_index("sigma_1s")]
+
+    def age_ma(scale):
+        f = fit_isochron([scale * v for v in x], [scale * v for v in sx], y, sy, rho, treatment="analytical")
+        return math.log1p(f.slope) / lam / 1e6
+
+    d = 1e-6
+    dt_dk = (age_ma(1 + d) - age_ma(1 - d)) / (2 * d)
+    # the spike rows as typed: relative 1σ of each element's concentration, ρ = 0 (no column for it)
+    rel = []
+    for el in (("Sm", "Nd") if system == "Sm-Nd" else ("Lu", "Hf")):
+        r = _row_of(demo_grid, "Spikes", spike, el)
+        rel.append(demo_grid["Spikes"][r - 1][SPIKES.col_index("conc_sigma_1s")]
+                   / demo_grid["Spikes"][r - 1][SPIKES.col_index("conc_umol_g")])
+    s = math.hypot(*rel)
+    assert cell["x_scale_1s_pct"] == pytest.approx(100 * s, rel=1e-12)
+    assert cell["age"] == pytest.approx(age_ma(1.0), rel=1e-12)
+    expect = 2 * math.sqrt((cell["age_2s"] / 2) ** 2 + (cell["age"] * slam / lam) ** 2 + (dt_dk * s) ** 2)
+    assert cell["age_2s_total"] == pytest.approx(expect, rel=1e-6)
+    assert cell["age_2s_total"] > cell["age_2s_lambda"]
+
+
+def test_spike_column_matches_the_chain_systematic_part_of_x(demo_grid):
+    """Results 'Spike P/D calibration 1σ (%)' is the x error the chain attributes to the spike
+    (its systematic part: spike concentrations only, for x), up to the blank correction."""
+    from reduction.workbook import analysis_result
+
+    refs = {s.name: s.range_ref() for s in SHEETS}
+    args = [sheet_block(demo_grid, n, r1, c1, r2, c2) for n, r1, c1, r2, c2 in
+            (refs["Samples"], refs["Measured"], refs["Spikes"], refs["Standards"], refs["Constants"])]
+    ev = evaluate(demo_grid)
+    ids = [(row, ev.cells[("Results", row, 0)]) for row in range(FIRST_ROW, RESULTS.last_row + 1)]
+    ids = [(row, a) for row, a in ids if a != ""]
+    assert len(ids) >= 10
+    for row, a in ids:
+        res = analysis_result(a, *args)
+        chain = res.sigma_1s_systematic["parent_ratio"] / res.parent_ratio
+        assert ev.cells[("Results", row, RESULTS.col_index("x_spike_1s_pct"))] / 100 == pytest.approx(chain, rel=2e-3)
+
+
+def test_rows_from_two_spikes_have_no_common_scale(demo_grid):
+    from reduction.workbook import SPIKES
+
+    g = copy.deepcopy(demo_grid)
+    rows = [_row_of(g, "Spikes", "LH-SmNd-3", el) for el in ("Sm", "Nd")]
+    free = max(r for r in range(FIRST_ROW, FIRST_ROW + 20) if any(v != "" for v in g["Spikes"][r - 1][:1])) + 1
+    for k, r in enumerate(rows):
+        new = list(g["Spikes"][r - 1])
+        new[SPIKES.col_index("spike")] = "LH-SmNd-4"
+        while len(g["Spikes"]) < free + k:
+            g["Spikes"].append([])
+        g["Spikes"][free + k - 1] = new
+    a = g["Isochron"][ISOCHRON_BLOCK["Sm-Nd"][0] - 1][0]
+    _set(g, "Samples", _row_of(g, "Samples", a), SAMPLES.col_index("spike"), "LH-SmNd-4")
+    ev = evaluate(g)
+    col = ISOCHRON_SUMMARY_COL + 1
+    tot = ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age_2s_total"], col)]
+    assert isinstance(tot, str) and tot.startswith("n/a: the rows use 2 spikes")
+    assert isinstance(ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age_2s_lambda"], col)], float)

@@ -135,7 +135,9 @@ if __name__ != "__main__":
         CONSTANTS,
         FIRST_ROW,
         ISOCHRON_FIRST_Q_ROW,
+        ISOCHRON_QUANTITIES,
         ISOCHRON_SUMMARY_COL,
+        RESULTS,
         SPIKES,
         all_computed_cells,
         evaluate,
@@ -174,7 +176,7 @@ if __name__ != "__main__":
         return a == b
 
     def _is_sigma(key):
-        from reduction.workbook import ELLIPSE_COL0, ISOCHRON, ISOCHRON_QUANTITIES, RESULTS
+        from reduction.workbook import ELLIPSE_COL0, ISOCHRON
 
         sheet, row, col = key
         if sheet == "Results":
@@ -259,6 +261,17 @@ if __name__ != "__main__":
         age = live["got"]["initial"][live["cells"].index(("Isochron", ISOCHRON_FIRST_Q_ROW + 1,
                                                           ISOCHRON_SUMMARY_COL + 1))]
         assert isinstance(age, float) and abs(age - demo.TRUE_AGES_MA["sm-nd"]) < 3
+        # the total with the spike calibration and the spike column are numbers in the grid (not the
+        # same message on both sides), equal to the batch path, and larger than the slope-only error
+        q = {name: i for i, (name, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
+        for k in range(2):
+            key = ("Isochron", ISOCHRON_FIRST_Q_ROW + q["age_2s_total"], ISOCHRON_SUMMARY_COL + 1 + k)
+            lam = ("Isochron", ISOCHRON_FIRST_Q_ROW + q["age_2s_lambda"], ISOCHRON_SUMMARY_COL + 1 + k)
+            tot = live["got"]["initial"][live["cells"].index(key)]
+            assert isinstance(tot, float) and _close(tot, ev.cells[key], REL_TOL_SIGMA_ACROSS_NUMPY)
+            assert tot > live["got"]["initial"][live["cells"].index(lam)]
+        spk = live["got"]["initial"][live["cells"].index(("Results", FIRST_ROW, RESULTS.col_index("x_spike_1s_pct")))]
+        assert isinstance(spk, float) and spk > 0
 
     @pytest.mark.parametrize("step,what", [(0, "accepted value of JNdi-1"), (1, "Sm spike calibration"),
                                            (2, "147Sm decay constant")])
