@@ -349,12 +349,7 @@ def _york_single(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r
         if g in seen and abs(h) <= _FLOOR_RTOL * abs(g):
             break
         seen.add(g)
-        nxt = g
-        if h_prev is not None and h != h_prev:
-            sec = bw - h * (bw - b_prev) / (h - h_prev)
-            if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h) and (sec - bw) * h > 0:
-                nxt = sec
-        b_prev, h_prev, bw = bw, h, nxt
+        b_prev, h_prev, bw = bw, h, _next_slope(bw, g, h, b_prev, h_prev)
     else:
         raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
     b = g
@@ -377,6 +372,20 @@ def _york_single(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r
     var_b = 1.0 / swuu
     var_a = 1.0 / sw + xadj_bar * xadj_bar * var_b
     return b, a, math.sqrt(var_b), math.sqrt(var_a), -xadj_bar * var_b, s, iterations, xb, yb
+
+
+def _next_slope(bw: float, g: float, h: float, b_prev: Optional[float], h_prev: Optional[float]) -> float:
+    """Next trial slope: a secant step on h(b) = g(b) − b, else York's plain update g.
+
+    Same fixed point, fewer steps. The plain update is used where the secant is undefined, would
+    step further than 4 plain updates, or would step against the plain update (towards another
+    root of h, away from York's fixed point).
+    """
+    if h_prev is not None and h != h_prev:
+        sec = bw - h * (bw - b_prev) / (h - h_prev)
+        if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h) and (sec - bw) * h > 0:
+            return sec
+    return g
 
 
 def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r: np.ndarray,
@@ -419,15 +428,7 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
                 b = g
                 break
             seen.add(g)
-            # secant step on h(b) = g(b) − b (same fixed point, fewer steps); York's plain update
-            # where the secant is undefined, would step further than 4 plain updates, or would step
-            # against the plain update (towards another root of h, away from York's fixed point)
-            nxt = g
-            if h_prev is not None and h != h_prev:
-                sec = bw - h * (bw - b_prev) / (h - h_prev)
-                if math.isfinite(sec) and abs(sec - bw) <= 4.0 * abs(h) and (sec - bw) * h > 0:
-                    nxt = sec
-            b_prev, h_prev, bw = bw, h, nxt
+            b_prev, h_prev, bw = bw, h, _next_slope(bw, g, h, b_prev, h_prev)
         else:
             raise ConvergenceError(f"York slope iteration did not converge to rtol={rtol:g} in {max_iter} iterations")
         if not math.isfinite(b):
