@@ -2,7 +2,10 @@
 
 Writes the cells of a :data:`reduction.workbook.Layout`: values, formulas (``of:=`` OpenFormula with
 the add-in's stored names) with their cached values, the input/computed look, number formats,
-column widths and sheet protection without a password (one click in Tools ▸ Protect Sheet).
+column widths and sheet protection without a password (one click in Tools ▸ Protect Sheet). The
+Isochron sheet gets one embedded ODF chart object per system (``Object N/``, ODF 1.2 part 1 §10
+``chart:chart``, class ``chart:scatter``): the 95 % error-ellipse outlines of its selection rows as
+lines without symbols, read live from the ellipse cells, as the .xlsx writer draws them.
 """
 from __future__ import annotations
 
@@ -12,7 +15,21 @@ import zipfile
 from typing import Any, Dict, List, Mapping, Optional, Sequence, Tuple
 from xml.sax.saxutils import escape, quoteattr
 
-from reduction.workbook import SHEET_ORDER, WIDTHS, CellSpec, Layout
+from reduction.workbook import (
+    ELLIPSE_POINTS,
+    FIRST_ROW,
+    ISOCHRON_FIRST_Q_ROW,
+    ISOCHRON_QUANTITIES,
+    ISOCHRON_SUMMARY_COL,
+    ISOCHRON_SYSTEMS,
+    SHEET_ORDER,
+    WIDTHS,
+    CellSpec,
+    Layout,
+    col_letter,
+    ellipse_formulas,
+    selection_rows,
+)
 
 NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
       'xmlns:style="urn:oasis:names:tc:opendocument:xmlns:style:1.0" '
@@ -24,6 +41,8 @@ NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
       'xmlns:meta="urn:oasis:names:tc:opendocument:xmlns:meta:1.0" '
       'xmlns:config="urn:oasis:names:tc:opendocument:xmlns:config:1.0" '
       'xmlns:xlink="http://www.w3.org/1999/xlink" '
+      'xmlns:draw="urn:oasis:names:tc:opendocument:xmlns:drawing:1.0" '
+      'xmlns:svg="urn:oasis:names:tc:opendocument:xmlns:svg-compatible:1.0" '
       'xmlns:loext="urn:org:documentfoundation:names:experimental:office:xmlns:loext:1.0"')
 
 _FILL = {"input": "#fff6d5", "computed": "#e2ecf8", "header": "#d9d9d9"}
@@ -119,10 +138,81 @@ def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only
     return f"<table:table-cell {' '.join(attrs)}>{paras}</table:table-cell>"
 
 
+CHART_NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
+            'xmlns:style="urn:oasis:names:tc:opendocument:xmlns:style:1.0" '
+            'xmlns:text="urn:oasis:names:tc:opendocument:xmlns:text:1.0" '
+            'xmlns:table="urn:oasis:names:tc:opendocument:xmlns:table:1.0" '
+            'xmlns:chart="urn:oasis:names:tc:opendocument:xmlns:chart:1.0" '
+            'xmlns:draw="urn:oasis:names:tc:opendocument:xmlns:drawing:1.0" '
+            'xmlns:svg="urn:oasis:names:tc:opendocument:xmlns:svg-compatible:1.0" '
+            'xmlns:fo="urn:oasis:names:tc:opendocument:xmlns:xsl-fo-compatible:1.0" '
+            'xmlns:number="urn:oasis:names:tc:opendocument:xmlns:datastyle:1.0" '
+            'xmlns:xlink="http://www.w3.org/1999/xlink"')
+_AXES = {"Sm-Nd": ("147Sm/144Nd", "143Nd/144Nd"), "Lu-Hf": ("176Lu/177Hf", "176Hf/177Hf")}
+
+
+def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
+    """(object name, chart content.xml, draw:frame xml, anchor cell) of the Isochron sheet's ellipse charts.
+
+    Each frame is anchored to a cell (the .xlsx chart's anchor, below the summary block), so row
+    heights do not move it onto the cells.
+    """
+    tops = {srow: left for (_top, left), (_f, srow) in ellipse_formulas().items()}
+    last = FIRST_ROW + ELLIPSE_POINTS
+    out = []
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        row0 = ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2 + 20 * k     # as the .xlsx chart anchor
+        series, ranges = [], []
+        for s_name, srow in selection_rows():
+            if s_name != system:
+                continue
+            xc, yc = col_letter(tops[srow]), col_letter(tops[srow] + 1)
+            xr, yr = f"Isochron.{xc}{FIRST_ROW}:Isochron.{xc}{last}", f"Isochron.{yc}{FIRST_ROW}:Isochron.{yc}{last}"
+            ranges.append(f"Isochron.{xc}{FIRST_ROW}:Isochron.{yc}{last}")
+            series.append(f'<chart:series chart:style-name="ser" chart:class="chart:scatter" '
+                          f'chart:values-cell-range-address="{yr}"><chart:domain table:cell-range-address="{xr}"/>'
+                          f"</chart:series>")
+        xl, yl = _AXES[system]
+        title = escape(f"{system} isochron — 95 % error ellipses")
+        content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {CHART_NS} office:version="1.2">'
+                   "<office:automatic-styles>"
+                   '<style:style style:name="pa" style:family="chart"><style:chart-properties chart:lines="true" '
+                   'chart:symbol-type="none"/></style:style>'
+                   '<style:style style:name="ser" style:family="chart"><style:chart-properties chart:lines="true" '
+                   'chart:symbol-type="none"/><style:graphic-properties draw:stroke="solid" '
+                   'svg:stroke-color="#1f3a68" svg:stroke-width="0.03cm"/></style:style>'
+                   + "".join(_number_style(f"N{d}", "0." + "0" * d) +
+                             f'<style:style style:name="ax{d}" style:family="chart" style:data-style-name="N{d}">'
+                             '<style:chart-properties chart:display-label="true" chart:tick-marks-major-outer="true" '
+                             'chart:link-data-style-to-source="false"/></style:style>' for d in (2, 4)) +
+                   "</office:automatic-styles><office:body><office:chart>"
+                   f'<chart:chart svg:width="16cm" svg:height="8.6cm" chart:class="chart:scatter">'
+                   f"<chart:title><text:p>{title}</text:p></chart:title>"
+                   f'<chart:plot-area chart:style-name="pa" table:cell-range-address="{" ".join(ranges)}" '
+                   'chart:data-source-has-labels="none">'
+                   f'<chart:axis chart:dimension="x" chart:name="primary-x" chart:style-name="ax2">'
+                   f"<chart:title><text:p>{xl}</text:p>"
+                   "</chart:title></chart:axis>"
+                   f'<chart:axis chart:dimension="y" chart:name="primary-y" chart:style-name="ax4">'
+                   f"<chart:title><text:p>{yl}</text:p>"
+                   "</chart:title><chart:grid chart:class=\"major\"/></chart:axis>"
+                   f"{''.join(series)}</chart:plot-area></chart:chart></office:chart></office:body>"
+                   "</office:document-content>")
+        name = f"Object {k + 1}"
+        frame = (f'<draw:frame draw:z-index="{k}" draw:name={quoteattr(f"{system} isochron chart")} '
+                 'svg:width="16cm" svg:height="8.6cm" svg:x="0cm" svg:y="0cm"><draw:object '
+                 f'draw:notify-on-update-of-ranges="{" ".join(ranges)}" xlink:href="./{name}" xlink:type="simple" '
+                 'xlink:show="embed" xlink:actuate="onLoad"/></draw:frame>')
+        out.append((name, content, frame, (row0, ISOCHRON_SUMMARY_COL)))
+    return out
+
+
 def _table_xml(name: str, cells: Mapping[Tuple[int, int], CellSpec], styles: _Styles, values_only: bool,
-               protect: bool) -> str:
-    n_rows = max((r for r, _c in cells), default=0)
-    n_cols = max((c for _r, c in cells), default=0) + 1
+               protect: bool, anchored: Optional[Mapping[Tuple[int, int], str]] = None) -> str:
+    """One sheet; ``anchored`` maps a cell to the draw:frame xml anchored in it."""
+    anchored = anchored or {}
+    n_rows = max([r for r, _c in cells] + [r for r, _c in anchored], default=0)
+    n_cols = max([c for _r, c in cells] + [c for _r, c in anchored], default=0) + 1
     prot = ' table:protected="true"' if protect else ""
     out = [f"<table:table table:name={quoteattr(name)} table:style-name=\"ta1\"{prot}>"]
     widths = WIDTHS.get(name, {})
@@ -131,6 +221,11 @@ def _table_xml(name: str, cells: Mapping[Tuple[int, int], CellSpec], styles: _St
                    f'table:default-cell-style-name="Default"/>')
     for r in range(1, n_rows + 1):
         row = [_cell_xml(cells.get((r, c)), name, styles, values_only) for c in range(n_cols)]
+        for (ar, ac), frame in anchored.items():
+            if ar == r:
+                x = row[ac]
+                row[ac] = (x[:-2] + ">" + frame + "</table:table-cell>" if x.endswith("/>") else
+                           x.replace(">", ">" + frame, 1))
         out.append("<table:table-row>" + "".join(row) + "</table:table-row>")
     out.append("</table:table>")
     return "".join(out)
@@ -151,9 +246,11 @@ def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: boo
     styles = _Styles()
     names = [s for s in SHEET_ORDER if s in lay] + [s for s in lay if s not in SHEET_ORDER]
     tables: List[str] = []
+    charts = _isochron_charts() if "Isochron" in lay and not values_only else []
     for name in names:
         tables.append(_table_xml(name, lay[name], styles, values_only,
-                                 protect and not values_only and name != SHEET_ORDER[0]))
+                                 protect and not values_only and name != SHEET_ORDER[0],
+                                 anchored={a: f for _n, _c, f, a in charts} if name == "Isochron" else None))
     for name, rows in (extra_sheets or {}).items():
         tables.append(_table_xml(name, _rows_as_cells(rows), styles, True, False))
     content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {NS} office:version="1.2">'
@@ -170,12 +267,18 @@ def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: boo
                 'manifest:media-type="application/vnd.oasis.opendocument.spreadsheet"/>'
                 '<manifest:file-entry manifest:full-path="content.xml" manifest:media-type="text/xml"/>'
                 '<manifest:file-entry manifest:full-path="styles.xml" manifest:media-type="text/xml"/>'
-                "</manifest:manifest>")
+                + "".join(f'<manifest:file-entry manifest:full-path="{n}/" manifest:version="1.2" '
+                          'manifest:media-type="application/vnd.oasis.opendocument.chart"/>'
+                          f'<manifest:file-entry manifest:full-path="{n}/content.xml" manifest:media-type="text/xml"/>'
+                          for n, _c, _f, _a in charts)
+                + "</manifest:manifest>")
     with zipfile.ZipFile(str(path), "w") as z:
         z.writestr(zipfile.ZipInfo("mimetype"), "application/vnd.oasis.opendocument.spreadsheet",
                    compress_type=zipfile.ZIP_STORED)
         z.writestr("content.xml", content, compress_type=zipfile.ZIP_DEFLATED)
         z.writestr("styles.xml", styles_xml, compress_type=zipfile.ZIP_DEFLATED)
+        for n, c, _f, _a in charts:
+            z.writestr(f"{n}/content.xml", c, compress_type=zipfile.ZIP_DEFLATED)
         z.writestr("META-INF/manifest.xml", manifest, compress_type=zipfile.ZIP_DEFLATED)
 
 

@@ -426,3 +426,39 @@ def test_rows_from_two_spikes_have_no_common_scale(demo_grid):
     tot = ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age_2s_total"], col)]
     assert isinstance(tot, str) and tot.startswith("n/a: the rows use 2 spikes")
     assert isinstance(ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age_2s_lambda"], col)], float)
+
+
+def test_ods_isochron_sheet_embeds_one_scatter_chart_per_system_reading_the_ellipse_cells(tmp_path):
+    """ODF 1.2 embedded chart objects (chart:scatter) whose series are the ellipse cells of each system."""
+    import xml.etree.ElementTree as ET
+    import zipfile
+
+    from reduction.workbook import ELLIPSE_POINTS, ISOCHRON_SYSTEMS, selection_rows
+
+    write_ods(demo.demo_layout(), tmp_path / "d.ods")
+    ns = {"chart": "urn:oasis:names:tc:opendocument:xmlns:chart:1.0",
+          "table": "urn:oasis:names:tc:opendocument:xmlns:table:1.0",
+          "draw": "urn:oasis:names:tc:opendocument:xmlns:drawing:1.0",
+          "xlink": "http://www.w3.org/1999/xlink",
+          "manifest": "urn:oasis:names:tc:opendocument:xmlns:manifest:1.0"}
+    with zipfile.ZipFile(tmp_path / "d.ods") as z:
+        content = ET.fromstring(z.read("content.xml"))
+        manifest = ET.fromstring(z.read("META-INF/manifest.xml"))
+        charts = {n: ET.fromstring(z.read(f"{n}/content.xml")) for n in ("Object 1", "Object 2")}
+    media = {e.get(f"{{{ns['manifest']}}}full-path"): e.get(f"{{{ns['manifest']}}}media-type")
+             for e in manifest}
+    assert media["Object 1/"] == media["Object 2/"] == "application/vnd.oasis.opendocument.chart"
+    iso = next(t for t in content.iter(f"{{{ns['table']}}}table") if t.get(f"{{{ns['table']}}}name") == "Isochron")
+    hrefs = [o.get(f"{{{ns['xlink']}}}href") for o in iso.iter(f"{{{ns['draw']}}}object")]
+    assert hrefs == ["./Object 1", "./Object 2"]
+    tops = {srow: left for (_t, left), (_f, srow) in ellipse_formulas().items()}
+    last = FIRST_ROW + ELLIPSE_POINTS
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        root = charts[f"Object {k + 1}"]
+        assert root.find(".//chart:chart", ns).get(f"{{{ns['chart']}}}class") == "chart:scatter"
+        got = [(s.find("chart:domain", ns).get(f"{{{ns['table']}}}cell-range-address"),
+                s.get(f"{{{ns['chart']}}}values-cell-range-address")) for s in root.iterfind(".//chart:series", ns)]
+        want = [(f"Isochron.{col_letter(tops[r])}{FIRST_ROW}:Isochron.{col_letter(tops[r])}{last}",
+                 f"Isochron.{col_letter(tops[r] + 1)}{FIRST_ROW}:Isochron.{col_letter(tops[r] + 1)}{last}")
+                for s_name, r in selection_rows() if s_name == system]
+        assert got == want
