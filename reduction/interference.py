@@ -108,7 +108,8 @@ def _beam(name: str, x: Any) -> np.ndarray:
         a = np.asarray(x, dtype=float)  # read only; results are new arrays
     except (TypeError, ValueError):
         raise InputError(name, "could not be read as numbers") from None
-    if np.any(np.isinf(a)):
+    # one pass in the usual case: a finite sum means no inf (NaN = missing cycle is allowed)
+    if not np.isfinite(a.sum()) and np.any(np.isinf(a)):
         raise InputError(name, "contains inf")
     return a
 
@@ -148,7 +149,7 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
     """
     t = _beam("total", total)
     m = _beam("monitor", monitor)
-    if np.any(m < 0):
+    if m.size and m.min() < 0:  # NaN (missing cycle) compares False, as in np.any(m < 0)
         raise InputError("monitor", "beam intensities must be >= 0")
     r_true = interferent_ratio(interferent, monitor_isotope) if true_ratio is None else float(true_ratio)
     if not r_true > 0:
@@ -158,7 +159,8 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
     corr = m * r_meas
     out = t - corr
     with np.errstate(invalid="ignore"):
-        bad = out <= 0
+        # one pass when every cycle is fine; a NaN minimum (missing cycle) takes the element test
+        bad = out <= 0 if not (out.size and out.min() > 0) else False
     if np.any(bad):
         i = int(np.flatnonzero(np.ravel(bad))[0])
         raise UndefinedResultError(

@@ -182,6 +182,11 @@ def bias_apply(true: Any, mass_num: Any, mass_den: Any, factor: Any, law: str = 
     return _out(r / _gain(mi, mj, _finite("factor", factor), law))
 
 
+def _true_norm(norm_ratio: str, true_norm: Optional[float]) -> float:
+    """The conventional value of a named normalising ratio unless the caller gives one."""
+    return normalising_ratio(norm_ratio).value if true_norm is None else true_norm
+
+
 def bias_factor_from(measured_norm: Any, norm_ratio: str = "146Nd/144Nd", *, true_norm: Optional[float] = None,
                      law: str = "exponential") -> Any:
     """Bias factor from a named normalising ratio (true value from ``reduction/data/normalising.json``).
@@ -192,8 +197,7 @@ def bias_factor_from(measured_norm: Any, norm_ratio: str = "146Nd/144Nd", *, tru
     0.0
     """
     mk, ml = ratio_masses(norm_ratio)
-    rt = normalising_ratio(norm_ratio).value if true_norm is None else true_norm
-    return bias_factor(measured_norm, rt, mk, ml, law)
+    return bias_factor(measured_norm, _true_norm(norm_ratio, true_norm), mk, ml, law)
 
 
 def correct_named(measured: Any, ratio: str, factor: Any, law: str = "exponential") -> Any:
@@ -225,5 +229,22 @@ def normalise(measured: Any, ratio: str, measured_norm: Any, norm_ratio: str, *,
     >>> round(normalise(0.511500, "143Nd/144Nd", 0.7219, "146Nd/144Nd"), 9)
     0.5115
     """
-    f = bias_factor_from(measured_norm, norm_ratio, true_norm=true_norm, law=law)
-    return correct_named(measured, ratio, f, law)
+    if _law(law) != "exponential":
+        f = bias_factor_from(measured_norm, norm_ratio, true_norm=true_norm, law=law)
+        return correct_named(measured, ratio, f, law)
+    # Exponential law in one pass chain: (m_i/m_j)^β with β = ln(q)/ln(m_k/m_l), q = true/measured
+    # normalising ratio, is exp(ln(q)·c) with c = ln(m_i/m_j)/ln(m_k/m_l) — the same law as
+    # bias_factor_from + correct_named, computed in place (no β array, no second check of it).
+    rm = _positive("measured_norm", measured_norm)
+    rt = _positive("true_norm", _true_norm(norm_ratio, true_norm))
+    r = _positive("measured", measured)
+    mk, ml = _check_masses(*ratio_masses(norm_ratio))
+    mi, mj = _check_masses(*ratio_masses(ratio))
+    c = float(np.log(mi / mj) / np.log(mk / ml))
+    g = np.divide(rt, rm)
+    if g.ndim == 0:
+        return _out(r * np.exp(np.log(g) * c))
+    np.log(g, out=g)
+    np.multiply(g, c, out=g)
+    np.exp(g, out=g)
+    return _out(np.multiply(r, g, out=g) if g.shape == np.broadcast(r, g).shape else r * g)
