@@ -237,15 +237,6 @@ def _used_data(sheet: Any) -> Tuple[Tuple[Any, ...], ...]:
     return sheet.getCellRangeByPosition(0, 0, addr.EndColumn, addr.EndRow).getDataArray()
 
 
-def _col_name(c: int) -> str:
-    s = ""
-    c += 1
-    while c:
-        c, r = divmod(c - 1, 26)
-        s = chr(65 + r) + s
-    return s
-
-
 def write_collaborator_copy(ctx: Any, doc: Any, target_url: str) -> Dict[str, Any]:
     """Write a values-only copy of ``doc`` plus a Provenance sheet to ``target_url``; ``doc`` is only read.
 
