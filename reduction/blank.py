@@ -104,16 +104,18 @@ def blank_correct(total_umol: Any, total_ratio: Any, blank_umol: Any, blank_rati
 
 
 def blank_umol(blank_ng: Any, element: str, reference_isotope: str,
-               ratios: Optional[Mapping[str, Any]] = None) -> Any:
+               ratios: Optional[Mapping[str, Any]] = None, natural: Any = None) -> Any:
     """µmol of ``reference_isotope`` in a blank of ``blank_ng`` nanograms of element.
 
-    The blank's composition is natural (CIAAW) unless ``ratios`` (i/reference) are given; its atomic
-    weight follows from that composition and AME2020 masses.
+    The blank's composition is natural — ``natural`` (a
+    :class:`reduction.composition.NaturalComposition`), by default the convention of
+    :func:`reduction.composition.natural_composition` — with ``ratios`` (i/reference) laid over it;
+    its atomic weight follows from that composition and AME2020 masses.
     """
     from .dilution import element_isotopes, sample_composition
 
     b = _arr("blank_ng", blank_ng, False)
-    comp = sample_composition(element, reference_isotope, ratios)
+    comp = sample_composition(element, reference_isotope, ratios, natural)
     isos = element_isotopes(element)
     mass_per_ref = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) * isotope_mass(i).value for i in isos)
     return _o(b * 1e-3 / mass_per_ref)

@@ -15,17 +15,18 @@ iterative spike stripping, blank subtraction by mass balance, then the session f
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Dict, List, Mapping, Optional, Sequence, Tuple, Union
 
 import numpy as np
 
 from .blank import blank_umol
+from .composition import NaturalComposition, natural_composition
 from .constants import isotope_mass
 from .cycles import CycleStats, cycle_stats
 from .dilution import Spike, element_isotopes, isotope_dilution, sample_composition
 from .errors import InputError, UndefinedResultError
-from .interference import strip_beams
+from .interference import INTERFERENCES, strip_beams
 from .massbias import bias_correct, bias_factor_from
 from .propagate import monte_carlo, propagate_linear, rho
 from .standards import StandardFactor
@@ -51,6 +52,9 @@ class CycleReduction:
     bias_factor_mean : float or ndarray or None
         Mean per-cycle bias factor of the analyte (with ``norm_ratio``).
     stats : dict of str to CycleStats
+    interferent_bias : dict of str to str
+        How each interfering element's mass bias was set, in words (e.g. ``"Rb: the analyte's
+        per-cycle β (default)"``).
     """
 
     ratios: Dict[str, Any]
@@ -60,6 +64,7 @@ class CycleReduction:
     correction_rel_mean: Dict[str, Any]
     bias_factor_mean: Any
     stats: Dict[str, CycleStats]
+    interferent_bias: Dict[str, str] = field(default_factory=dict)
 
 
 def _split(r: str) -> Tuple[str, str]:
@@ -73,7 +78,8 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
                   norm_ratio: Optional[str] = None, norm_true: Optional[float] = None, law: str = "exponential",
                   bias_factors: Optional[Mapping[str, Union[float, str]]] = None,
                   reject_k: Optional[float] = 2.0, max_bias_iter: int = 20,
-                  interferent_ratios: Optional[Mapping[str, float]] = None) -> CycleReduction:
+                  interferent_ratios: Optional[Mapping[str, float]] = None,
+                  analyte_bias_factor: Optional[float] = None) -> CycleReduction:
     """Strip isobars cycle by cycle, form ratios, normalise per cycle (optional), then average.
 
     Parameters
@@ -91,8 +97,9 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
         Bias factor of each interfering element (``"Sm"``, ``"Yb"``, ``"Lu"``, ``"Rb"``): a number, or the
         string ``"analyte"`` to use the analyte's own per-cycle factor (needs ``norm_ratio``; solved by
         fixed-point iteration because the stripped beam enters the normalising ratio).
-        An interfering element not listed is stripped with β = 0 (see
-        :func:`reduction.interference.strip_beams`).
+        **An interfering element not listed takes the analyte's β** (common practice): its per-cycle
+        factor with ``norm_ratio``, else ``analyte_bias_factor``; with neither it is stripped
+        unfractionated (β = 0). ``interferent_bias`` of the result says which was used.
     reject_k : float or None
         Outlier threshold for :func:`reduction.cycles.cycle_stats`.
     interferent_ratios : mapping of str to float, optional
@@ -102,6 +109,9 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
         mixture's bias-corrected ratio from the parent-element run of the same aliquot (e.g.
         144Sm/147Sm, 148Sm/147Sm, 150Sm/147Sm of a 149Sm-spiked mixture; 176Lu/175Lu with a 176Lu
         spike; 87Rb/85Rb with an 87Rb spike). The natural ratio can be wrong ~100-fold there.
+    analyte_bias_factor : float, optional
+        The analyte's β from elsewhere (e.g. the spike-stripping iteration of a spiked run), used for
+        interfering elements not in ``bias_factors`` when there is no ``norm_ratio``.
 
     Returns
     -------
@@ -111,6 +121,18 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
     if not ratios:
         raise InputError("ratios", "name at least one ratio")
     factors = dict(bias_factors or {})
+    how: Dict[str, str] = {}
+    for el in sorted({_split(f"{i}/{m}")[0].lstrip("0123456789") for _t, i, m in INTERFERENCES[sysm.key]}):
+        if el in factors:
+            how[el] = ("the analyte's per-cycle β" if isinstance(factors[el], str) else "β given by the caller")
+        elif norm_ratio is not None:
+            factors[el] = "analyte"
+            how[el] = "the analyte's per-cycle β (default, common practice)"
+        elif analyte_bias_factor is not None:
+            factors[el] = _finite_number("analyte_bias_factor", analyte_bias_factor)
+            how[el] = "the analyte's β given as analyte_bias_factor (default, common practice)"
+        else:
+            how[el] = "β = 0: no analyte β known (no norm_ratio, no analyte_bias_factor)"
     use_analyte = [el for el, v in factors.items() if isinstance(v, str)]
     for el in use_analyte:
         if factors[el] != "analyte":
@@ -166,7 +188,7 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
     if beta is not None:
         bb = np.where(missing, np.nan, beta) if np.ndim(beta) else beta
         bmean = float(np.nanmean(bb)) if np.ndim(bb) <= 1 else np.nanmean(bb, axis=-1)
-    return CycleReduction(out_r, out_s, nk, nr, dict(strip.correction_rel_mean), bmean, st)
+    return CycleReduction(out_r, out_s, nk, nr, dict(strip.correction_rel_mean), bmean, st, how)
 
 
 # ------------------------------------------------------------------------------ spiked analysis
@@ -208,6 +230,10 @@ class AnalysisResult:
     mc_sigma_1s : dict or None
         Monte Carlo σ per output (when ``mc_draws`` > 0).
     mc_rho : float or None
+    zero_sigma : tuple of str
+        Inputs that entered with σ = 0 although they normally carry one (weighings, blanks in use,
+        an external β, spike concentrations, external reproducibilities): their uncertainty is missing
+        from every σ above.
     """
 
     system: str
@@ -242,6 +268,7 @@ class AnalysisResult:
     parent_bias_factor: float
     mc_sigma_1s: Optional[Dict[str, float]]
     mc_rho: Optional[float]
+    zero_sigma: Tuple[str, ...] = ()
 
 
 def _num(name: str, v: Any, positive: bool = True) -> float:
@@ -251,6 +278,35 @@ def _num(name: str, v: Any, positive: bool = True) -> float:
         raise InputError(name, f"must be a number, got {v!r}") from None
     if not np.isfinite(x) or (x <= 0 if positive else x < 0):
         raise InputError(name, f"must be {'> 0' if positive else '>= 0'}, got {x!r}")
+    return x
+
+
+def _naturals(natural: Optional[Mapping[str, NaturalComposition]], elements: Sequence[str]
+              ) -> Dict[str, NaturalComposition]:
+    given = dict(natural or {})
+    out = {}
+    for el in elements:
+        c = given.get(el)
+        if c is None:
+            c = natural_composition(el)
+        elif not isinstance(c, NaturalComposition) or c.element != el:
+            raise InputError("natural", f"[{el!r}] must be the NaturalComposition of {el} "
+                             "(see reduction.composition.natural_composition)")
+        out[el] = c
+    return out
+
+
+_SIGMA_EXPECTED = ("sample_mass_g", "spike_mass_g", "parent_bias_factor", "parent_spike_conc", "daughter_spike_conc",
+                   "parent_ratio_reproducibility", "daughter_ratio_reproducibility")
+
+
+def _finite_number(name: str, v: Any) -> float:
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        raise InputError(name, f"must be a number, got {v!r}") from None
+    if not np.isfinite(x):
+        raise InputError(name, f"must be finite, got {x!r}")
     return x
 
 
@@ -284,7 +340,12 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
                            parent_blank_ng: float = 0.0, parent_blank_sigma_ng: float = 0.0,
                            daughter_blank_ng: float = 0.0, daughter_blank_sigma_ng: float = 0.0,
                            standard: Optional[StandardFactor] = None, spike_rho: float = 0.0,
-                           mc_draws: int = 0, seed: int = 12345) -> AnalysisResult:
+                           mc_draws: int = 0, seed: int = 12345,
+                           natural: Optional[Mapping[str, NaturalComposition]] = None,
+                           daughter_blank_ratio: Optional[float] = None,
+                           daughter_blank_ratio_sigma_1s: float = 0.0,
+                           parent_ratio_reproducibility_rel_1s: float = 0.0,
+                           daughter_ratio_reproducibility_rel_1s: Optional[float] = None) -> AnalysisResult:
     """Reduce one spiked analysis (mixed spike, one weighing) to the inputs of the isochron fit.
 
     Parameters
@@ -321,6 +382,18 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         Correlation of the two spike concentrations (a mixed spike calibrated as one solution).
     mc_draws : int
         > 0: also propagate by seeded Monte Carlo with that many draws.
+    natural : mapping of str to NaturalComposition, optional
+        Natural composition per element (``"Sm"``, ``"Nd"``, ...) used by isotope dilution and by the
+        blank; default :func:`reduction.composition.natural_composition` (CIAAW, exponential-law
+        fractionated to the element's normalising ratio).
+    daughter_blank_ratio, daughter_blank_ratio_sigma_1s : float, optional
+        The blank's daughter ratio (e.g. its 143Nd/144Nd) ± 1σ; default natural (σ 0).
+    parent_ratio_reproducibility_rel_1s : float
+        External reproducibility of the parent/daughter ratio (relative 1σ, e.g. from replicate
+        analyses of a reference material), random, multiplies the P/D ratio.
+    daughter_ratio_reproducibility_rel_1s : float, optional
+        External reproducibility of the daughter ratio (relative 1σ). Default: the session's
+        primary-standard scatter (``standard.reproducibility_rel_1s``), or 0 without a standard.
 
     Returns
     -------
@@ -329,9 +402,11 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
     Notes
     -----
     Propagation: linear (GUM, JCGM 100:2008) with a central-difference Jacobian of the whole chain;
-    random = mixture ratios, weighings, blanks, unspiked ratios, standard session mean and
-    reproducibility; systematic = spike concentrations and the standard's accepted value. The spike's
-    isotopic composition is taken as exact. The decay constant enters only at the isochron stage.
+    random = mixture ratios, weighings, blanks (amount and composition), unspiked ratios, external β,
+    standard session mean and the external reproducibilities; systematic = spike concentrations and
+    the standard's accepted value. The spike's isotopic composition is taken as exact. The decay
+    constant enters only at the isochron stage. ``zero_sigma`` of the result lists the inputs that
+    entered with σ = 0 although they normally carry an uncertainty.
     """
     sysm = get_system(system)
     if not isinstance(parent_spike, Spike) or not isinstance(daughter_spike, Spike):
@@ -406,36 +481,52 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         if not np.isfinite(pbf):
             raise InputError("parent_bias_factor", "must be finite")
         i_pbf = add("parent_bias_factor", pbf, parent_bias_sigma_1s)
+    nat = _naturals(natural, (sysm.parent_element, sysm.daughter_element))
+    d_rep = (standard.reproducibility_rel_1s if standard is not None else 0.0) \
+        if daughter_ratio_reproducibility_rel_1s is None \
+        else _num("daughter_ratio_reproducibility_rel_1s", daughter_ratio_reproducibility_rel_1s, False)
+    i_prep = add("parent_ratio_reproducibility", 1.0,
+                 _num("parent_ratio_reproducibility_rel_1s", parent_ratio_reproducibility_rel_1s, False))
+    i_drep = add("daughter_ratio_reproducibility", 1.0, d_rep)
+    d_blank_comp = sample_composition(sysm.daughter_element, d_ref, natural=nat[sysm.daughter_element])
+    rb0 = d_blank_comp[sysm.daughter_ratio] if daughter_blank_ratio is None \
+        else _num("daughter_blank_ratio", daughter_blank_ratio)
+    i_dbr = add("daughter_blank_ratio", rb0, daughter_blank_ratio_sigma_1s)
     if standard is not None:
         i_fr = add("standard_factor", standard.factor, standard.factor_sigma_1s_random)
-        i_rep = add("standard_reproducibility", 1.0, standard.reproducibility_rel_1s)
         i_fs = add("standard_accepted", 1.0, standard.factor_sigma_1s_systematic / standard.factor, "systematic")
     x0 = np.array(vals)
     cov = np.diag(np.array(sig) ** 2)
     cov[i_pc, i_dc] = cov[i_dc, i_pc] = rho_sp * sig[i_pc] * sig[i_dc]
 
     p_iso = sysm.parent
-    blank_p_per_ng = blank_umol(1.0, sysm.parent_element, p_ref)        # µmol of p_ref per ng of blank
-    blank_d_per_ng = blank_umol(1.0, sysm.daughter_element, d_ref)
-    p_blank_comp = sample_composition(sysm.parent_element, p_ref)
-    d_blank_comp = sample_composition(sysm.daughter_element, d_ref)
+    p_nat, d_nat = nat[sysm.parent_element], nat[sysm.daughter_element]
+    blank_p_per_ng = blank_umol(1.0, sysm.parent_element, p_ref, natural=p_nat)   # µmol of p_ref per ng of blank
+    p_blank_comp = sample_composition(sysm.parent_element, p_ref, natural=p_nat)
     d_isos = element_isotopes(sysm.daughter_element)
     p_isos = element_isotopes(sysm.parent_element)
-    d_mass_per_ref_blank = sum(d_blank_comp[f"{i}/{d_ref}"] * isotope_mass(i).value for i in d_isos)
     p_mass_per_ref_blank = sum(p_blank_comp[f"{i}/{p_ref}"] * isotope_mass(i).value for i in p_isos)
-    d_count_per_ref_blank = sum(d_blank_comp[f"{i}/{d_ref}"] for i in d_isos)
     p_count_per_ref_blank = sum(p_blank_comp[f"{i}/{p_ref}"] for i in p_isos)
+    d_other = {i: d_blank_comp[f"{i}/{d_ref}"] for i in d_isos if f"{i}/{d_ref}" != sysm.daughter_ratio}
+    m_daughter = isotope_mass(sysm.daughter).value
     info: Dict[str, Any] = {}
+
+    def d_blank(rb: Any) -> Tuple[Any, Any, Any]:
+        """(µmol of d_ref per ng, g per µmol of d_ref, atoms per atom of d_ref) of a blank with daughter ratio rb."""
+        count = sum(d_other.values()) + rb
+        mass = sum(v * isotope_mass(i).value for i, v in d_other.items()) + rb * m_daughter
+        return 1e-3 / mass, mass, count
 
     def model(X: np.ndarray) -> np.ndarray:
         X = np.asarray(X, dtype=float)
         w_s, w_t = X[i_ws], X[i_wt]
         pdil = isotope_dilution({k: X[i] for k, i in i_pm.items()}, parent_spike, w_s, w_t,
                                 reference_isotope=p_ref, norm_ratio=parent_norm_ratio,
-                                bias_factor=None if i_pbf is None else X[i_pbf], law=law)
+                                bias_factor=None if i_pbf is None else X[i_pbf], law=law, natural=p_nat)
         ddil = isotope_dilution({k: X[i] for k, i in i_dm.items()}, daughter_spike, w_s, w_t,
                                 reference_isotope=d_ref, norm_ratio=d_norm, law=law,
-                                sample_ratios={k: X[i] for k, i in i_du.items()} or None)
+                                sample_ratios={k: X[i] for k, i in i_du.items()} or None, natural=d_nat)
+        blank_d_per_ng, d_mass_per_ref_blank, d_count_per_ref_blank = d_blank(X[i_dbr])
         cp = X[i_pc] / parent_spike.concentration_umol_g
         cd = X[i_dc] / daughter_spike.concentration_umol_g
         # measured totals (sample + blank), µmol per g of sample
@@ -450,9 +541,10 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         if i_du:
             r_d = rd_tot  # separate unspiked aliquot: its own ratio
         else:
-            r_d = (d_ref_tot * rd_tot - d_ref_b * d_blank_comp[sysm.daughter_ratio]) / n_dref
+            r_d = (d_ref_tot * rd_tot - d_ref_b * X[i_dbr]) / n_dref
+        r_d = r_d * X[i_drep]
         if standard is not None:
-            r_d = r_d * X[i_fr] * X[i_rep] * X[i_fs]
+            r_d = r_d * X[i_fr] * X[i_fs]
         c_p = p_ref_tot * np.asarray(pdil.conc_ug_g) / np.asarray(pdil.ref_umol_g) \
             - p_ref_b * p_mass_per_ref_blank
         c_d = d_ref_tot * np.asarray(ddil.conc_ug_g) / np.asarray(ddil.ref_umol_g) \
@@ -463,7 +555,7 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
                         - p_ref_b * p_count_per_ref_blank,
                         cd_umol=d_ref_tot * np.asarray(ddil.conc_umol_g) / np.asarray(ddil.ref_umol_g)
                         - d_ref_b * d_count_per_ref_blank)
-        return np.array([n_p / n_dref, r_d, c_p, c_d])
+        return np.array([n_p / n_dref * X[i_prep], r_d, c_p, c_d])
 
     y0 = model(x0)
     if np.any(y0 <= 0):
@@ -494,5 +586,7 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         float(rr[0, 1]), cov_y, cr, cs, OUTPUTS, tuple(names),
         float(pdil.magnification), float(ddil.magnification), poor, float(info["p_share"]),
         float(info["d_share"]), int(ddil.iterations), float(ddil.bias_factor), float(pdil.bias_factor),
-        mc_s, mc_r)
+        mc_s, mc_r, tuple(n for n, v, sg in zip(names, vals, sig) if sg == 0 and (
+            n in _SIGMA_EXPECTED or (n.endswith("_blank_ng") and v > 0)
+            or n.startswith(("parent_mix", "daughter_mix")))))
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field, replace
-from functools import cache
+from functools import lru_cache
 from pathlib import Path
 from typing import Any, Dict, List, Mapping, Optional, Tuple, Union
 
@@ -56,7 +56,7 @@ class RefValue:
         return self.sigma_1s / self.value if self.value else float("inf")
 
 
-@cache
+@lru_cache(maxsize=256)
 def _load(name: str) -> Dict[str, Any]:
     with open(_DATA / f"{name}.json", encoding="utf-8") as fh:
         return json.load(fh)
@@ -175,7 +175,7 @@ def reference_set(name: Optional[str] = None, overrides: Optional[Mapping[str, O
     return base.with_overrides(overrides) if overrides else base
 
 
-@cache
+@lru_cache(maxsize=256)
 def _reference_set_cached(name: str) -> ReferenceSet:
     sets = _load("sets")["sets"]
     if name not in sets:
@@ -216,12 +216,24 @@ def isotope_fraction(iso: str) -> RefValue:
 
 
 def natural_ratio(ratio: str) -> RefValue:
-    """Natural atom ratio such as ``"147Sm/144Sm"`` from the CIAAW fractions (uncorrelated σ)."""
+    """Natural atom ratio such as ``"147Sm/144Sm"`` under RatioDesk's composition convention.
+
+    The value is that of :func:`reduction.composition.natural_composition` (CIAAW representative
+    composition, exponential-law fractionated to the element's normalising ratio); σ is from the
+    CIAAW fractions' uncertainties, treated as uncorrelated.
+    """
+    from .composition import natural_composition
+
     num, _, den = ratio.partition("/")
     a, b = isotope_fraction(num), isotope_fraction(den)
-    v = a.value / b.value
+    el = num.strip().lstrip("0123456789")
+    if el != den.strip().lstrip("0123456789"):
+        raise InputError("ratio", f"{ratio!r} is not a ratio of two isotopes of one element")
+    comp = natural_composition(el)
+    v = comp.ratio(num.strip(), den.strip())
     s = v * ((a.sigma_1s / a.value) ** 2 + (b.sigma_1s / b.value) ** 2) ** 0.5
-    return RefValue(ratio, v, s, "mol/mol", _CIAAW + " (ratio computed)", "fractions treated as uncorrelated", "C")
+    return RefValue(ratio, v, s, "mol/mol", comp.source, "σ from the CIAAW fractions, treated as uncorrelated",
+                    "C")
 
 
 def atomic_weight(element: str) -> RefValue:

@@ -30,7 +30,8 @@ from typing import Any, Dict, Mapping, Optional, Sequence, Tuple
 import numpy as np
 
 from . import constants
-from .constants import isotope_fraction, isotope_mass, normalising_ratio
+from .composition import NaturalComposition, natural_composition
+from .constants import isotope_mass, normalising_ratio
 from .errors import ConvergenceError, InputError, UndefinedResultError
 from .massbias import _checked, bias_correct
 from .massbias import bias_factor as _bias_factor_of
@@ -80,8 +81,12 @@ def element_isotopes(element: str) -> Tuple[str, ...]:
 
 
 def sample_composition(element: str, reference_isotope: str,
-                       overrides: Optional[Mapping[str, Any]] = None) -> Dict[str, Any]:
-    """Ratios i/reference of every isotope of a natural element (CIAAW), with optional overrides.
+                       overrides: Optional[Mapping[str, Any]] = None,
+                       natural: Optional[NaturalComposition] = None) -> Dict[str, Any]:
+    """Ratios i/reference of every isotope of a natural element, with optional overrides.
+
+    The natural composition is :func:`reduction.composition.natural_composition` (CIAAW,
+    exponential-law fractionated to the element's normalising ratio) unless ``natural`` is given.
 
     Parameters
     ----------
@@ -91,12 +96,14 @@ def sample_composition(element: str, reference_isotope: str,
         Denominator, e.g. ``"144Nd"``.
     overrides : mapping of str to float or array, optional
         Ratio name -> value, e.g. ``{"143Nd/144Nd": 0.5121, "146Nd/144Nd": 0.7219}``.
+    natural : NaturalComposition, optional
+        The element's natural composition (e.g. a lab's own, from the workbook).
     """
     isos = element_isotopes(element)
     if reference_isotope not in isos:
         raise InputError("reference_isotope", f"{reference_isotope!r} is not an isotope of {element}")
-    fr = isotope_fraction(reference_isotope).value
-    comp: Dict[str, Any] = {f"{i}/{reference_isotope}": isotope_fraction(i).value / fr for i in isos}
+    nat = _natural(element, natural)
+    comp: Dict[str, Any] = dict(nat.ratios_to(reference_isotope))
     for k, v in (overrides or {}).items():
         num, den = _split(k, "sample_ratios")
         if den != reference_isotope or f"{num}/{den}" not in comp:
@@ -104,6 +111,15 @@ def sample_composition(element: str, reference_isotope: str,
         a = _pos_array(f"sample_ratios[{k!r}]", v)
         comp[f"{num}/{den}"] = float(a) if a.ndim == 0 else a
     return comp
+
+
+def _natural(element: str, natural: Optional[NaturalComposition]) -> NaturalComposition:
+    if natural is None:
+        return natural_composition(element)
+    if not isinstance(natural, NaturalComposition) or natural.element != element:
+        raise InputError("natural", f"must be the NaturalComposition of {element} "
+                         "(see reduction.composition.natural_composition)")
+    return natural
 
 
 def _pos_array(name: str, x: Any) -> np.ndarray:
@@ -344,7 +360,7 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
                      reference_isotope: Optional[str] = None, norm_ratio: Optional[str] = None,
                      norm_true: Optional[float] = None, bias_factor: Any = None, law: str = "exponential",
                      sample_ratios: Optional[Mapping[str, Any]] = None, tol: float = 1e-13,
-                     max_iter: int = 100) -> Dilution:
+                     max_iter: int = 100, natural: Optional[NaturalComposition] = None) -> Dilution:
     """Concentration and unspiked composition of a sample from its spiked mixture.
 
     Parameters
@@ -369,10 +385,12 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
         Mass-bias law (:mod:`reduction.massbias`).
     sample_ratios : mapping, optional
         Known true sample ratios (e.g. 143Nd/144Nd from a separate unspiked aliquot); these are used and
-        not solved. Isotopes neither measured nor given are taken as natural (CIAAW).
+        not solved. Isotopes neither measured nor given are taken as natural (``natural``).
     tol : float, default 1e-13
         Convergence: stop when |R_norm,sample / R_norm,true − 1| < tol for every analysis.
     max_iter : int, default 100
+    natural : NaturalComposition, optional
+        Natural composition of the element (default: :func:`reduction.composition.natural_composition`).
 
     Returns
     -------
@@ -421,7 +439,7 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
         raise InputError("measured", f"needs the spike-isotope ratio {k_iso}/{ref}")
     if k_iso == ref:
         raise InputError("reference_isotope", "must not be the spike isotope")
-    comp = sample_composition(element, ref, sample_ratios)
+    comp = sample_composition(element, ref, sample_ratios, natural)
     n_iso = None
     if norm_ratio is not None:
         n_iso, n_den = _split(norm_ratio, "norm_ratio")
@@ -557,7 +575,8 @@ class SpikeCalibration:
 def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: Any, spike_mass_g: Any,
                     spike: Spike, *, ratio: str, standard_conc_sigma_1s: float = 0.0,
                     standard_mass_sigma_1s: float = 0.0, spike_mass_sigma_1s: float = 0.0,
-                    mix_ratio_sigma_1s: Any = 0.0, calibrated: str = "") -> SpikeCalibration:
+                    mix_ratio_sigma_1s: Any = 0.0, calibrated: str = "",
+                    natural: Optional[NaturalComposition] = None) -> SpikeCalibration:
     """Calibrate a spike's concentration by reverse ID against a gravimetric natural-composition solution.
 
     Parameters
@@ -567,7 +586,8 @@ def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: 
     standard_mass_g, spike_mass_g : array_like
         Masses of standard solution and spike solution in each mixture (g).
     standard_conc_umol_g : float
-        Element concentration of the gravimetric standard (µmol/g), natural (CIAAW) composition.
+        Element concentration of the gravimetric standard (µmol/g), of natural composition
+        (``natural``, default :func:`reduction.composition.natural_composition`).
     spike : Spike
         Spike composition (its concentration is ignored and replaced).
     ratio : str
@@ -589,7 +609,7 @@ def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: 
                   standard_mass_sigma_1s), ("spike_mass_sigma_1s", spike_mass_sigma_1s)):
         if not (np.isfinite(v) and v >= 0):
             raise InputError(nm, f"must be >= 0, got {v!r}")
-    comp = sample_composition(spike.element, ref)
+    comp = sample_composition(spike.element, ref, natural=natural)
     isos = element_isotopes(spike.element)
     n_ref_std = cstd * wstd / sum(comp[f"{i}/{ref}"] for i in isos)
     a_k, a_r = spike.abundance(k_iso), spike.abundance(ref)
@@ -621,7 +641,8 @@ def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: 
 def forward_mixture(element: str, reference_isotope: str, sample_conc_umol_g: Any, sample_mass_g: Any,
                     spike: Spike, spike_mass_g: Any, *, sample_ratios: Optional[Mapping[str, Any]] = None,
                     bias_factor: Any = 0.0, law: str = "exponential", blank_umol: Any = 0.0,
-                    blank_ratios: Optional[Mapping[str, Any]] = None) -> Dict[str, Any]:
+                    blank_ratios: Optional[Mapping[str, Any]] = None,
+                    natural: Optional[NaturalComposition] = None) -> Dict[str, Any]:
     """Forward model of a spiked mixture as it would be measured (for synthetic and demo data).
 
     Adds the moles of every isotope of sample (+ optional blank) and spike, forms the ratios to
@@ -632,7 +653,8 @@ def forward_mixture(element: str, reference_isotope: str, sample_conc_umol_g: An
     sample_conc_umol_g : array_like
         Element concentration of the sample (µmol/g).
     sample_ratios, blank_ratios : mapping, optional
-        Compositions as ratios to ``reference_isotope`` (unlisted isotopes natural, CIAAW).
+        Compositions as ratios to ``reference_isotope`` (unlisted isotopes natural: ``natural``, default
+        :func:`reduction.composition.natural_composition`).
     blank_umol : array_like
         µmol of element added by the procedural blank.
 
@@ -643,8 +665,8 @@ def forward_mixture(element: str, reference_isotope: str, sample_conc_umol_g: An
     """
     from .massbias import bias_apply
 
-    comp = sample_composition(element, reference_isotope, sample_ratios)
-    bcomp = sample_composition(element, reference_isotope, blank_ratios)
+    comp = sample_composition(element, reference_isotope, sample_ratios, natural)
+    bcomp = sample_composition(element, reference_isotope, blank_ratios, natural)
     isos = element_isotopes(element)
     tot_s = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) for i in isos)
     tot_b = sum(np.asarray(bcomp[f"{i}/{reference_isotope}"]) for i in isos)

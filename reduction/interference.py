@@ -37,7 +37,7 @@ from typing import Any, Dict, Mapping, Optional, Tuple, Union
 
 import numpy as np
 
-from .constants import isotope_mass, natural_ratio, normalising_ratio
+from .constants import isotope_mass
 from .errors import InputError, UndefinedResultError
 from .massbias import bias_apply
 from .systems import get_system
@@ -64,24 +64,24 @@ def _element(iso: str) -> str:
     return iso.lstrip("0123456789")
 
 
-def interferent_ratio(interferent: str, monitor: str) -> float:
+def interferent_ratio(interferent: str, monitor: str, natural: Any = None) -> float:
     """True ratio interferent/monitor of the interfering element.
 
-    Taken from ``reduction/data/normalising.json`` when listed there (directly or inverted), otherwise
-    computed from the CIAAW representative composition (:func:`reduction.constants.natural_ratio`).
+    From the element's natural composition — ``natural`` (a
+    :class:`reduction.composition.NaturalComposition`), by default the convention of
+    :func:`reduction.composition.natural_composition`, the same composition isotope dilution and
+    blank correction use.
     """
-    if _element(interferent) != _element(monitor):
+    from .composition import NaturalComposition, natural_composition
+
+    el = _element(interferent)
+    if el != _element(monitor):
         raise InputError("monitor", f"{monitor!r} is not an isotope of the interfering element of {interferent!r}")
-    name = f"{interferent}/{monitor}"
-    try:
-        return normalising_ratio(name).value
-    except InputError:
-        pass
-    try:
-        return 1.0 / normalising_ratio(f"{monitor}/{interferent}").value
-    except InputError:
-        pass
-    return natural_ratio(name).value
+    if natural is None:
+        natural = natural_composition(el)
+    elif not isinstance(natural, NaturalComposition) or natural.element != el:
+        raise InputError("natural", f"must be the NaturalComposition of {el}")
+    return natural.ratio(interferent, monitor)
 
 
 @dataclass(frozen=True)
