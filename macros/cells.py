@@ -911,6 +911,19 @@ def rdWorkbookAnalysis(quantity: Any, analysis: Any, samples: Any, measured: Any
 
 
 @cell_function()
+def rdWorkbookStandard(quantity: Any, session: Any, material: Any, ratio: Any, measured: Any, standards: Any,
+                       refValues: Any) -> Any:
+    vals = [_one(n, v) if type(v) is tuple else v for n, v in
+            (("session", session), ("material", material), ("ratio", ratio), ("measured", measured))]
+    for n, v in zip(("session", "material", "ratio", "measured"), vals):
+        if isinstance(v, str) and v.startswith(MARKER):
+            raise _passed_on(n, v)
+    ses, mat, rat, meas = ("" if v is None else v for v in vals)
+    return cell(engine("workbook").standard_value(text("quantity", quantity), ses, mat, rat, meas, standards,
+                                                  refValues))
+
+
+@cell_function()
 def rdWorkbookIsochron(quantity: Any, system: Any, treatment: Any, selection: Any, results: Any,
                        refValues: Any) -> Any:
     return cell(engine("workbook").isochron_value(text("quantity", quantity), _isotope_text("system", system),

@@ -334,6 +334,16 @@ FUNCTIONS: Tuple[Function, ...] = (
               _r("standards", "The Standards table from its key row down."),
               _r("refValues", "The Constants table (reference values) from its key row down.")),
              "workbook.analysis_value"),
+    Function("rdWorkbookStandard", "RD.WORKBOOK.STANDARD", "workbook",
+             "One computed cell of a Standards row of the RatioDesk template: the material's role in its "
+             "session, the session factor (from the primary only), the normalised value, and for a check "
+             "material its mean, accepted value, deviation (ppm, epsilon) and z-score.",
+             (_c("quantity", "role, factor, normalised, mean, accepted, dev_ppm, dev_eps or z."),
+              _c("session", "Session of the row."), _c("material", "Reference material of the row."),
+              _c("ratio", "Ratio of the row, e.g. 143Nd/144Nd."), _c("measured", "Measured value of the row."),
+              _r("standards", "The Standards table (input columns) from its key row down."),
+              _r("refValues", "The Constants table (reference values) from its key row down.")),
+             "workbook.standard_value"),
     Function("rdWorkbookIsochron", "RD.WORKBOOK.ISOCHRON", "workbook",
              "One quantity of the template's isochron of one system (the Isochron sheet's summary cells).",
              (_c("quantity", "Quantity, e.g. age, age_2s, initial, mswd, p, slope, message."),

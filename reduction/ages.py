@@ -32,7 +32,10 @@ from .systems import IsotopeSystem, get_system
 __all__ = [
     "Epsilon",
     "IsochronAge",
+    "MODEL_AGE_NEAR_RESERVOIR_REL",
+    "MODEL_AGE_SIGMA_REL_MAX",
     "ModelAge",
+    "SOLAR_SYSTEM_AGE_MA",
     "age_from_slope",
     "epsilon",
     "initial_ratio",
@@ -102,9 +105,28 @@ class Epsilon:
     reservoir_source: str
 
 
+#: Age of the solar system in Ma: the oldest solids, Pb–Pb age of CAIs 4567.30 ± 0.16 Ma (Connelly et al.
+#: 2012, Science 338, 651–655; value recalled from memory). A model age beyond it dates nothing.
+SOLAR_SYSTEM_AGE_MA = 4567.3
+
+#: A sample whose parent ratio lies within this fraction of the reservoir's, ``|P − P_res|/P_res``, gets a
+#: model-age flag (common practice, not a published limit: with ΔP small the sample's evolution line runs
+#: nearly parallel to the reservoir's and the age hangs on a small difference).
+MODEL_AGE_NEAR_RESERVOIR_REL = 0.1
+
+#: A model age whose 1σ exceeds this fraction of the age gets a flag (common practice).
+MODEL_AGE_SIGMA_REL_MAX = 0.5
+
+
 @dataclass(frozen=True)
 class ModelAge:
-    """Model age (T_CHUR, T_DM) in Ma with its 1σ from the sample's ratio errors."""
+    """Model age (T_CHUR, T_DM) in Ma with its 1σ from the sample's ratio errors.
+
+    ``flags`` are plain-language warnings, one sentence each, for an age that is computed but should
+    not be read at face value (empty when there is nothing to say); ``flag_codes`` holds one short
+    stable code per flag, in the same order: ``"older-than-solar-system"``,
+    ``"parent-ratio-near-reservoir"``, ``"large-relative-sigma"``. See :func:`model_age`.
+    """
 
     age_ma: float
     age_sigma_1s_ma: float
@@ -112,6 +134,8 @@ class ModelAge:
     reservoir_source: str
     system: str
     decay_constant: float
+    flags: Tuple[str, ...] = ()
+    flag_codes: Tuple[str, ...] = ()
 
 
 # --------------------------------------------------------------------------------------------
@@ -336,7 +360,40 @@ def model_age(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: flo
 
     Raises :class:`~reduction.errors.UndefinedResultError` when ``P = P_res``, when the sample's
     line never meets the reservoir's (``1 + ΔR/ΔP ≤ 0``), and when it meets it only in the future
-    (``ΔR/ΔP < 0``: R and P on opposite sides of the reservoir, a negative age).
+    (``ΔR/ΔP < 0``: R and P on opposite sides of the reservoir, a negative age). No negative age
+    is ever returned.
+
+    **Flags.** An age that is computed but meaningless or barely constrained is returned with
+    warnings in ``flags`` (codes in ``flag_codes``), never silently:
+
+    * ``older-than-solar-system`` — ``T >`` :data:`SOLAR_SYSTEM_AGE_MA` (4567.3 Ma, Connelly et al.
+      2012, Science 338, 651–655; recalled from memory): the sample cannot have separated from the
+      reservoir then; usually its parent/daughter ratio was changed after it left its source;
+    * ``parent-ratio-near-reservoir`` — ``|P − P_res|/P_res <`` :data:`MODEL_AGE_NEAR_RESERVOIR_REL`
+      (0.1; common practice): the sample's and the reservoir's evolution lines are nearly parallel,
+      so T is ill-defined and very sensitive to the ratios and to the choice of reservoir;
+    * ``large-relative-sigma`` — the propagated 1σ exceeds :data:`MODEL_AGE_SIGMA_REL_MAX` (50 %;
+      common practice) of T (only when the sample's errors are given, i.e. σ > 0).
+
+    Parameters
+    ----------
+    daughter_ratio, daughter_sigma_1s : float
+        Measured ¹⁴³Nd/¹⁴⁴Nd (¹⁷⁶Hf/¹⁷⁷Hf, ⁸⁷Sr/⁸⁶Sr) today and its 1σ absolute (≥ 0).
+    parent_ratio, parent_sigma_1s : float
+        ¹⁴⁷Sm/¹⁴⁴Nd (¹⁷⁶Lu/¹⁷⁷Hf, ⁸⁷Rb/⁸⁶Sr) today and its 1σ absolute (≥ 0).
+    system : str or IsotopeSystem
+        ``"sm-nd"``, ``"lu-hf"`` or ``"rb-sr"``.
+    reservoir : str, default "CHUR"
+        ``"CHUR"`` (``"UR"`` for Sr) or ``"DM"``.
+    ref : ReferenceSet, optional
+        Source of the decay constant and the reservoir; the default set when None.
+    rho : float, default 0
+        Error correlation of the daughter and parent ratios.
+
+    Returns
+    -------
+    ModelAge
+        Age and 1σ in Ma, the reservoir used, and the flags.
 
     Examples
     --------
@@ -363,9 +420,39 @@ def model_age(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: flo
             f"negative ('future') {kind} model age: the sample's {sysobj.daughter_ratio} {r:g} is {side} the "
             f"{kind} value {rr.value:g} while its {sysobj.parent_ratio} {p:g} is {pside} the {kind} value "
             f"{pr.value:g}, so its evolution line meets the {kind} line only in the future: no model age")
-    t = math.log1p(q) / lam
+    t = math.log1p(q) / lam + 0.0   # + 0.0: q = -0.0 (R equal to the reservoir's) gives 0, not -0
     d_r = 1.0 / (lam * (1.0 + q) * dp)
     d_p = -q / (lam * (1.0 + q) * dp)
     var = (d_r * sr) ** 2 + (d_p * sp) ** 2 + 2 * d_r * d_p * rho * sr * sp
-    return ModelAge(age_ma=t / _MA, age_sigma_1s_ma=math.sqrt(max(var, 0.0)) / _MA, reservoir=kind,
-                    reservoir_source=rr.source, system=sysobj.key, decay_constant=lam)
+    age_ma = t / _MA
+    sigma_ma = math.sqrt(max(var, 0.0)) / _MA
+    codes, flags = _model_age_flags(sysobj, kind, age_ma, sigma_ma, p, pr.value)
+    return ModelAge(age_ma=age_ma, age_sigma_1s_ma=sigma_ma, reservoir=kind,
+                    reservoir_source=rr.source, system=sysobj.key, decay_constant=lam,
+                    flags=flags, flag_codes=codes)
+
+
+def _model_age_flags(sysobj: IsotopeSystem, kind: str, age_ma: float, sigma_ma: float, p: float,
+                     p_res: float) -> Tuple[Tuple[str, ...], Tuple[str, ...]]:
+    """Codes and plain-language warnings of a model age (rules in :func:`model_age`)."""
+    out = []
+    name = f"T_{kind}"
+    if age_ma > SOLAR_SYSTEM_AGE_MA:
+        out.append(("older-than-solar-system",
+                    f"{name} = {age_ma:.0f} Ma is older than the solar system ({SOLAR_SYSTEM_AGE_MA:g} Ma): it dates "
+                    f"no real event; the sample's {sysobj.parent_ratio} was most likely changed after it left its "
+                    f"source (or the ratios are in error), so a single-stage model age does not apply"))
+    if p_res != 0:
+        rel = abs(p - p_res) / abs(p_res)
+        if rel < MODEL_AGE_NEAR_RESERVOIR_REL:
+            out.append(("parent-ratio-near-reservoir",
+                        f"the sample's {sysobj.parent_ratio} {p:g} is within {100 * rel:.3g} % of the {kind} value "
+                        f"{p_res:g} (flagged below {100 * MODEL_AGE_NEAR_RESERVOIR_REL:g} %): its evolution line "
+                        f"runs nearly parallel to the {kind} line, so {name} is ill-defined and swings widely with "
+                        f"small changes of the ratios or of the reservoir"))
+    if sigma_ma > 0 and sigma_ma > MODEL_AGE_SIGMA_REL_MAX * age_ma:
+        share = f"{100 * sigma_ma / age_ma:.3g} % of the age" if age_ma > 0 else "larger than the age itself (0 Ma)"
+        out.append(("large-relative-sigma",
+                    f"the 1 sigma of {name}, {sigma_ma:.4g} Ma, is {share} (flagged above "
+                    f"{100 * MODEL_AGE_SIGMA_REL_MAX:g} %): the age is barely constrained"))
+    return tuple(c for c, _ in out), tuple(f for _, f in out)

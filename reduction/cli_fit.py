@@ -20,7 +20,7 @@ import numpy as np
 from .ages import isochron_age
 from .constants import list_reference_sets, reference_set
 from .errors import InputError
-from .regression import TREATMENTS, IsochronFit, fit_isochron, weighted_mean
+from .regression import TREATMENTS, IsochronFit, fit_isochron, mswd_notes, mswd_position, weighted_mean
 from .systems import SYSTEMS, get_system
 
 __all__ = ["add_arguments_isochron", "add_arguments_wmean", "read_columns", "run_isochron", "run_wmean"]
@@ -168,7 +168,12 @@ def _fit_from_args(args: argparse.Namespace) -> Tuple[IsochronFit, IsochronFit, 
 
 
 def isochron_result(args: argparse.Namespace) -> Dict[str, Any]:
-    """The JSON object of ``ratiodesk isochron`` (also used for the table)."""
+    """The JSON object of ``ratiodesk isochron`` (also used for the table).
+
+    Besides the fit and age figures it carries ``mswd_limits_95`` (the χ² 5–95 % range of the MSWD,
+    cf. Wendt & Carl 1991), ``mswd_position`` (:func:`mswd_position`) and ``notes``
+    (:func:`mswd_notes`, a list of sentences, empty when there is nothing to say).
+    """
     fit, base, _ = _fit_from_args(args)
     out: Dict[str, Any] = {
         "n": fit.n, "dof": fit.dof, "treatment": fit.treatment, "uncertainty_level": "1 sigma",
@@ -179,6 +184,7 @@ def isochron_result(args: argparse.Namespace) -> Dict[str, Any]:
         "mswd_limits_95": list(fit.mswd_limits_95) if fit.mswd_limits_95 else None,
         "slope_se_95_expanded": fit.slope_sigma_95_expanded,
         "intercept_se_95_expanded": fit.intercept_sigma_95_expanded, "t95": fit.t95,
+        "mswd_position": mswd_position(fit), "notes": mswd_notes(fit),
     }
     if fit.treatment == "expanded":
         out.update(slope_se_scaled=fit.slope_sigma_1s, intercept_se_scaled=fit.intercept_sigma_1s,
@@ -234,7 +240,9 @@ def _isochron_table(r: Dict[str, Any]) -> str:
         lo, hi = r["mswd_limits_95"]
         lines.append(f"  MSWD = {r['mswd']:.4g}  p(chi2) = {r['p_value']:.3g}  "
                      f"MSWD range (chi-square 5-95 %; upper = 95 % rejection limit, cf. Wendt & Carl 1991): "
-                     f"{lo:.3g} - {hi:.3g}")
+                     f"{lo:.3g} - {hi:.3g} ({r['mswd_position']})")
+    for note in r.get("notes", ()):
+        lines.append(f"  note: {note}")
     if "age_ma" in r:
         lines.append(f"  system {r['system']}: x = {r['x_ratio']}, y = {r['y_ratio']}; decay constant "
                      f"{r['decay_constant']:.6g} +/- {r['decay_constant_se']:.3g} /a "

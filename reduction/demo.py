@@ -24,12 +24,13 @@ from typing import Any, Dict, List, Mapping, Tuple
 
 import numpy as np
 
-from .constants import isotope_mass, normalising_ratio, reference_material, reference_set
+from .composition import natural_composition
+from .constants import isotope_mass, reference_material, reference_set
 from .dilution import Spike, element_isotopes, forward_mixture, make_spike, sample_composition
 from .systems import get_system
 
-__all__ = ["DEMO_SEED", "FRACTIONS", "SCENARIO", "TRUE_AGES_MA", "DemoFraction", "demo_spikes", "demo_tables",
-           "true_values"]
+__all__ = ["DEMO_SEED", "FRACTIONS", "LAB_SIGMAS", "SCENARIO", "TRUE_AGES_MA", "DemoFraction", "demo_constants",
+           "demo_spikes", "demo_tables", "true_values"]
 
 DEMO_SEED = 5
 TRUE_AGES_MA: Dict[str, float] = {"sm-nd": 412.0, "lu-hf": 418.0}
@@ -100,6 +101,14 @@ SESSION_MATERIAL = {"N-2026-03A": ("JNdi-1", "143Nd/144Nd"), "N-2026-03B": ("JNd
 SESSION_DATE = {"N-2026-03A": "2026-03-10", "N-2026-03B": "2026-03-12", "H-2026-04A": "2026-04-02",
                 "H-2026-04B": "2026-04-03"}
 STANDARD_RUNS_PER_SESSION = 6
+#: Secondary (check) reference materials run beside the primary: (session, material, ratio, runs).
+CHECK_RUNS = (("N-2026-03A", "BCR-2", "143Nd/144Nd", 2), ("N-2026-03B", "BCR-2", "143Nd/144Nd", 2),
+              ("H-2026-04B", "BCR-2", "176Hf/177Hf", 1))
+#: The invented laboratory's uncertainty defaults (Constants lab.* rows), and the matching scatter the
+#: forward model gives the true weights, blanks and parent/daughter ratios (so the stated σ are honest).
+LAB_SIGMAS = {"lab.weighing_1s_g": 2e-5, "lab.blank_1s_pct": 30.0, "lab.pd_reproducibility_1s_pct": 0.1}
+#: 1σ of the external β typed for two-isotope Lu (its typed value scatters by this about the true β).
+LU_BETA_1S = 0.01
 STANDARD_SD_REL = {"143Nd/144Nd": 9e-6, "176Hf/177Hf": 14e-6}
 
 # Measured ratios per element run: (ratio, relative 1σ of the run mean). Ratios are to the reference isotope.
@@ -114,22 +123,15 @@ SYSTEM_ELEMENTS = {"sm-nd": ("Sm", "Nd"), "lu-hf": ("Lu", "Hf")}
 NORMALISING = {"Nd": "146Nd/144Nd", "Sm": "147Sm/152Sm", "Hf": "179Hf/177Hf"}
 SPIKE_OF_SYSTEM = {"sm-nd": "LH-SmNd-3", "lu-hf": "LH-LuHf-2"}
 REFERENCE_ISOTOPE = {"Nd": "144Nd", "Sm": "152Sm", "Hf": "177Hf", "Lu": "175Lu"}
-BLANK_DAUGHTER_RATIO: Dict[str, float] = {}  # blanks of natural composition, as the chain assumes
+BLANK_DAUGHTER_RATIO: Dict[str, float] = {}  # blanks of natural composition (the template's default)
 
 
 def _sample_ratios(element: str, reference: str, ratios: Mapping[str, float]) -> Dict[str, float]:
-    """A sample's ratios to ``reference``: natural (CIAAW), with the element's normalising ratio at its
-    conventional value (a sample is, by definition of internal normalisation, on that value) and
-    ``ratios`` laid over them."""
-    out: Dict[str, float] = {}
-    norm = NORMALISING.get(element)
-    if norm is not None:
-        num, den = norm.split("/")
-        v = normalising_ratio(norm).value
-        if den == reference:
-            out[norm] = v
-        else:   # e.g. 147Sm/152Sm with 152Sm as reference: fine; other orientations by inversion
-            out[f"{den}/{num}"] = 1.0 / v
+    """A sample's ratios to ``reference``: the natural composition of the workbook's convention
+    (:func:`reduction.composition.natural_composition`: CIAAW fractionated by the exponential law to
+    the element's normalising ratio) with the radiogenic ``ratios`` laid over them."""
+    out = natural_composition(element).ratios_to(reference)
+    out.pop(f"{reference}/{reference}", None)
     out.update(ratios)
     return out
 
@@ -168,21 +170,34 @@ def true_values(fr: DemoFraction) -> Dict[str, float]:
             "parent_umol_g": p_umol_g, "parent_ug_g": p_umol_g * _molar_mass(p_comp)}
 
 
-def _measured_mixtures(fr: DemoFraction, betas: Mapping[str, float]) -> Dict[str, Dict[str, float]]:
-    """Fractionated mixture ratios of both element runs (before the session offset and noise)."""
+def _measured_mixtures(fr: DemoFraction, betas: Mapping[str, float], z: Mapping[str, float] | None = None
+                       ) -> Dict[str, Dict[str, float]]:
+    """Fractionated mixture ratios of both element runs (before the session offset and noise).
+
+    ``z`` holds standard-normal draws that move the true sample and spike masses, blanks and parent
+    amount away from the typed values by the laboratory's stated 1σ (:data:`LAB_SIGMAS`); without it
+    the typed values are the truth.
+    """
+    z = z or {}
     system = get_system(fr.system)
     tv = true_values(fr)
     spikes = demo_spikes()
     label = SPIKE_OF_SYSTEM[fr.system]
+    w = LAB_SIGMAS["lab.weighing_1s_g"]
+    blank_rel = LAB_SIGMAS["lab.blank_1s_pct"] / 100
+    ws = fr.sample_mass_g + w * z.get("ws", 0.0)
+    wt = fr.spike_mass_g + w * z.get("wt", 0.0)
+    p_scale = 1 + LAB_SIGMAS["lab.pd_reproducibility_1s_pct"] / 100 * z.get("pd", 0.0)
     out = {}
     for el, conc, ratios, blank_ng in (
-            (system.parent_element, tv["parent_umol_g"], {}, fr.parent_blank_ng),
+            (system.parent_element, tv["parent_umol_g"] * p_scale, {}, fr.parent_blank_ng * (1 + blank_rel * z.get(
+                "pb", 0.0))),
             (system.daughter_element, tv["daughter_umol_g"], {system.daughter_ratio: tv["y"]},
-             fr.daughter_blank_ng)):
+             fr.daughter_blank_ng * (1 + blank_rel * z.get("db", 0.0)))):
         ref = REFERENCE_ISOTOPE[el]
         blank_ratios = {system.daughter_ratio: BLANK_DAUGHTER_RATIO[el]} if el in BLANK_DAUGHTER_RATIO else {}
-        blank_umol = blank_ng * 1e-3 / _molar_mass(_composition(el, ref, blank_ratios))
-        out[el] = forward_mixture(el, ref, conc, fr.sample_mass_g, spikes[(label, el)], fr.spike_mass_g,
+        blank_umol = max(blank_ng, 0.0) * 1e-3 / _molar_mass(_composition(el, ref, blank_ratios))
+        out[el] = forward_mixture(el, ref, conc, ws, spikes[(label, el)], wt,
                                   sample_ratios=_sample_ratios(el, ref, ratios) or None, bias_factor=betas[el],
                                   blank_umol=blank_umol, blank_ratios=blank_ratios or None)
     return out
@@ -206,13 +221,17 @@ def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
 
     standards = []
     for session, (material, ratio) in SESSION_MATERIAL.items():
-        accepted = reference_material(material, ratio).value
-        sd = STANDARD_SD_REL[ratio]
-        for k in range(STANDARD_RUNS_PER_SESSION):
-            v = accepted * (1 + SESSION_OFFSET[session]) * (1 + sd * rng.standard_normal())
-            standards.append({"session": session, "material": material, "ratio": ratio,
-                              "measured": float(f"{v:.7f}"), "sigma_1s": float(f"{accepted * 4e-6:.7f}"),
-                              "date": SESSION_DATE[session], "run": f"{material} #{k + 1}"})
+        runs = [(material, STANDARD_RUNS_PER_SESSION)] + [(m, n) for s_, m, r_, n in CHECK_RUNS
+                                                           if s_ == session and r_ == ratio]
+        for mat, n_runs in runs:
+            accepted = reference_material(mat, ratio).value
+            sd = STANDARD_SD_REL[ratio]
+            for k in range(n_runs):
+                v = accepted * (1 + SESSION_OFFSET[session]) * (1 + sd * rng.standard_normal())
+                standards.append({"session": session, "material": mat, "ratio": ratio,
+                                  "measured": float(f"{v:.7f}"), "sigma_1s": float(f"{accepted * 4e-6:.7f}"),
+                                  "date": SESSION_DATE[session], "run": f"{mat} #{k + 1}",
+                                  "role": "" if mat == material else "check"})
 
     samples, measured = [], []
     for fr in FRACTIONS:
@@ -223,7 +242,8 @@ def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
                         "parent_blank_ng": fr.parent_blank_ng, "daughter_blank_ng": fr.daughter_blank_ng})
         system = get_system(fr.system)
         betas = {el: BIAS_FACTOR[el] + 0.02 * rng.standard_normal() for el in SYSTEM_ELEMENTS[fr.system]}
-        mix = _measured_mixtures(fr, betas)
+        z = {k: float(rng.standard_normal()) for k in ("ws", "wt", "pb", "db", "pd")}
+        mix = _measured_mixtures(fr, betas, z)
         for el in SYSTEM_ELEMENTS[fr.system]:
             row = {"analysis": fr.analysis, "element": el, "run_date": SESSION_DATE[fr.session]}
             beta = betas[el]
@@ -238,7 +258,8 @@ def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
                 row[f"r{k}"] = float(f"{r_meas:.9g}")
                 row[f"r{k}_sigma_1s"] = float(f"{r_meas * rel:.3g}")
             if len(RUN_RATIOS[el]) == 1:   # two-isotope element: external bias factor (common practice)
-                row["bias_factor"] = round(beta, 5)
+                row["bias_factor"] = round(beta + LU_BETA_1S * rng.standard_normal(), 5)
+                row["bias_factor_1s"] = LU_BETA_1S
             measured.append(row)
     return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured}
 
@@ -251,6 +272,18 @@ def demo_selection() -> Dict[str, List[Tuple[str, int]]]:
     return out
 
 
+def demo_constants() -> List[Dict[str, Any]]:
+    """The Constants rows of the demo: the default reference set with the invented lab's σ defaults."""
+    from .workbook import constants_rows
+
+    rows = constants_rows()
+    for row in rows:
+        if row["key"] in LAB_SIGMAS:
+            row["value"] = LAB_SIGMAS[row["key"]]
+            row["source"] = f"{SCENARIO['lab']}: invented demo value"
+    return rows
+
+
 def demo_layout(seed: int = DEMO_SEED) -> Any:
     """The demo workbook's cells (inputs filled, computed cells carrying engine values)."""
     from .workbook import ABOUT_LINES, build_layout, evaluate, fill_values, layout_grid
@@ -259,6 +292,7 @@ def demo_layout(seed: int = DEMO_SEED) -> Any:
              (SCENARIO["note"], "note"), ("", "plain"),
              (f"Terrane: {SCENARIO['terrane']}; unit: {SCENARIO['unit']}; laboratory: {SCENARIO['lab']}.",
               "plain")) + ABOUT_LINES[3:]
-    lay = build_layout(demo_tables(seed), isochron_selection=demo_selection(), about=about)
+    lay = build_layout(demo_tables(seed), constants=demo_constants(), isochron_selection=demo_selection(),
+                       about=about)
     fill_values(lay, evaluate(layout_grid(lay), strict=False))
     return lay

@@ -18,7 +18,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from functools import lru_cache
-from typing import Any, Optional, Tuple
+from typing import Any, List, Optional, Tuple
 
 import numpy as np
 from scipy import optimize, special
@@ -27,6 +27,9 @@ from ._validate import as_array, as_scalar, require_correlation, require_positiv
 from .errors import ConvergenceError, InputError, UndefinedResultError
 
 __all__ = [
+    "WEAK_TEST_MAX_DOF",
+    "mswd_notes",
+    "mswd_position",
     "TREATMENTS",
     "IsochronFit",
     "WeightedMean",
@@ -1045,3 +1048,54 @@ def ellipse_points(x: float, sx: float, y: float, sy: float, rho: float = 0.0, *
     ys = y + pts[1]
     xs[-1], ys[-1] = xs[0], ys[0]
     return xs, ys
+
+
+#: Up to this many degrees of freedom the MSWD test is called weak (common practice: the χ² 5–95 %
+#: range of the MSWD is 0.0039–3.84 for dof = 1 and 0.051–3.00 for dof = 2).
+WEAK_TEST_MAX_DOF = 2
+
+
+def mswd_position(fit: IsochronFit) -> Optional[str]:
+    """Where the fit's MSWD lies against its χ² 5–95 % range: ``"below"``, ``"within"``, ``"above"``.
+
+    None when there is no MSWD (dof = 0). The range is ``fit.mswd_limits_95``
+    (:func:`reduction.regression.wendt_carl_limits`; Wendt & Carl 1991, Chem. Geol. 86, 275).
+    """
+    if fit.mswd is None or not fit.mswd_limits_95:
+        return None
+    lo, hi = fit.mswd_limits_95
+    if fit.mswd > hi:
+        return "above"
+    if fit.mswd < lo:
+        return "below"
+    return "within"
+
+
+def mswd_notes(fit: IsochronFit) -> List[str]:
+    """Plain-language notes on how far the fit's MSWD can be trusted as a test of one line.
+
+    * dof = 0 (two points, no anchor): no MSWD exists;
+    * 1 ≤ dof ≤ :data:`WEAK_TEST_MAX_DOF`: the χ² range is wide and the test weak (common practice);
+    * an MSWD above the 95 % limit or below the 5 % limit of ``fit.mswd_limits_95`` (χ² quantiles,
+      cf. Wendt & Carl 1991, Chem. Geol. 86, 275) is said so.
+    """
+    notes: List[str] = []
+    anchored = " and the anchor" if fit.anchor is not None else ""
+    if fit.mswd is None or not fit.mswd_limits_95:
+        notes.append(f"with {fit.n} points the line passes through both exactly: there is no MSWD, so nothing "
+                     "tests whether the points belong on one line (a two-point age takes that on trust)")
+        return notes
+    lo, hi = fit.mswd_limits_95
+    if fit.dof <= WEAK_TEST_MAX_DOF:
+        dof_words = "1 degree" if fit.dof == 1 else f"{fit.dof} degrees"
+        notes.append(f"with {fit.n} points{anchored} the MSWD has only {dof_words} of freedom: its acceptance range "
+                     f"({lo:.3g} - {hi:.3g}) is wide and the test weak, so an MSWD inside it says little about "
+                     "whether the points share one line")
+    pos = mswd_position(fit)
+    if pos == "above":
+        notes.append(f"MSWD {fit.mswd:.4g} is above the 95 % limit {hi:.3g}: the points scatter more than their "
+                     "analytical errors explain (extra geological scatter, or errors set too small)")
+    elif pos == "below":
+        notes.append(f"MSWD {fit.mswd:.4g} is below the 5 % limit {lo:.3g}: the points scatter less than their "
+                     "errors predict (errors set too large, or errors shared between the points)")
+    return notes

@@ -122,9 +122,22 @@ class Sheet:
     def last_row(self) -> int:
         return FIRST_ROW + self.capacity - 1
 
+    @property
+    def input_width(self) -> int:
+        """Columns of the table range: all of them, or only the inputs of a sheet whose computed columns
+        follow its inputs (the Standards sheet), so that those formulas do not read themselves."""
+        kinds = [c.computed for c in self.columns]
+        if all(kinds) or not any(kinds):
+            return len(self.columns)
+        first = kinds.index(True)
+        if any(not k for k in kinds[first:]):
+            raise ValueError(f"{self.name}: computed columns must follow the input columns")
+        return first
+
     def range_ref(self) -> Tuple[str, int, int, int, int]:
-        """The table range every function receives: key row to the last data row, all columns."""
-        return (self.name, KEY_ROW, 0, self.last_row, len(self.columns) - 1)
+        """The table range every function receives: key row to the last data row, the input columns
+        (all columns of an all-computed sheet)."""
+        return (self.name, KEY_ROW, 0, self.last_row, self.input_width - 1)
 
 
 def col_letter(i: int) -> str:
@@ -161,7 +174,7 @@ CONSTANTS = Sheet(
      _c("note", "How the 1σ (abs) was set / status", "text", required=False, width=60),
      _c("unit", "Unit", "text", required=False, width=10),
      _c("source", "Source", "text", required=False, width=80)),
-    capacity=30)
+    capacity=90)
 
 SPIKES = Sheet(
     "Spikes", "Spike calibrations",
@@ -173,14 +186,30 @@ SPIKES = Sheet(
      _c("conc_sigma_1s", "1σ (abs, µmol/g)", width=14, number_format="0.00E+00"), *_ISO_COLS),
     capacity=20)
 
+#: The reference material a session normalises to when no row of the session says "primary".
+DEFAULT_PRIMARY = {"143Nd/144Nd": "JNdi-1", "176Hf/177Hf": "JMC-475", "87Sr/86Sr": "NIST SRM 987"}
+
 STANDARDS = Sheet(
-    "Standards", "Reference-material runs per session",
-    "Normalised ratios of the reference material measured in each session. The session factor is accepted "
-    "value (Constants) / mean of these runs; it multiplies every sample ratio of that session.",
+    "Standards", "Reference-material runs per session: one primary, the others are checks",
+    "Normalised ratios of reference materials measured in each session. Per session and ratio ONE material is "
+    "primary (Role 'primary'; empty Role: " + ", ".join(f"{m} for {r}" for r, m in DEFAULT_PRIMARY.items())
+    + "): factor = its accepted value (Constants) / mean of its runs, applied to every sample of the session. "
+    "Every other material is a check ('check' or empty): normalised with that factor and compared with its "
+    "accepted value — never part of the factor.",
     (_c("session", "Session", "text", width=13), _c("material", "Material", "text", width=11),
      _c("ratio", "Ratio", "text", width=13), _c("measured", "Measured", width=12, number_format="0.0000000"),
      _c("sigma_1s", "1σ (abs)", required=False, width=11, number_format="0.00E+00"),
-     _c("date", "Date", "text", required=False, width=11), _c("run", "Run", "text", required=False, width=14)),
+     _c("date", "Date", "text", required=False, width=11), _c("run", "Run", "text", required=False, width=14),
+     _c("role", "Role (primary/check)", "text", required=False, width=11),
+     _c("role_used", "Role used", "computed", quantity="role", width=9),
+     _c("factor", "Session factor", "computed", quantity="factor", number_format="0.0000000", width=11),
+     _c("normalised", "Normalised", "computed", quantity="normalised", number_format="0.0000000", width=12),
+     _c("check_mean", "Mean normalised (material, session)", "computed", quantity="mean", number_format="0.0000000",
+        width=13),
+     _c("accepted", "Accepted (Constants)", "computed", quantity="accepted", number_format="0.0000000", width=12),
+     _c("dev_ppm", "Mean − accepted (ppm)", "computed", quantity="dev_ppm", number_format="0.0", width=10),
+     _c("dev_eps", "Mean − accepted (ε)", "computed", quantity="dev_eps", number_format="0.00", width=9),
+     _c("z", "z-score", "computed", quantity="z", number_format="0.00", width=8)),
     capacity=120)
 
 FRACTION_TYPES = ("whole rock", "garnet", "garnet leachate", "leachate", "residue", "omphacite",
@@ -188,8 +217,10 @@ FRACTION_TYPES = ("whole rock", "garnet", "garnet leachate", "leachate", "residu
 
 SAMPLES = Sheet(
     "Samples", "Samples: what was weighed and spiked",
-    "One row per analysis. Masses in g; blanks in ng of element (procedural blank, subtracted). "
-    "System: Sm-Nd or Lu-Hf. The spike label must appear on the Spikes sheet.",
+    "One row per analysis. Masses in g; blanks in ng of element (procedural blank, subtracted; natural "
+    "composition from Constants unless a blank daughter ratio is typed). System: Sm-Nd or Lu-Hf. The spike "
+    "label must appear on the Spikes sheet. Empty σ columns take the lab defaults of the Constants sheet "
+    "(lab.*); a σ of 0 is named in Check.",
     (_c("analysis", "Analysis", "text", width=10), _c("sample", "Sample", "text", width=10),
      _c("fraction", "Fraction type", "text", width=16, help="one of: " + ", ".join(FRACTION_TYPES)),
      _c("system", "System", "text", width=8), _c("session", "Session", "text", width=13),
@@ -197,17 +228,27 @@ SAMPLES = Sheet(
      _c("spike", "Spike used", "text", width=12),
      _c("spike_mass_g", "Spike mass (g)", width=12, number_format="0.00000"),
      _c("parent_blank_ng", "Parent blank (ng)", required=False, width=12, number_format="0.000"),
-     _c("daughter_blank_ng", "Daughter blank (ng)", required=False, width=12, number_format="0.000")),
+     _c("daughter_blank_ng", "Daughter blank (ng)", required=False, width=12, number_format="0.000"),
+     _c("sample_mass_1s_g", "Sample mass 1σ (abs, g)", required=False, width=11, number_format="0.0E+00"),
+     _c("spike_mass_1s_g", "Spike mass 1σ (abs, g)", required=False, width=11, number_format="0.0E+00"),
+     _c("parent_blank_1s_ng", "Parent blank 1σ (abs, ng)", required=False, width=11, number_format="0.000"),
+     _c("daughter_blank_1s_ng", "Daughter blank 1σ (abs, ng)", required=False, width=11, number_format="0.000"),
+     _c("daughter_blank_ratio", "Blank daughter ratio (empty: natural)", required=False, width=12,
+        number_format="0.000000"),
+     _c("daughter_blank_ratio_1s", "Blank daughter ratio 1σ (abs)", required=False, width=11,
+        number_format="0.0E+00")),
     capacity=60)
 
 MEASURED = Sheet(
     "Measured", "Measured ratios of the spiked mixtures (run means)",
     "One row per element run: mixture ratios to the reference isotope, interference-stripped, NOT corrected "
     "for mass bias; 1σ absolute standard error of the run mean. Elements with a normalising pair are "
-    "internally normalised; give a bias factor β (exponential law) only for two-isotope elements (Lu).",
+    "internally normalised; give a bias factor β (exponential law) with its 1σ only for two-isotope elements "
+    "(Lu). Ratio names: <isotope>/<reference isotope> of the row's element (144Nd, 152Sm, 177Hf, 175Lu).",
     (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
      _c("run_date", "Run date", "text", required=False, width=11), *_RATIO_COLS,
-     _c("bias_factor", "β external (exp. law)", required=False, width=12, number_format="0.0000")),
+     _c("bias_factor", "β external (exp. law)", required=False, width=12, number_format="0.0000"),
+     _c("bias_factor_1s", "β 1σ (abs)", required=False, width=10, number_format="0.0000")),
     capacity=120)
 
 # Results: (key, header, quantity, number format); quantity "" = copied from Samples
@@ -279,6 +320,8 @@ ISOCHRON_QUANTITIES: Tuple[Tuple[str, str, str], ...] = (
     ("p", "p (χ²)", ""),
     ("slope", "Slope", ""),
     ("slope_1s", "Slope 1σ (abs)", "1σ abs"),
+    ("mswd_low", "MSWD acceptance range, low (χ² 5 %)", "Wendt & Carl 1991"),
+    ("mswd_high", "MSWD acceptance range, high (χ² 95 %)", "Wendt & Carl 1991"),
     ("message", "Check", ""),
 )
 ISOCHRON_BLOCK_ROWS = 3 + len(ISOCHRON_QUANTITIES)  # title, system, treatment, quantities
@@ -354,12 +397,42 @@ def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
         v = rs.reservoir("CHUR", ratio)
         rows.append({"key": f"CHUR.{ratio}", "quantity": f"CHUR present-day {ratio}", "value": v.value,
                      "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit, "source": v.source})
-    for material, ratio in (("JNdi-1", "143Nd/144Nd"), ("JMC-475", "176Hf/177Hf")):
+    for material, ratio in _REFERENCE_MATERIALS:
         v = reference_material(material, ratio)
         rows.append({"key": f"rm.{material}.{ratio}", "quantity": f"{material} accepted {ratio}",
                      "value": v.value, "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit,
                      "source": v.source})
+    for key, quantity, unit, note in LAB_ROWS:
+        rows.append({"key": key, "quantity": quantity, "value": 0.0, "sigma_1s": "", "note": note, "unit": unit,
+                     "source": "the laboratory (type your own value)"})
+    from .composition import composition_rows
+
+    for el in NATURAL_ELEMENTS:
+        for key, quantity, value, source in composition_rows(el):
+            rows.append({"key": key, "quantity": quantity, "value": value, "sigma_1s": "",
+                         "note": "convention: CIAAW representative composition fractionated by the exponential law "
+                                 "to the normalising ratio; replace the whole element with your lab's measured "
+                                 "composition if you have one",
+                         "unit": "mol/mol", "source": source})
     return rows
+
+
+#: Reference materials whose accepted values the Constants sheet carries (primary and check materials).
+_REFERENCE_MATERIALS = (("JNdi-1", "143Nd/144Nd"), ("BCR-2", "143Nd/144Nd"), ("BHVO-2", "143Nd/144Nd"),
+                        ("JMC-475", "176Hf/177Hf"), ("BCR-2", "176Hf/177Hf"), ("BHVO-2", "176Hf/177Hf"),
+                        ("NIST SRM 987", "87Sr/86Sr"), ("BCR-2", "87Sr/86Sr"), ("BHVO-2", "87Sr/86Sr"))
+#: Elements whose natural composition the Constants sheet shows (and a lab may replace).
+NATURAL_ELEMENTS = ("Nd", "Sm", "Hf", "Lu", "Sr", "Rb")
+#: Lab-wide uncertainty defaults: (key, quantity, unit, note).
+LAB_ROWS = (
+    ("lab.weighing_1s_g", "Weighing 1σ (abs) used when a Samples σ column is empty", "g",
+     "your balance's 1σ for one weighing; 0 = not included (Check then says so)"),
+    ("lab.blank_1s_pct", "Blank 1σ (% of the blank) used when a Samples blank σ is empty", "%",
+     "e.g. the scatter of your procedural blanks; 0 = not included (Check then says so)"),
+    ("lab.pd_reproducibility_1s_pct", "Parent/daughter ratio external reproducibility (1σ %)", "%",
+     "basis: replicate analyses of a reference material or sample powder; added to every P/D ratio "
+     "(random); 0 = not included (Check then says so)"),
+)
 
 
 #: Columns of the reference-value tables of the Provenance sheets and the report.
@@ -538,6 +611,45 @@ def _refset(constants: Rows) -> Any:
     return base.with_overrides(overrides)
 
 
+@lru_cache(maxsize=64)
+def _naturals(constants: Rows) -> Dict[str, Any]:
+    """Element -> NaturalComposition from the Constants rows ``nat.<element>.<i>/<reference>``.
+
+    An element without rows takes the engine's convention; rows of an element replace it whole.
+    """
+    from .composition import natural_composition
+
+    t = Table.from_range(CONSTANTS, constants)
+    rows: Dict[str, Dict[str, float]] = {}
+    where: Dict[str, int] = {}
+    for i in range(len(t.rows)):
+        key = t.text(i, "key", required=False)
+        if not key.startswith("nat."):
+            continue
+        _nat, _sep, rest = key.partition(".")
+        el, _sep, ratio = rest.partition(".")
+        rows.setdefault(el, {})[ratio] = t.number(i, "value", positive=True)
+        where.setdefault(el, i)
+    out: Dict[str, Any] = {}
+    for el, ratios in rows.items():
+        try:
+            out[el] = natural_composition(el, ratios)
+        except InputError as exc:
+            raise t.error(where[el], "key", f"natural {el} composition: {exc.problem}") from None
+    return out
+
+
+def _lab(constants: Rows, key: str) -> float:
+    """A lab default of the Constants sheet (0 when the row is missing)."""
+    c = _constants(constants)
+    if key not in c:
+        return 0.0
+    v, _s, row = c[key]
+    if v < 0:
+        raise CellError("Constants", row, "C", "Value", f"{key} must be >= 0, got {v!r}")
+    return v
+
+
 def _constant(constants: Rows, key: str) -> Tuple[float, float]:
     c = _constants(constants)
     if key not in c:
@@ -600,37 +712,200 @@ def _spike_column(exc: InputError, slots: Sequence[int], isotopes: Sequence[str]
 
 
 def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError]
-         ) -> Tuple[Dict[str, float], Dict[str, float], Optional[float]]:
+         ) -> Tuple[Dict[str, float], Dict[str, float], Optional[float], float, int]:
+    """(ratios, their 1σ, external β or None, β 1σ, row index) of one element run on the Measured sheet.
+
+    Every ratio name is checked here, so a bad one is reported at its own Measured cell.
+    """
+    from .dilution import element_isotopes
+
     hits = measured.find(analysis=analysis, element=element)
     if not hits:
         raise where(f"no {element} run for analysis {analysis!r} on the Measured sheet")
+    if len(hits) > 1:
+        raise measured.error(hits[1], "analysis", f"a second {element} run of analysis {analysis!r} (the first is "
+                             f"row {measured.first_row + hits[0]}): keep one row per element run")
     i = hits[0]
+    isos = element_isotopes(element)
+    ref = _REFERENCE_ISOTOPE.get(element, "")
     vals: Dict[str, float] = {}
     sig: Dict[str, float] = {}
     for k in range(1, 5):
         name = measured.text(i, f"r{k}_name", required=k == 1)
         if not name:
             continue
-        vals[name] = measured.number(i, f"r{k}", positive=True)
-        sig[name] = measured.number(i, f"r{k}_sigma_1s", positive=True)
+        num, sep, den = name.replace(" ", "").partition("/")
+        if not sep or num not in isos or den != ref:
+            raise measured.error(i, f"r{k}_name", f"{name!r} is not a {element} ratio to {ref}: write it as "
+                                 f"<isotope>/{ref} with one of {', '.join(x for x in isos if x != ref)}")
+        if num == ref or f"{num}/{den}" in vals:
+            raise measured.error(i, f"r{k}_name", f"{name!r} is given twice or is {ref}/{ref}")
+        vals[f"{num}/{den}"] = measured.number(i, f"r{k}", positive=True)
+        sig[f"{num}/{den}"] = measured.number(i, f"r{k}_sigma_1s", positive=True)
     bf = measured.number(i, "bias_factor", required=False, default=float("nan"))
-    return vals, sig, (None if math.isnan(bf) else bf)
+    bf_s = measured.number(i, "bias_factor_1s", required=False)
+    if bf_s < 0:
+        raise measured.error(i, "bias_factor_1s", f"must be >= 0, got {bf_s!r}")
+    return vals, sig, (None if math.isnan(bf) else bf), bf_s, i
 
 
-def _standard(standards: Table, constants: Rows, session: str, ratio: str,
-              where: Callable[[str], CellError]) -> Any:
+@dataclass(frozen=True)
+class SessionStandards:
+    """The reference-material runs of one session and ratio: the primary's factor and every check.
+
+    ``checks`` maps material -> (rows, normalised mean, its 1σ, accepted, accepted 1σ, problem text);
+    the problem text is non-empty when a check cannot be evaluated (e.g. no accepted value).
+    """
+
+    session: str
+    ratio: str
+    primary: str
+    primary_rows: Tuple[int, ...]
+    factor: Any
+    checks: Mapping[str, Tuple[Tuple[int, ...], float, float, float, float, str]]
+    how: str
+
+
+_ROLES = ("primary", "check")
+
+
+@lru_cache(maxsize=256)
+def _session_standards(standards: Rows, constants: Rows, session: str, ratio: str) -> SessionStandards:
+    """Choose the primary material of a session and ratio; normalise every other material with its factor."""
     from .standards import standard_factor
 
-    hits = standards.find(session=session, ratio=ratio)
+    t = Table.from_range(STANDARDS, standards)
+    hits = t.find(session=session, ratio=ratio)
     if not hits:
-        raise where(f"no {ratio} reference-material runs for session {session!r} on the Standards sheet")
-    material = standards.text(hits[0], "material")
-    values = [standards.number(i, "measured", positive=True) for i in hits]
-    accepted, accepted_s = _constant(constants, f"rm.{material}.{ratio}")
+        raise CellError("Standards", None, "A", "Session",
+                        f"no {ratio} reference-material runs for session {session!r} on the Standards sheet")
+    by_mat: Dict[str, List[int]] = {}
+    roles: Dict[str, set] = {}
+    for i in hits:
+        m = t.text(i, "material")
+        role = t.text(i, "role", required=False).lower()
+        if role not in ("",) + _ROLES:
+            raise t.error(i, "role", f"must be 'primary', 'check' or empty, got {role!r}")
+        by_mat.setdefault(m, []).append(i)
+        roles.setdefault(m, set()).add(role)
+    for m, r in roles.items():
+        if {"primary", "check"} <= r:
+            i = by_mat[m][0]
+            raise t.error(i, "role", f"{m} is marked both primary and check in session {session!r}")
+    typed = [m for m, r in roles.items() if "primary" in r]
+    if len(typed) > 1:
+        raise t.error(by_mat[typed[1]][0], "role", f"session {session!r} has two primary materials for {ratio} "
+                      f"({', '.join(typed)}): mark one 'primary', the others 'check'")
+    default = DEFAULT_PRIMARY.get(ratio)
+    not_check = [m for m, r in roles.items() if "check" not in r]
+    if typed:
+        primary, how = typed[0], "marked primary"
+    elif default in by_mat and "check" not in roles[default]:
+        primary, how = default, f"default primary for {ratio}"
+    elif len(not_check) == 1 and len(by_mat) == 1:
+        primary, how = not_check[0], "the session's only material"
+    else:
+        raise t.error(hits[0], "role", f"session {session!r} has no primary reference material for {ratio} "
+                      f"(materials: {', '.join(by_mat)}): type 'primary' in the Role column of its rows")
+    rows = tuple(by_mat[primary])
+    values = [t.number(i, "measured", positive=True) for i in rows]
     try:
-        return standard_factor(values, accepted, accepted_sigma_1s=accepted_s)
+        accepted, accepted_s = _constant(constants, f"rm.{primary}.{ratio}")
+    except CellError as exc:
+        raise t.error(rows[0], "material", f"the primary material {primary!r} has no accepted {ratio} on the "
+                      f"Constants sheet ({exc.problem})") from None
+    try:
+        f = standard_factor(values, accepted, accepted_sigma_1s=accepted_s)
     except InputError as exc:
-        raise standards.error(hits[0], "measured", str(exc)) from None
+        raise t.error(rows[0], "measured", str(exc)) from None
+    checks: Dict[str, Tuple[Tuple[int, ...], float, float, float, float, str]] = {}
+    for m, idx in by_mat.items():
+        if m == primary:
+            continue
+        vals = [t.number(i, "measured", positive=True) for i in idx]
+        sigs = [t.number(i, "sigma_1s", required=False) for i in idx]
+        n = len(vals)
+        mean = sum(vals) / n * f.factor
+        if n > 1:
+            sd = math.sqrt(sum((v * f.factor - mean) ** 2 for v in vals) / (n - 1))
+            s_mean = sd / math.sqrt(n)
+        elif sigs[0] > 0:
+            s_mean = sigs[0] * f.factor
+        else:   # one run, no σ typed: the primary's session scatter stands in for the run's own
+            s_mean = mean * f.reproducibility_rel_1s
+        try:
+            acc, acc_s = _constant(constants, f"rm.{m}.{ratio}")
+            problem = ""
+        except CellError:
+            acc, acc_s = float("nan"), float("nan")
+            problem = (f"{m} has no accepted {ratio} on the Constants sheet (add a row with the key "
+                       f"'rm.{m}.{ratio}'); the check is not evaluated")
+        checks[m] = (tuple(idx), mean, s_mean, acc, acc_s, problem)
+    return SessionStandards(session, ratio, primary, rows, f, checks, how)
+
+
+def standard_value(quantity: str, session: Any, material: Any, ratio: Any, measured: Any, standards: Any,
+                   constants: Any) -> float | str:
+    """One computed cell of a Standards row: its role, the session factor, the normalised value, and for a
+    check material its mean, accepted value, deviation (ppm, ε) and z-score.
+
+    The factor comes from the session's primary material only (:func:`_session_standards`); a check
+    never enters it. z = (mean − accepted) / √(σ_mean² + (mean·σ_f,rel)² + σ_acc² + (mean·σ_acc,primary,rel)²),
+    with σ_mean the standard error of the check's normalised runs (one run: its typed σ, else the
+    primary's session scatter) and σ_f,rel the factor's random relative σ (common practice).
+    """
+    ses = str(session).strip() if not isinstance(session, float) else f"{session:g}"
+    if not ses:
+        return ""
+    mat = str(material).strip()
+    rat = str(ratio).strip()
+    ss = _session_standards(as_rows(standards), as_rows(constants), ses, rat)
+    f = ss.factor
+    q = quantity.strip().lower()
+    is_primary = mat.lower() == ss.primary.lower()
+    try:
+        x = float(measured)
+    except (TypeError, ValueError):
+        x = float("nan")
+    if q == "role":
+        return f"primary ({ss.how})" if is_primary else "check"
+    if q == "factor":
+        return float(f.factor)
+    if q == "normalised":
+        if not (math.isfinite(x) and x > 0):
+            raise CellError("Standards", None, "D", "Measured", f"is not a number > 0: {measured!r}")
+        return float(x * f.factor)
+    if is_primary:
+        mean = f.mean * f.factor
+        table: Dict[str, Any] = {"mean": mean, "accepted": f.accepted, "dev_ppm": (mean / f.accepted - 1) * 1e6,
+                                 "dev_eps": (mean / f.accepted - 1) * 1e4, "z": "primary: defines the factor"}
+    else:
+        hit = next((v for k, v in ss.checks.items() if k.lower() == mat.lower()), None)
+        if hit is None:
+            raise CellError("Standards", None, "B", "Material", f"{mat!r} has no runs in session {ses!r}")
+        _rows, mean, s_mean, acc, acc_s, problem = hit
+        if problem and q != "mean":
+            return MARKER + problem
+        rel_f = f.factor_sigma_1s_random / f.factor
+        rel_p = f.accepted_sigma_1s / f.accepted
+        s_tot = math.sqrt(s_mean ** 2 + (mean * rel_f) ** 2 + acc_s ** 2 + (mean * rel_p) ** 2)
+        table = {"mean": mean, "accepted": acc, "dev_ppm": (mean / acc - 1) * 1e6 if acc == acc else "",
+                 "dev_eps": (mean / acc - 1) * 1e4 if acc == acc else "",
+                 "z": (mean - acc) / s_tot if s_tot > 0 else "n/a: no uncertainty"}
+    if q not in table:
+        raise InputError("quantity", f"unknown quantity {quantity!r}; use one of role, factor, normalised, "
+                         + ", ".join(table))
+    v = table[q]
+    return v if isinstance(v, str) else float(v)
+
+
+def _standard(standards: Rows, constants: Rows, session: str, ratio: str,
+              where: Callable[[str], CellError]) -> Any:
+    """The session factor from the session's primary material (checks never enter it)."""
+    t = Table.from_range(STANDARDS, standards)
+    if not t.find(session=session, ratio=ratio):
+        raise where(f"no {ratio} reference-material runs for session {session!r} on the Standards sheet")
+    return _session_standards(standards, constants, session, ratio).factor
 
 
 #: Correlation of a mixed spike's two concentrations the workbook passes to the chain (the Spikes
@@ -652,10 +927,56 @@ def spike_ratio_sigma_rel(parent_spike: Any, daughter_spike: Any, spike_rho: flo
     return math.sqrt(max(rp * rp + rd * rd - 2.0 * spike_rho * rp * rd, 0.0))
 
 
+#: Broad plausibility ranges (common practice, not published limits): a value outside gets a warning in
+#: Check, never a refusal. Masses in g (a value in mg typed as g lands far above the upper limit).
+PLAUSIBLE_SAMPLE_MASS_G = (1e-4, 5.0)
+PLAUSIBLE_SPIKE_MASS_G = (1e-4, 5.0)
+#: Error magnification of the spike–sample mix above which Check warns (common practice).
+PLAUSIBLE_MAGNIFICATION_MAX = 10.0
+#: Blank share of the daughter (or parent) above which Check warns, as a fraction (common practice).
+PLAUSIBLE_BLANK_SHARE_MAX = 0.05
+#: Broad natural concentration ranges of rocks and minerals, µg/g (common practice, generous on purpose).
+PLAUSIBLE_CONC_UG_G = {"Sm": (1e-4, 5000.0), "Nd": (1e-4, 20000.0), "Lu": (1e-5, 1000.0),
+                       "Hf": (1e-4, 50000.0), "Rb": (1e-4, 10000.0), "Sr": (1e-3, 20000.0)}
+
+#: Plain words for the chain's zero-σ input names (AnalysisResult.zero_sigma).
+_SIGMA_WORDS = {"sample_mass_g": "sample mass", "spike_mass_g": "spike mass",
+                "parent_bias_factor": "external β", "parent_spike_conc": "parent spike concentration",
+                "daughter_spike_conc": "daughter spike concentration",
+                "parent_ratio_reproducibility": "P/D external reproducibility",
+                "daughter_ratio_reproducibility": "daughter-ratio external reproducibility",
+                "parent_blank_ng": "parent blank", "daughter_blank_ng": "daughter blank"}
+
+
+def _plausibility(res: Any, system: Any, sample_mass: float, spike_mass: float) -> List[str]:
+    """Plausibility warnings of one analysis (ranges above)."""
+    out: List[str] = []
+    lo, hi = PLAUSIBLE_SAMPLE_MASS_G
+    if not lo <= sample_mass <= hi:
+        out.append(f"sample mass {sample_mass:g} g is outside {lo:g}-{hi:g} g (typed in mg?)")
+    lo, hi = PLAUSIBLE_SPIKE_MASS_G
+    if not lo <= spike_mass <= hi:
+        out.append(f"spike mass {spike_mass:g} g is outside {lo:g}-{hi:g} g (typed in mg?)")
+    for el, mag in ((system.parent_element, res.parent_magnification),
+                    (system.daughter_element, res.daughter_magnification)):
+        if mag > PLAUSIBLE_MAGNIFICATION_MAX:
+            out.append(f"{el} error magnification {mag:.3g} > {PLAUSIBLE_MAGNIFICATION_MAX:g}")
+    for el, share in ((system.parent_element, res.blank_share_parent),
+                      (system.daughter_element, res.blank_share_daughter)):
+        if share > PLAUSIBLE_BLANK_SHARE_MAX:
+            out.append(f"{el} blank is {100 * share:.3g} % of the measured total "
+                       f"(> {100 * PLAUSIBLE_BLANK_SHARE_MAX:g} %)")
+    for el, c in ((system.parent_element, res.parent_conc_ug_g), (system.daughter_element, res.daughter_conc_ug_g)):
+        lo, hi = PLAUSIBLE_CONC_UG_G.get(el, (0.0, math.inf))
+        if not lo <= c <= hi:
+            out.append(f"{el} {c:.4g} µg/g is outside the broad natural range {lo:g}-{hi:g} µg/g")
+    return out
+
+
 @lru_cache(maxsize=256)
 def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standards: Rows,
-              constants: Rows, mc_draws: int = 0) -> Tuple[Any, Any, float]:
-    """(AnalysisResult, epsilon today, spike P/D calibration rel. 1σ) of one analysis, from the workbook's tables."""
+              constants: Rows, mc_draws: int = 0) -> Tuple[Any, Any, float, Tuple[str, ...]]:
+    """(AnalysisResult, epsilon today, spike P/D calibration rel. 1σ, Check warnings) of one analysis."""
     from .ages import epsilon
     from .chain import reduce_spiked_analysis
     from .systems import get_system
@@ -664,19 +985,46 @@ def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standa
     hits = st.find(analysis=analysis)
     if not hits:
         raise CellError("Samples", None, "A", "Analysis", f"no row for analysis {analysis!r}")
+    if len(hits) > 1:
+        raise st.error(hits[1], "analysis", f"analysis ID {analysis!r} is used twice (first on row "
+                       f"{FIRST_ROW + hits[0]}): every analysis needs its own ID")
     i = hits[0]
     try:
         system = get_system(st.text(i, "system"))
     except InputError as exc:
         raise st.error(i, "system", exc.problem) from None
-    mt, sp, sd = (Table.from_range(MEASURED, measured), Table.from_range(SPIKES, spikes),
-                  Table.from_range(STANDARDS, standards))
+    mt, sp = Table.from_range(MEASURED, measured), Table.from_range(SPIKES, spikes)
     sample_mass = st.number(i, "sample_mass_g", positive=True)
     spike_mass = st.number(i, "spike_mass_g", positive=True)
     label = st.text(i, "spike")
     session = st.text(i, "session")
     pb = st.number(i, "parent_blank_ng", required=False)
     db = st.number(i, "daughter_blank_ng", required=False)
+    weighing = _lab(constants, "lab.weighing_1s_g")
+    blank_rel = _lab(constants, "lab.blank_1s_pct") / 100.0
+    nan = float("nan")
+
+    def sigma(key: str, default: float) -> float:
+        v = st.number(i, key, required=False, default=nan)
+        if math.isnan(v):
+            return default
+        if v < 0:
+            raise st.error(i, key, f"a 1σ must be >= 0, got {v!r}")
+        return v
+
+    for key in ("parent_blank_ng", "daughter_blank_ng"):
+        if st.number(i, key, required=False) < 0:
+            raise st.error(i, key, "a blank must be >= 0 ng")
+    ws_s = sigma("sample_mass_1s_g", weighing)
+    wt_s = sigma("spike_mass_1s_g", weighing)
+    pb_s = sigma("parent_blank_1s_ng", pb * blank_rel)
+    db_s = sigma("daughter_blank_1s_ng", db * blank_rel)
+    rb = st.number(i, "daughter_blank_ratio", required=False, default=nan)
+    rb_s = sigma("daughter_blank_ratio_1s", 0.0)
+    if not math.isnan(rb) and rb <= 0:
+        raise st.error(i, "daughter_blank_ratio", f"must be > 0, got {rb!r}")
+    if math.isnan(rb) and rb_s > 0:
+        raise st.error(i, "daughter_blank_ratio_1s", "a 1σ without a blank daughter ratio: type the ratio too")
 
     def at(key: str) -> Callable[[str], CellError]:
         return lambda problem: st.error(i, key, problem)
@@ -684,24 +1032,45 @@ def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standa
     p_el, d_el = system.parent_element, system.daughter_element
     p_spike = _spike(sp, label, p_el, at("spike"))
     d_spike = _spike(sp, label, d_el, at("spike"))
-    p_mix, p_sig, p_bf = _run(mt, analysis, p_el, at("analysis"))
-    d_mix, d_sig, _d_bf = _run(mt, analysis, d_el, at("analysis"))
-    std = _standard(sd, constants, session, system.daughter_ratio, at("session"))
+    p_mix, p_sig, p_bf, p_bf_s, _pi = _run(mt, analysis, p_el, at("analysis"))
+    d_mix, d_sig, _d_bf, _d_bf_s, _di = _run(mt, analysis, d_el, at("analysis"))
+    std = _standard(standards, constants, session, system.daughter_ratio, at("session"))
     ref = _refset(constants)
+    naturals = _naturals(constants)
     kw: Dict[str, Any] = {}
     if p_bf is None:
         kw["parent_norm_ratio"] = _NORM_RATIO.get(p_el)
     else:
         kw["parent_bias_factor"] = p_bf
+        kw["parent_bias_sigma_1s"] = p_bf_s
     try:
         res = reduce_spiked_analysis(
             system.key, p_mix, d_mix, sample_mass, spike_mass, p_spike, d_spike,
             parent_mix_sigma_1s=p_sig, daughter_mix_sigma_1s=d_sig, daughter_norm_ratio=_NORM_RATIO.get(d_el),
-            parent_blank_ng=pb, daughter_blank_ng=db, standard=std, spike_rho=SPIKE_RHO, mc_draws=mc_draws, **kw)
+            sample_mass_sigma_1s=ws_s, spike_mass_sigma_1s=wt_s,
+            parent_blank_ng=pb, parent_blank_sigma_ng=pb_s, daughter_blank_ng=db, daughter_blank_sigma_ng=db_s,
+            daughter_blank_ratio=None if math.isnan(rb) else rb, daughter_blank_ratio_sigma_1s=rb_s,
+            parent_ratio_reproducibility_rel_1s=_lab(constants, "lab.pd_reproducibility_1s_pct") / 100.0,
+            natural={el: naturals[el] for el in (p_el, d_el) if el in naturals},
+            standard=std, spike_rho=SPIKE_RHO, mc_draws=mc_draws, **kw)
         eps = epsilon(res.daughter_ratio, res.daughter_ratio_sigma_1s, res.parent_ratio, 0.0, system, ref)
     except RatioDeskError as exc:
         raise CellError("Samples", FIRST_ROW + i, "A", "Analysis", f"analysis {analysis!r}: {exc}") from None
-    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike)
+    warn: List[str] = [f"poor spike-sample mix for {el}" for el in res.poor_mix]
+    warn += _plausibility(res, system, sample_mass, spike_mass)
+    zero = [_SIGMA_WORDS.get(n, n) for n in res.zero_sigma if not n.startswith(("parent_mix", "daughter_mix"))]
+    if any(n.startswith(("parent_mix", "daughter_mix")) for n in res.zero_sigma):
+        zero.append("measured ratio")
+    if zero:
+        warn.append("σ = 0 (nothing typed, no lab default) for: " + ", ".join(dict.fromkeys(zero)))
+    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike), tuple(warn)
+
+
+def analysis_checks(analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any
+                    ) -> Tuple[str, ...]:
+    """The Check warnings of one analysis (empty: "ok")."""
+    rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
+    return _analysis(str(analysis).strip(), *rows)[3]
 
 
 def analysis_result(analysis: str, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any,
@@ -727,7 +1096,8 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
     Returns
     -------
     float or str
-        The value; ``"check"`` returns ``"ok"`` or the list of warnings (poor spike–sample mix).
+        The value; ``"check"`` returns ``"ok"`` or the list of warnings (poor spike–sample mix,
+        implausible masses, magnification, blank share or concentration, inputs with σ = 0).
         ``"sample"``, ``"fraction"``, ``"system"`` return the Samples text.
 
     Raises
@@ -739,7 +1109,7 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
     if not a:
         return ""
     rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
-    res, eps, x_scale = _analysis(a, *rows)
+    res, eps, x_scale, warnings = _analysis(a, *rows)
     rnd = res.sigma_1s_random
     q = quantity.strip().lower()
     table: Dict[str, Callable[[], Any]] = {
@@ -753,7 +1123,7 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
         "y_1s_total": lambda: res.daughter_ratio_sigma_1s,
         "rho": lambda: res.rho_random, "eps0": lambda: eps.value, "eps0_2s": lambda: 2 * eps.sigma_1s,
         "blank_share_pct": lambda: 100 * res.blank_share_daughter,
-        "check": lambda: ("ok" if not res.poor_mix else MARKER + "; ".join(res.poor_mix)),
+        "check": lambda: ("ok" if not warnings else MARKER + "; ".join(warnings)),
     }
     if q not in table:
         raise InputError("quantity", f"unknown quantity {quantity!r}; use one of {', '.join(table)}")
@@ -858,6 +1228,8 @@ def isochron_value(quantity: str, system: Any, treatment: Any, selection: Any, r
         "eps_t": lambda: eps.value, "eps_t_2s": lambda: 2 * eps.sigma_1s,
         "mswd": lambda: _none_text(fit.mswd, "n/a for 2 rows"), "p": lambda: _none_text(fit.p_value, "n/a"),
         "slope": lambda: fit.slope, "slope_1s": lambda: fit.slope_sigma_1s,
+        "mswd_low": lambda: fit.mswd_limits_95[0] if fit.mswd_limits_95 else "n/a for 2 rows",
+        "mswd_high": lambda: fit.mswd_limits_95[1] if fit.mswd_limits_95 else "n/a for 2 rows",
         "message": lambda: _fit_message(fit),
     }
     if q not in table:
@@ -879,11 +1251,12 @@ def _age_95(fit: Any, age: Any, t95: float) -> float:
 
 
 def _fit_message(fit: Any) -> str:
-    if fit.mswd is None:
-        return "two-point age: no MSWD"
-    if fit.p_value is not None and fit.p_value < 0.05:
-        return f"MSWD {fit.mswd:.2f}, p {fit.p_value:.3f} < 0.05: scatter beyond the stated errors"
-    return "ok"
+    """"ok", or the notes on the MSWD test (:func:`reduction.regression.mswd_notes`): no MSWD for two
+    rows, a weak test at dof <= 2, an MSWD outside its χ² 5–95 % range (Wendt & Carl 1991)."""
+    from .regression import mswd_notes
+
+    notes = mswd_notes(fit)
+    return "; ".join(notes) if notes else "ok"
 
 
 # --------------------------------------------------------------------------------------------
@@ -987,6 +1360,16 @@ def results_formula(column: Column, row: int) -> Formula:
     return Formula("rdWorkbookAnalysis", args, guard=here)
 
 
+def standards_formula(column: Column, row: int) -> Formula:
+    """The formula of one computed Standards cell (role, factor, normalised, check statistics)."""
+    def here(key: str) -> Ref:
+        return Ref("Standards", STANDARDS.col_index(key), row, absolute=False, abs_col_only=True)
+
+    args = (column.quantity, here("session"), here("material"), here("ratio"), here("measured"),
+            table_ref(STANDARDS), table_ref(CONSTANTS))
+    return Formula("rdWorkbookStandard", args, guard=here("session"))
+
+
 def isochron_point_formula(column: Column, row: int) -> Formula:
     """x, sx, y, sy, ρ of a selected row: looked up on the Results sheet by analysis ID."""
     here = Ref("Isochron", 0, row, absolute=False, abs_col_only=True)
@@ -1030,6 +1413,10 @@ def all_computed_cells() -> List[Tuple[str, int, int]]:
 def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
     """Every computed cell of the template: (sheet, row, 0-based column) -> formula."""
     out: Dict[Tuple[str, int, int], Formula] = {}
+    for row in range(FIRST_ROW, STANDARDS.last_row + 1):
+        for j, c in enumerate(STANDARDS.columns):
+            if c.computed:
+                out[("Standards", row, j)] = standards_formula(c, row)
     for row in range(FIRST_ROW, RESULTS.last_row + 1):
         for j, c in enumerate(RESULTS.columns):
             out[("Results", row, j)] = results_formula(c, row)
@@ -1163,6 +1550,21 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         put(sheet, row, col, "")
     ins = {name: _block(work, table_ref(SHEET_BY_NAME[name])) for name in
            ("Samples", "Measured", "Spikes", "Standards", "Constants")}
+    std_t = Table.from_range(STANDARDS, ins["Standards"])
+    for i in range(len(std_t.rows)):
+        if not std_t.filled(i):
+            continue
+        row = FIRST_ROW + i
+        for j, c in enumerate(STANDARDS.columns):
+            if not c.computed:
+                continue
+            if std_t.get(i, "session") == "":
+                v: Any = run(lambda i=i: _raise(std_t.error(i, "session", "is empty but the row has data")))
+            else:
+                v = run(lambda c=c, i=i: standard_value(
+                    c.quantity, std_t.get(i, "session"), std_t.get(i, "material"), std_t.get(i, "ratio"),
+                    std_t.get(i, "measured"), ins["Standards"], ins["Constants"]))
+            put("Standards", row, j, v)
     samples = Table.from_range(SAMPLES, ins["Samples"])
     for i in range(len(samples.rows)):
         row = FIRST_ROW + i
@@ -1326,14 +1728,14 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         for k in range(len(ISOCHRON_SYSTEMS)):
             iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 1 + k)] = CellSpec(style="computed",
                                                                        number_format=fmt.get(q, "General"))
+    targets = {"Results": res, "Isochron": iso, "Standards": lay["Standards"]}
     for (sheet, row, col), f in formulas.items():
-        target = res if sheet == "Results" else iso
+        target = targets[sheet]
         spec = target.get((row, col)) or CellSpec(style="computed")
         spec.formula, spec.style = f, "computed"
-        if sheet == "Results":
-            spec.number_format = RESULTS.columns[col].number_format
-        elif col < len(ISOCHRON.columns):
-            spec.number_format = ISOCHRON.columns[col].number_format
+        columns = SHEET_BY_NAME[sheet].columns
+        if sheet != "Isochron" or col < len(columns):
+            spec.number_format = columns[col].number_format
         target[(row, col)] = spec
     for (top, left), (f, srow) in ellipse_formulas().items():
         iso[(HEADER_ROW, left)] = CellSpec(f"Ellipse of row {srow}: x", style="header")
