@@ -130,7 +130,10 @@ def jacobian(f: Model, x: Any, *, method: str = "central", rel_step: float = 1e-
         X[idx, idx] += h
         X[idx, n + idx] -= h
         Y = _call(f, X, 2 * n)
-        J = (Y[:, :n] - Y[:, n:]) / (2 * h)
+        # divide by the steps actually taken (x ± h rounded to floats), not the nominal 2h: this removes
+        # the step-representation error, leaving the truncation error O(h²) and rounding ε·|f|/h
+        # (Press et al. 2007, Numerical Recipes, 3rd ed., §5.7)
+        J = (Y[:, :n] - Y[:, n:]) / (X[idx, idx] - X[idx, n + idx])
     elif method == "complex":
         X = np.repeat(x0[:, None], n, axis=1).astype(complex)
         idx = np.arange(n)

@@ -409,7 +409,10 @@ def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
 
     for el in NATURAL_ELEMENTS:
         for key, quantity, value, source in composition_rows(el):
-            rows.append({"key": key, "quantity": quantity, "value": value, "sigma_1s": "",
+            # 15 significant digits: the value an .xlsx file keeps exactly (it stores 16 at most), so the
+            # composition read back from either file format is the same (it differs from the engine's
+            # default by < 1e-15, relative)
+            rows.append({"key": key, "quantity": quantity, "value": float(f"{value:.15g}"), "sigma_1s": "",
                          "note": "convention: CIAAW representative composition fractionated by the exponential law "
                                  "to the normalising ratio; replace the whole element with your lab's measured "
                                  "composition if you have one",

@@ -57,7 +57,7 @@ def test_bad_workbook_exits_nonzero_naming_sheet_row_column(tmp_path, capsys):
     tables = copy.deepcopy(demo.demo_tables())
     tables["Samples"][3]["spike_mass_g"] = "lots"
     path = tmp_path / "bad.xlsx"
-    write_xlsx(build_layout(tables, isochron_selection=demo.demo_selection()), path)
+    write_xlsx(build_layout(tables, constants=demo.demo_constants(), isochron_selection=demo.demo_selection()), path)
     rc = main(["reduce", str(path), "-o", str(tmp_path / "o")])
     assert rc == 1
     err = capsys.readouterr().err

@@ -28,7 +28,8 @@ Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
 
 
 def _evaluate(seed=demo.DEMO_SEED):
-    lay = build_layout(demo.demo_tables(seed), isochron_selection=demo.demo_selection())
+    lay = build_layout(demo.demo_tables(seed), constants=demo.demo_constants(),
+                       isochron_selection=demo.demo_selection())
     return evaluate(layout_grid(lay))
 
 
@@ -64,6 +65,8 @@ def test_noise_free_round_trip_is_exact(monkeypatch):
     monkeypatch.setattr(demo, "RUN_RATIOS", {k: tuple((r, 1e-12) for r, _ in v) for k, v in demo.RUN_RATIOS.items()})
     monkeypatch.setattr(demo, "STANDARD_SD_REL", {k: 1e-12 for k in demo.STANDARD_SD_REL})
     monkeypatch.setattr(demo, "SESSION_OFFSET", {k: 0.0 for k in demo.SESSION_OFFSET})
+    monkeypatch.setattr(demo, "LAB_SIGMAS", {k: 0.0 for k in demo.LAB_SIGMAS})   # typed weights etc. are the truth
+    monkeypatch.setattr(demo, "LU_BETA_1S", 0.0)
     fr0 = tuple(demo.DemoFraction(**{**f.__dict__, "parent_blank_ng": 0.0, "daughter_blank_ng": 0.0})
                 for f in demo.FRACTIONS)
     monkeypatch.setattr(demo, "FRACTIONS", fr0)

@@ -53,7 +53,7 @@ AGE_SMND = ("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age"], ISOCHRON_SUMMARY_COL + 
 
 @pytest.fixture(scope="module")
 def demo_grid():
-    lay = build_layout(demo.demo_tables(), isochron_selection=demo.demo_selection())
+    lay = build_layout(demo.demo_tables(), constants=demo.demo_constants(), isochron_selection=demo.demo_selection())
     return layout_grid(lay)
 
 
@@ -114,8 +114,8 @@ def test_write_read_round_trip_keeps_inputs_and_formulas(tmp_path, demo_grid, ex
     data = read_workbook(path)
     for s in ("Constants", "Spikes", "Samples", "Measured", "Standards"):
         sh = next(x for x in SHEETS if x.name == s)
-        want = sheet_block(demo_grid, s, 1, 0, sh.last_row, len(sh.columns) - 1)
-        got = sheet_block(data.grid, s, 1, 0, sh.last_row, len(sh.columns) - 1)
+        want = sheet_block(demo_grid, s, 1, 0, sh.last_row, sh.input_width - 1)
+        got = sheet_block(data.grid, s, 1, 0, sh.last_row, sh.input_width - 1)
         assert got == want, s
     ellipses = {("Isochron", r, c) for (r, c) in ellipse_formulas()}
     assert set(data.formulas) == set(expected_formulas()) | ellipses
