@@ -7,9 +7,9 @@ code: these functions compute the truth another way.
   file, CIAAW 2019/2021 tables: Meija et al. 2016, Pure Appl. Chem. 88, 293, and later updates)
   fractionated by the exponential law (Russell, Papanastassiou & Tombrello 1978, GCA 42, 1075) with
   the AME2020 atomic masses (Wang et al. 2021, Chin. Phys. C 45, 030003) until the element's
-  normalising ratio is exact; then the widely used 84Sr/86Sr = 0.056584 and 176Yb/173Yb = 0.79381
-  (both recalled from memory) are set. The fractionation factor is solved here in closed form with
-  mpmath at 40 digits, not by the engine's code.
+  normalising ratio is exact (an element without one, Ce, keeps the CIAAW fractions); then the widely
+  used 84Sr/86Sr = 0.056584 and 176Yb/173Yb = 0.79381 (both recalled from memory) are set. The
+  fractionation factor is solved here in closed form with mpmath at 40 digits, not by the engine's code.
 * Isotope-dilution mixtures: atoms of every isotope in the sample, the spike and the blank are added
   in mpmath; the measured ratios are the mixture's, multiplied by the exponential-law factor
   ``(m_i/m_ref)^(-β)`` (so that correcting with ``R·(m_i/m_ref)^β`` gives the true ratio back).
@@ -84,6 +84,17 @@ def sample_fractions(element: str, over: Optional[Mapping[str, float]] = None) -
 
 def molar_mass(fr: Mapping[str, mp.mpf]) -> mp.mpf:
     return mp.fsum(x * mass(i) for i, x in fr.items())
+
+
+def ratio(fr: Mapping[str, mp.mpf], num: str, den: str) -> float:
+    """Atom ratio num/den of a composition given as fractions, as a float."""
+    return float(fr[num] / fr[den])
+
+
+def fractionate(true_ratio: float, num: str, den: str, beta: float) -> float:
+    """A true ratio num/den as measured with exponential-law bias β: ``R (m_num/m_den)^(-β)``."""
+    b = mp.mpf(repr(float(beta)))
+    return float(mp.mpf(repr(float(true_ratio))) * (mass(num) / mass(den)) ** (-b))
 
 
 def mixture_ratios(element: str, reference: str, sample_umol: float, sample_fr: Mapping[str, mp.mpf],

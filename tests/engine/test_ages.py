@@ -121,9 +121,21 @@ def test_isochron_age_exact_line_and_lambda_record():
     age = isochron_age(fit, "sm-nd")
     assert age.age_ma == pytest.approx(1234.5, rel=1e-9)
     assert age.initial == pytest.approx(0.5105, rel=1e-10)
-    assert age.decay_constant == 6.54e-12 and age.decay_constant_sigma_1s == 0.0
+    # λ of Lugmair & Marti 1978 with σ = the relative σ of the IUPAC-IUGS half-life (Villa et al. 2020, GCA
+    # 285, 70: t1/2 = 1.0625 ± 0.0038 × 10^11 a, taken as 1σ) times 6.54e-12, rounded to 2.339e-14
+    assert age.decay_constant == 6.54e-12 and age.decay_constant_sigma_1s == 2.339e-14
+    assert age.decay_constant_sigma_1s == pytest.approx(6.54e-12 * 0.0038 / 1.0625, rel=1e-4)
     assert "Lugmair" in age.decay_constant_source and age.reference_set == "conventional"
-    assert age.age_sigma_1s_ma == pytest.approx(age.age_sigma_1s_ma_with_lambda)   # λ has σ = 0 here
+    # by hand: t = ln(1 + b)/λ, so ∂t/∂b = 1/((1 + b)λ) and ∂t/∂λ = −ln(1 + b)/λ² = −t/λ;
+    # σ_t(slope) = σ_b/((1 + b)λ), σ_t(λ) = t·σ_λ/λ, added in quadrature (slope and λ independent)
+    b, lam, slam = fit.slope, 6.54e-12, 2.339e-14
+    t = math.log1p(b) / lam
+    s_slope = fit.slope_sigma_1s / ((1 + b) * lam)
+    s_lam = t * slam / lam
+    assert s_lam / 1e6 == pytest.approx(1234.5 * 2.339e-14 / 6.54e-12, rel=1e-9)   # ≈ 4.415 Ma
+    assert age.age_sigma_1s_ma == pytest.approx(s_slope / 1e6, rel=1e-9)
+    assert age.age_sigma_1s_ma_with_lambda == pytest.approx(math.hypot(s_slope, s_lam) / 1e6, rel=1e-9)
+    assert age.age_sigma_1s_ma_with_lambda > age.age_sigma_1s_ma
 
 
 def test_isochron_age_sigma_finite_difference_and_lambda():

@@ -1,22 +1,25 @@
 """Isotope dilution against forward-modelled mixtures.
 
-Truth: natural compositions from the CIAAW representative isotopic compositions (via
-reduction.constants.isotope_fraction), AME2020 masses (Wang et al. 2021), INVENTED demo spikes of
-stated composition (reduction/data/spikes.json), known masses, and an exponential-law bias
-(Russell et al. 1978, GCA 42, 1075). The forward model here is written out independently of
-reduction.dilution (plain sums of moles of each isotope). Target: recovery to <= 1e-9 relative.
-The ID equation is the atom-fraction form of Smith 2000 (in Barshick, Duckworth & Smith (eds.),
-Inorganic Mass Spectrometry, Marcel Dekker, ch. 5) quoted in REFERENCE.md section 7.
+Truth: the natural compositions of RatioDesk's convention (CIAAW representative fractions,
+exponential-law fractionated with AME2020 masses, Wang et al. 2021, until the normalising ratio is
+exact; Russell et al. 1978, GCA 42, 1075), INVENTED demo spikes of stated composition
+(reduction/data/spikes.json), known masses, and an exponential-law bias. The forward model is
+tests/engine/independent_forward.py: mpmath sums of moles of each isotope, its own solution of the
+fractionation, none of reduction.dilution or reduction.composition. Target: recovery to <= 1e-9
+relative. The ID equation is the atom-fraction form of Smith 2000 (in Barshick, Duckworth & Smith
+(eds.), Inorganic Mass Spectrometry, Marcel Dekker, ch. 5) quoted in REFERENCE.md section 7.
 """
 import math
 
+import independent_forward as fwd
 import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import minimize_scalar
 
-from reduction.constants import isotope_fraction, isotope_mass
+from reduction.composition import natural_composition
+from reduction.constants import isotope_fraction
 from reduction.dilution import (
     calibrate_spike,
     element_isotopes,
@@ -35,21 +38,37 @@ SPIKES = load_demo_spikes()
 
 
 def truth_mixture(element, ref, conc_ug_g, w_s, spike, w_t, ratios, beta):
-    """Independent forward model: moles per isotope of sample (CIAAW + overrides) and spike, then the
-    exponential law R_meas = R_true (m_i/m_r)^-beta. Returns (measured ratios, true sample ratios,
-    conc µmol/g)."""
-    isos = element_isotopes(element)
-    r = {i: isotope_fraction(i).value / isotope_fraction(ref).value for i in isos}
-    for k, v in ratios.items():
-        r[k.split("/")[0]] = v
-    total = sum(r.values())
-    aw = sum(r[i] * isotope_mass(i).value for i in isos) / total
-    n_el = conc_ug_g / aw * w_s  # µmol
-    n_spike_el = spike.concentration_umol_g / spike.abundance(spike.spike_isotope) * w_t
-    amt = {i: n_el * r[i] / total + n_spike_el * spike.abundance(i) for i in isos}
-    m_r = isotope_mass(ref).value
-    meas = {f"{i}/{ref}": amt[i] / amt[ref] * (isotope_mass(i).value / m_r) ** (-beta) for i in isos if i != ref}
-    return meas, {f"{i}/{ref}": r[i] for i in isos}, conc_ug_g / aw
+    """Independent forward model (independent_forward): a sample of the natural convention with the
+    ratios ``ratios`` overridden, plus spike, measured with R_meas = R_true (m_i/m_r)^-beta.
+    Returns (measured ratios, true sample ratios, conc µmol/g)."""
+    fr = fwd.sample_fractions(element, ratios)
+    conc_umol = conc_ug_g / fwd.molar_mass(fr)
+    meas = fwd.mixture_ratios(element, ref, conc_umol * w_s, fr, spike.concentration_umol_g * w_t,
+                              spike.spike_isotope, dict(zip(spike.isotopes, spike.abundances)), beta)
+    return meas, {f"{i}/{ref}": fwd.ratio(fr, i, ref) for i in fr}, float(conc_umol)
+
+
+def test_natural_composition_convention_figures():
+    # The figures of the convention change (computed, not published): CIAAW fractions fractionated by the
+    # exponential law (Russell et al. 1978) with AME2020 masses until 146Nd/144Nd = 0.7219 (O'Nions et
+    # al. 1977) or 147Sm/152Sm = 0.56081 (Wasserburg et al. 1981, value recalled from memory) is exact.
+    # Computed by independent_forward (mpmath); the engine's composition must agree to 1e-12.
+    nd, sm = fwd.natural_fractions("Nd"), fwd.natural_fractions("Sm")
+    assert fwd.ratio(nd, "146Nd", "144Nd") == pytest.approx(0.7219, rel=1e-15)
+    assert fwd.ratio(sm, "147Sm", "152Sm") == pytest.approx(0.56081, rel=1e-15)
+    assert fwd.ratio(nd, "150Nd", "144Nd") == pytest.approx(0.236535, abs=1e-6)
+    assert fwd.ratio(sm, "149Sm", "152Sm") == pytest.approx(0.516748, abs=1e-6)
+    # the old rule (raw CIAAW ratio) is 0.16 % off for 150Nd/144Nd: the convention is not a no-op
+    raw = isotope_fraction("150Nd").value / isotope_fraction("144Nd").value
+    assert abs(raw / fwd.ratio(nd, "150Nd", "144Nd") - 1) > 1e-3
+    for el, f in (("Nd", nd), ("Sm", sm)):
+        comp = natural_composition(el)
+        for i in f:
+            assert comp.fraction(i) == pytest.approx(float(f[i]), rel=1e-12, abs=0)
+    assert natural_composition("Nd").ratio("150Nd", "144Nd") == pytest.approx(fwd.ratio(nd, "150Nd", "144Nd"),
+                                                                               rel=1e-12)
+    assert natural_composition("Sm").ratio("149Sm", "152Sm") == pytest.approx(fwd.ratio(sm, "149Sm", "152Sm"),
+                                                                               rel=1e-12)
 
 
 CASES = [
@@ -99,11 +118,10 @@ def test_smith_2000_atom_fraction_equation_by_hand():
     w_s, w_t, conc = 0.2, 0.04, 1.7
     meas, _, _ = truth_mixture("Nd", "144Nd", conc, w_s, spike, w_t, {}, 0.0)
     r_m = 1.0 / meas["150Nd/144Nd"]  # i = 144 (sample major here), k = 150 (spike)
-    a_s = {i: isotope_fraction(i).value for i in element_isotopes("Nd")}
-    tot = sum(a_s.values())
-    a_s = {i: v / tot for i, v in a_s.items()}
-    A_s = sum(a_s[i] * isotope_mass(i).value for i in a_s)
-    A_t = sum(spike.abundance(i) * isotope_mass(i).value for i in spike.isotopes)
+    # the sample's atom fractions: the natural convention (independent_forward), AME2020 masses
+    a_s = {i: float(v) for i, v in fwd.natural_fractions("Nd").items()}
+    A_s = sum(a_s[i] * float(fwd.mass(i)) for i in a_s)
+    A_t = sum(spike.abundance(i) * float(fwd.mass(i)) for i in spike.isotopes)
     C_t = spike.element_umol_g * A_t  # µg/g of spike solution
     c_s = C_t * (w_t / w_s) * (A_s / A_t) * (spike.abundance("144Nd") - r_m * spike.abundance("150Nd")) \
         / (r_m * a_s["150Nd"] - a_s["144Nd"])
@@ -173,9 +191,7 @@ def test_spike_calibration_by_reverse_id():
     # gravimetric natural Nd solution (invented concentration) mixed with the demo spike
     spike = SPIKES["demo-SmNd-149-150 Nd"]
     c_std_ug_g = 0.8
-    isos = element_isotopes("Nd")
-    tot = sum(isotope_fraction(i).value for i in isos)
-    aw = sum(isotope_fraction(i).value * isotope_mass(i).value for i in isos) / tot
+    aw = float(fwd.molar_mass(fwd.natural_fractions("Nd")))  # natural convention, independent_forward
     w_std = np.array([0.30, 0.25, 0.35])
     w_t = np.array([0.50, 0.40, 0.60])
     mix = [truth_mixture("Nd", "144Nd", c_std_ug_g, ws, spike, wt, {}, 0.0)[0]["150Nd/144Nd"]

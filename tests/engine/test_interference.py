@@ -1,6 +1,8 @@
-"""Isobaric interference stripping checked by forward models: beams built from CIAAW compositions
-(and the conventional interferent ratios in reduction/data/normalising.json), fractionated with a
-chosen exponential-law bias (Russell et al. 1978), then stripped cycle by cycle."""
+"""Isobaric interference stripping checked by forward models: beams built from the natural
+compositions of the convention (tests/engine/independent_forward.py: CIAAW fractions, exponential-law
+fractionated with AME2020 masses until the normalising ratio is exact, then 176Yb/173Yb = 0.79381),
+fractionated with a chosen exponential-law bias (Russell et al. 1978), then stripped cycle by cycle."""
+import independent_forward as fwd
 import numpy as np
 import pytest
 
@@ -11,24 +13,24 @@ from reduction.interference import INTERFERENCES, interferent_ratio, strip_beams
 from reduction.massbias import bias_apply
 
 
-def _frac(iso, beta, ref):
-    """Fractionated abundance of iso relative to ref (as measured), exponential law."""
-    return isotope_fraction(iso).value / isotope_fraction(ref).value * \
-        (isotope_mass(iso).value / isotope_mass(ref).value) ** (-beta)
-
-
 def test_interferent_ratios_from_reference_data():
-    # 144Sm/147Sm 0.2053 from the CIAAW Sm composition; 87Rb/85Rb = 1/2.5932 (inverted 85Rb/87Rb)
-    assert interferent_ratio("144Sm", "147Sm") == pytest.approx(0.2053)
-    assert interferent_ratio("87Rb", "85Rb") == pytest.approx(1 / 2.5932)
+    # Normalising and fixed ratios are exact in the convention: 87Rb/85Rb = 1/2.5932 (inverted 85Rb/87Rb)
+    assert interferent_ratio("87Rb", "85Rb") == pytest.approx(1 / 2.5932, rel=1e-14)
     # Goolaerts, Mattielli, de Jong, Weis & Scoates 2004, Chem. Geol. 206, 1-9: 175Lu/176Lu = 37.72,
     # inverted (authors after de Jong recalled from memory, REFERENCE.md section 4)
-    assert interferent_ratio("176Lu", "175Lu") == pytest.approx(0.02651)
+    assert interferent_ratio("176Lu", "175Lu") == pytest.approx(0.02651, rel=1e-14)
     # Chu et al. 2002, J. Anal. At. Spectrom. 17, 1567-1574: 176Yb/173Yb = 0.79381 (number recalled from memory)
-    assert interferent_ratio("176Yb", "173Yb") == pytest.approx(0.79381)
-    assert interferent_ratio("171Yb", "173Yb") == pytest.approx(1 / 1.132685)  # Chu et al. 2002, inverted
-    # not listed: from the CIAAW Yb fractions (REFERENCE.md section 3)
-    assert interferent_ratio("172Yb", "173Yb") == pytest.approx(0.21754 / 0.16098, rel=1e-4)
+    assert interferent_ratio("176Yb", "173Yb") == pytest.approx(0.79381, rel=1e-14)
+    assert interferent_ratio("171Yb", "173Yb") == pytest.approx(1 / 1.132685, rel=1e-14)  # Chu et al. 2002, inverted
+    # Other ratios: the CIAAW fractions fractionated by the exponential law to the normalising ratio,
+    # computed independently (independent_forward, mpmath). 144Sm/147Sm stays 0.2053 to 4 digits (CIAAW
+    # 0.0308/0.1500); 172Yb/173Yb moves from the raw CIAAW 0.21754/0.16098 by ~1.3e-4.
+    sm, yb = fwd.natural_fractions("Sm"), fwd.natural_fractions("Yb")
+    assert interferent_ratio("144Sm", "147Sm") == pytest.approx(fwd.ratio(sm, "144Sm", "147Sm"), rel=1e-12)
+    assert interferent_ratio("144Sm", "147Sm") == pytest.approx(0.2053, rel=1e-4)
+    assert interferent_ratio("172Yb", "173Yb") == pytest.approx(fwd.ratio(yb, "172Yb", "173Yb"), rel=1e-12)
+    assert interferent_ratio("172Yb", "173Yb") == pytest.approx(0.21754 / 0.16098, rel=3e-4)
+    assert abs(interferent_ratio("172Yb", "173Yb") / (0.21754 / 0.16098) - 1) > 1e-4
 
 
 def test_sm_on_nd_forward_model_per_cycle():
@@ -103,13 +105,15 @@ def test_table_covers_all_systems():
 
 
 def _fractionated(ratio, iso, mon, beta):
-    return bias_apply(ratio, isotope_mass(iso).value, isotope_mass(mon).value, beta)
+    """True ratio iso/mon as measured, exponential law R (m_iso/m_mon)^-β (independent_forward, mpmath)."""
+    return fwd.fractionate(ratio, iso, mon, beta)
 
 
 def test_all_sm_and_ce_isobars_on_nd_forward_model():
     # Natural Sm and Ce residue in an unspiked Nd run, each element with its own exponential-law bias
-    # (Russell et al. 1978): 144Sm, 148Sm, 150Sm from 147Sm; 142Ce from 140Ce. Ratios: CIAAW fractions
-    # (REFERENCE.md section 3), except 144Sm/147Sm = 0.2053 (the rounded conventional value of normalising.json).
+    # (Russell et al. 1978): 144Sm, 148Sm, 150Sm from 147Sm; 142Ce from 140Ce. Ratios: the natural convention
+    # computed by independent_forward (Sm fractionated to 147Sm/152Sm = 0.56081; Ce, without a normalising
+    # ratio, the CIAAW fractions).
     rng = np.random.default_rng(5)
     n = 30
     nd = {i: rng.uniform(0.5, 1.0, n) for i in ("142Nd", "143Nd", "144Nd", "146Nd", "148Nd", "150Nd")}
@@ -118,7 +122,7 @@ def test_all_sm_and_ce_isobars_on_nd_forward_model():
     beams = dict(nd, **{"147Sm": sm147, "140Ce": ce140})
     for target, iso, mon, m in (("144Nd", "144Sm", "147Sm", sm147), ("148Nd", "148Sm", "147Sm", sm147),
                                 ("150Nd", "150Sm", "147Sm", sm147), ("142Nd", "142Ce", "140Ce", ce140)):
-        r = 0.2053 if iso == "144Sm" else isotope_fraction(iso).value / isotope_fraction(mon).value
+        r = fwd.ratio(fwd.natural_fractions(iso.lstrip("0123456789")), iso, mon)
         beams[target] = nd[target] + m * _fractionated(r, iso, mon, beta[iso.lstrip("0123456789")])
     out = strip_beams(beams, "sm-nd", bias_factors=beta)
     for target in ("142Nd", "144Nd", "148Nd", "150Nd"):
