@@ -38,6 +38,7 @@ from .workbook import (
     RESULTS,
     SHEET_BY_NAME,
     SPIKES,
+    STANDARDS,
     Evaluation,
     WorkbookData,
     build_layout,
@@ -170,7 +171,26 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
                                                      "conc_sigma_1s")) for s in tables.get("Spikes", ()))
     name = os.path.basename(data.path)
     return ReportData(name, name, __version__, now, tuple(rows), tuple(panels), const_rows, spike_rows,
-                      tuple(ev.warnings))
+                      tuple(ev.warnings), _standards_summary(data.grid, ev))
+
+
+def _standards_summary(grid: Mapping[str, Any], ev: Evaluation) -> Tuple[Tuple[Any, ...], ...]:
+    """One row per (session, ratio, material) of the Standards sheet with its computed check values."""
+    col = {c.key: j for j, c in enumerate(STANDARDS.columns)}
+    seen: Dict[Tuple[str, ...], List[Any]] = {}
+    for row in range(FIRST_ROW, STANDARDS.last_row + 1):
+        typed = sheet_block(grid, "Standards", row, 0, row, STANDARDS.input_width - 1)[0]
+        if typed[col["session"]] in ("", None):
+            continue
+        key = tuple(str(typed[col[k]]) for k in ("session", "ratio", "material"))
+        if key in seen:
+            seen[key][4] += 1
+            continue
+        role = ev.cells.get(("Standards", row, col["role_used"]), "")
+        vals = [ev.cells.get(("Standards", row, col[k]), "") for k in ("check_mean", "accepted", "dev_ppm",
+                                                                       "dev_eps", "z")]
+        seen[key] = [*key, role, 1, *vals]
+    return tuple(tuple(v) for v in seen.values())
 
 
 def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str], None]) -> List[Tuple[Any, ...]]:

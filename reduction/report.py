@@ -41,6 +41,9 @@ class ReportData:
     constants: Tuple[Tuple[Any, ...], ...]     # PROVENANCE_KEYS order: key, quantity, value, 1σ, note, unit, source
     spikes: Tuple[Tuple[Any, ...], ...]
     notes: Tuple[str, ...] = field(default=())
+    #: one row per session, ratio and material: session, ratio, material, role, runs, mean normalised,
+    #: accepted, mean − accepted (ppm), (ε), z-score
+    standards: Tuple[Tuple[Any, ...], ...] = field(default=())
 
 
 def _fmt(v: Any, nd: int = 6) -> str:
@@ -267,6 +270,16 @@ def write_report(data: ReportData, path: Any) -> None:
                      notes=("How the 1σ was set: the published uncertainty and its confidence level, converted to 1σ. "
                             "Status 'recalled from memory' marks a value, level or citation that was not checked "
                             "against the original publication: check it before reporting.", CAUTION))
+        if data.standards:
+            _table_pages(pdf, "Reference materials per session: the primary and the checks (Standards sheet)",
+                         ("Session", "Ratio", "Material", "Role", "Runs", "Mean normalised", "Accepted",
+                          "Mean − accepted (ppm)", "Mean − accepted (ε)", "z-score"), data.standards, data,
+                         fontsize=7, notes=(
+                             "Each session is normalised to ONE primary material: factor = its accepted value / the "
+                             "mean of its runs. Every other material is a check, normalised with that factor and "
+                             "compared with its accepted value; checks never enter the factor. z = deviation / "
+                             "(check's standard error, factor's random σ and both accepted values' σ, in "
+                             "quadrature).", CAUTION))
         _table_pages(pdf, "Spike calibrations used (Spikes sheet)", ("Spike", "Element", "Calibrated on",
                                                                      "Spike isotope", "µmol/g", "1σ (abs, µmol/g)"),
                      data.spikes, data, fontsize=8, notes=(CAUTION,))
