@@ -553,7 +553,8 @@ def rdAgeModel(daughter: Any, daughterSigma: Any, parent: Any, parentSigma: Any,
     m = engine("ages").model_age(number("daughter", daughter), number("daughterSigma", daughterSigma),
                                  number("parent", parent), number("parentSigma", parentSigma), text("system", system),
                                  text("reservoir", reservoir, "chur"), reference(refset), number("rho", rho, 0.0))
-    return row(cell(m.age_ma), cell(m.age_sigma_1s_ma))
+    check = "ok" if not m.flags else MARKER + "; ".join(m.flags)
+    return row(cell(m.age_ma), cell(m.age_sigma_1s_ma), check)
 
 
 @cell_function(rename={"daughter_ratio": "daughter", "parent_ratio": "parent", "t_ma": "tMa"})
@@ -678,7 +679,7 @@ def rdCycles(cycles: Any, rejectK: Any = None, minKept: Any = None) -> Any:
     if isinstance(rejectK, str) and rejectK.strip().lower() == "none":
         k: Optional[float] = None
     else:
-        k = number("rejectK", rejectK, 2.0) or 2.0  # an empty cell arrives as 0: the default
+        k = number("rejectK", rejectK, 3.5) or 3.5  # an empty cell arrives as 0: the default (robust rule)
     n_min = number("minKept", minKept, 3.0) or 3.0
     if n_min != int(n_min):
         raise CellMessage(f"minKept must be a whole number, got {n_min!r}")

@@ -154,11 +154,14 @@ FUNCTIONS: Tuple[Function, ...] = (
              "a cell function).", (_v("value", "Any value or cell."),), "(none)"),
     # -- cycles ---------------------------------------------------------------------------------
     Function("rdCycles", "RD.CYCLES", "cycles",
-             "Cycle statistics of one analysis with iterative k-sigma outlier rejection: one row of 5 cells: "
-             "mean, its standard error (1 sigma), cycle SD, cycles kept, cycles rejected. Empty cells are "
-             "missing cycles.",
+             "Cycle statistics of one analysis after one robust outlier pass (cycles more than k robust SD "
+             "from the median are rejected; robust SD = 1.4826 x median absolute deviation): one row of 5 "
+             "cells: mean, its standard error (1 sigma), cycle SD, cycles kept, cycles rejected. Empty "
+             "cells are missing cycles.",
              (_r("cycles", "The cycle values of one analysis (one row or one column)."),
-              _v("rejectK", "Optional: reject cycles more than k SD from the mean (default 2; \"none\": keep all)."),
+              _v("rejectK", "Optional: reject cycles more than k robust SD from the median (default 3.5, which "
+                            "rejects only gross outliers and keeps the standard error honest; \"none\": "
+                            "keep all)."),
               _v("minKept", "Optional: never keep fewer cycles than this (default 3).")),
              "cycles.cycle_stats", "array"),
     # -- interference -----------------------------------------------------------------------------
@@ -296,8 +299,9 @@ FUNCTIONS: Tuple[Function, ...] = (
              (_r("point1", "First point as one row of 4 or 5 cells: x, sx, y, sy and optionally rho."),
               _r("point2", "Second point, the same way."), _SYSTEM, _REFSET), "ages.two_point_age", "array"),
     Function("rdAgeModel", "RD.AGE.MODEL", "age",
-             "Single-stage model age in Ma relative to CHUR or the depleted mantle: one row of 2 cells: age, "
-             "1 sigma.",
+             "Single-stage model age in Ma relative to CHUR or the depleted mantle: one row of 3 cells: age, "
+             "1 sigma, check (ok, or a warning: older than the solar system, P/D close to the reservoir's, "
+             "sigma above half the age).",
              (_D, _D1S, _P, _P1S, _SYSTEM, _v("reservoir", "Optional reservoir: CHUR (default) or DM (UR for Sr)."),
               _v("rho", "Optional: correlation of the daughter and parent ratio errors (default 0)."), _REFSET),
              "ages.model_age", "array"),

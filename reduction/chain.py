@@ -77,7 +77,7 @@ def _split(r: str) -> Tuple[str, str]:
 def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], ratios: Sequence[str], *,
                   norm_ratio: Optional[str] = None, norm_true: Optional[float] = None, law: str = "exponential",
                   bias_factors: Optional[Mapping[str, Union[float, str]]] = None,
-                  reject_k: Optional[float] = 2.0, max_bias_iter: int = 20,
+                  reject_k: Optional[float] = 3.5, max_bias_iter: int = 20,
                   interferent_ratios: Optional[Mapping[str, float]] = None,
                   analyte_bias_factor: Optional[float] = None) -> CycleReduction:
     """Strip isobars cycle by cycle, form ratios, normalise per cycle (optional), then average.
@@ -100,8 +100,10 @@ def reduce_cycles(beams: Mapping[str, Any], system: Union[str, IsotopeSystem], r
         **An interfering element not listed takes the analyte's β** (common practice): its per-cycle
         factor with ``norm_ratio``, else ``analyte_bias_factor``; with neither it is stripped
         unfractionated (β = 0). ``interferent_bias`` of the result says which was used.
-    reject_k : float or None
-        Outlier threshold for :func:`reduction.cycles.cycle_stats`.
+    reject_k : float or None, default 3.5
+        Threshold of the default (robust) rule of :func:`reduction.cycles.cycle_stats`: one pass rejecting
+        cycles with ``|x - median| > reject_k * 1.4826 * MAD`` (modified z-score, Iglewicz & Hoaglin 1993),
+        which leaves the SEM honest on normal cycles; ``None`` keeps every cycle.
     interferent_ratios : mapping of str to float, optional
         True interferent/monitor ratios keyed ``"144Sm/147Sm"`` etc., passed to
         :func:`reduction.interference.strip_beams`; default natural. **Spiked runs:** the residual

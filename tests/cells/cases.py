@@ -181,9 +181,9 @@ def _two_point() -> Any:
     return ((a.age_ma, a.age_sigma_1s_ma, a.age_sigma_1s_ma_with_lambda, a.initial, a.initial_sigma_1s),)
 
 
-def _model(reservoir: str = "CHUR", rho: float = 0.0) -> Any:
-    m = ages.model_age(0.51150, 5e-6, 0.1100, 0.0011, "sm-nd", reservoir, None, rho)
-    return ((m.age_ma, m.age_sigma_1s_ma),)
+def _model(reservoir: str = "CHUR", rho: float = 0.0, d: float = 0.51150, p: float = 0.1100) -> Any:
+    m = ages.model_age(d, 5e-6, p, 0.0011, "sm-nd", reservoir, None, rho)
+    return ((m.age_ma, m.age_sigma_1s_ma, "ok" if not m.flags else MARK + "; ".join(m.flags)),)
 
 
 def _eps(with_reference: bool = False) -> Any:
@@ -237,7 +237,7 @@ def _row(names: Sequence[str], d: Dict[str, float]) -> Tuple[R, R]:
     return R((tuple(names),)), R((tuple(d[k] for k in names),))
 
 
-def _cycles(k: Any = 2.0) -> Any:
+def _cycles(k: Any = 3.5) -> Any:
     st = cycles.cycle_stats(CYC, reject_k=k)
     return ((st.mean, st.sem_1s, st.sd_1s, st.n_kept, st.n_rejected),)
 
@@ -381,6 +381,9 @@ CASES: List[Case] = [
     Case("age-two-point", "rdAgeTwoPoint", (_P1, _P2, L("sm-nd")), _two_point, array=True),
     Case("age-model-chur", "rdAgeModel", (L(0.51150), L(5e-6), L(0.1100), L(0.0011), L("sm-nd")), _model,
          array=True),
+    # 147Sm/144Nd 0.1900, within 10 % of CHUR's: the age comes with its warning in the third cell
+    Case("age-model-flagged", "rdAgeModel", (L(0.51250), L(5e-6), L(0.1900), L(0.0011), L("sm-nd")),
+         lambda: _model(d=0.51250, p=0.1900), array=True),
     Case("age-model-dm", "rdAgeModel", (L(0.51150), L(5e-6), L(0.1100), L(0.0011), L("sm-nd"), L("DM"), L(0.3)),
          lambda: _model("DM", 0.3), array=True),
     Case("initial-ratio", "rdInitialRatio", (L(Y[0]), L(X[0]), L(1000.0), L("sm-nd")),

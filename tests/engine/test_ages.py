@@ -325,3 +325,24 @@ def test_epsilon_bad_input_named():
         epsilon(0.5126, 1e-6, 0.15, -5.0, "sm-nd")
     with pytest.raises(InputError, match="rho"):
         epsilon(0.5126, 1e-6, 0.15, 0.0, "sm-nd", parent_sigma_1s=1e-4, rho=1.0)
+
+
+def test_model_age_flags_say_why_an_age_should_not_be_read_at_face_value():
+    """T_CHUR flags: beyond the solar system's age (4567.3 Ma, Connelly et al. 2012, recalled from
+    memory), 147Sm/144Nd within 10 % of CHUR's (common practice). Hand check of the age itself:
+    T = ln(1 + (R - R_CHUR)/(P - P_CHUR)) / λ (single-stage model, e.g. DePaolo 1988, Neodymium
+    Isotope Geochemistry, Springer; recalled from memory)."""
+    from reduction.ages import model_age
+    from reduction.constants import reference_set
+
+    rs = reference_set()
+    lam = rs.decay_constant("Sm147").value
+    r_c, p_c = rs.reservoir("CHUR", "143Nd/144Nd").value, rs.reservoir("CHUR", "147Sm/144Nd").value
+    ok = model_age(0.51150, 5e-6, 0.1100, 0.0011, "sm-nd")
+    assert ok.age_ma == pytest.approx(math.log1p((0.51150 - r_c) / (0.1100 - p_c)) / lam / 1e6, rel=1e-12)
+    assert ok.flags == () and ok.flag_codes == ()
+    near = model_age(0.51250, 5e-6, 0.1900, 0.0011, "sm-nd")
+    assert "parent-ratio-near-reservoir" in near.flag_codes
+    old = model_age(0.5090, 5e-6, 0.1800, 0.0011, "sm-nd")       # the issue's T_CHUR ≈ 6.3 Ga kind of case
+    assert old.age_ma > 4567.3 and "older-than-solar-system" in old.flag_codes
+    assert len(old.flags) == len(old.flag_codes)

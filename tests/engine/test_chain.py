@@ -74,7 +74,7 @@ def raw_runs(name, w_t=0.08, beta_nd=1.62, beta_sm=1.35, n_cycles=60):
     for iso, target in (("144Sm", "144Nd"), ("150Sm", "150Nd")):
         nd[target] = nd[target] + mon * meas_mix[f"{iso}/147Sm"]
     nd["147Sm"] = mon
-    # one wild cycle in each run, appended (rejected at 2 SD)
+    # one wild cycle in each run, appended (a gross outlier: rejected by the robust pass)
     for b, iso in ((nd, "143Nd"), (sm, "147Sm")):
         for k in b:
             b[k] = np.append(b[k], b[k][-1])

@@ -236,3 +236,20 @@ def test_subprocess_bad_input_no_traceback(tmp_path):
     ok = subprocess.run([sys.executable, "-m", "reduction", "isochron", str(PEARSON), "--json"],
                         capture_output=True, text=True, cwd=str(ROOT), timeout=120)
     assert ok.returncode == 0 and json.loads(ok.stdout)["dof"] == 8
+
+
+def test_mswd_range_position_and_weak_test_note(tmp_path, capsys):
+    """The CLI shows the MSWD acceptance range (χ² 5-95 % over dof; Wendt & Carl 1991) and says when
+    dof <= 2 makes the test weak. scipy.stats.chi2 is the independent oracle."""
+    from scipy.stats import chi2
+
+    r = json.loads(run(capsys, "isochron", str(PEARSON), "--json")[1])
+    assert r["mswd_limits_95"] == pytest.approx([chi2.ppf(0.05, 8) / 8, chi2.ppf(0.95, 8) / 8], rel=1e-6)
+    assert r["mswd_position"] == "within" and r["notes"] == []
+    base = np.loadtxt(PEARSON, delimiter=",", skiprows=1)[:3]
+    text = "x,sx,y,sy\n" + "".join(f"{a},{b},{c},{d}\n" for a, b, c, d, _ in base)
+    rc, out, _ = run(capsys, "isochron", write(tmp_path, text))
+    assert rc == 0
+    assert "1 degree of freedom" in out and "weak" in out
+    lo, hi = chi2.ppf(0.05, 1), chi2.ppf(0.95, 1)
+    assert f"{lo:.3g} - {hi:.3g}" in out

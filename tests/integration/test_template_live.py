@@ -181,6 +181,10 @@ if __name__ != "__main__":
         sheet, row, col = key
         if sheet == "Results":
             name = RESULTS.columns[col].key
+        elif sheet == "Standards":
+            from reduction.workbook import STANDARDS
+
+            name = {"z": "z_1s"}.get(STANDARDS.columns[col].key, STANDARDS.columns[col].key)   # z divides by a σ
         elif col >= ELLIPSE_COL0:
             name = "ellipse_1s"      # outline = centre + Cholesky factor of the covariance: σ-derived
         elif col < len(ISOCHRON.columns):
