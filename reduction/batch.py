@@ -34,6 +34,7 @@ from .workbook import (
     ISOCHRON_SYSTEMS,
     ISOCHRON_TREATMENT_ROW,
     KEY_ROW,
+    MARKER,
     PROVENANCE_HEADER,
     RESULTS,
     SHEET_BY_NAME,
@@ -268,7 +269,17 @@ def _summarise(outcome: ReduceOutcome) -> None:
             m = f"{mswd:.2f}" if isinstance(mswd, float) else str(mswd)
             t = f"± {tot:.2f} Ma (2σ, with decay constant and spike calibration)" if isinstance(tot, float) else \
                 f"total: {tot}"
-            print(f"  {system} isochron: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), {t}, MSWD {m}")
+            lo, hi, msg = (ev.cells.get(("Isochron", qrow[q], col)) for q in ("mswd_low", "mswd_high", "message"))
+            rng = f" (acceptance range {lo:.2f}-{hi:.2f})" if isinstance(lo, float) and isinstance(hi, float) else ""
+            print(f"  {system} isochron: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), {t}, MSWD {m}{rng}")
+            if isinstance(msg, str) and msg not in ("", "ok"):
+                print(f"    note: {msg}")
+    checks = sorted((row, v) for (sheet, row, col), v in ev.cells.items()
+                    if sheet == "Results" and col == RESULTS.col_index("check") and isinstance(v, str)
+                    and v not in ("", "ok"))
+    if checks:
+        print(f"  {len(checks)} analyses have Check warnings (Results column {RESULTS.letter('check')}), "
+              f"e.g. row {checks[0][0]}: {checks[0][1].lstrip(MARKER)}")
     for w in outcome.warnings:
         print(f"  warning: {w}")
     print(f"wrote {outcome.results_xlsx}")

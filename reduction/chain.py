@@ -564,8 +564,12 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         bad = [OUTPUTS[j] for j in range(4) if y0[j] <= 0]
         raise UndefinedResultError(f"blank correction leaves a non-positive {', '.join(bad)}: blank too large")
     groups = {g: [j for j, gg in enumerate(grp) if gg == g] for g in ("random", "systematic")}
-    # absolute steps: relative to each input, but never zero (blanks may be 0)
-    steps = 1e-6 * np.where(x0 != 0, np.abs(x0), 1.0)
+    # absolute steps: 1e-6 of each input (never zero: blanks may be 0), but at least 1 % of its σ, so
+    # that an input of tiny value and weak leverage (a 0.03 ng blank) moves the outputs by far more than
+    # their rounding (its derivative is then good to ~1e-9, not ~1e-5). The model is smooth on the scale
+    # of σ, so the central difference's truncation error stays ~1e-4 of the already small
+    # second-order term (the step-size trade-off: Press et al. 2007, Numerical Recipes, 3rd ed., §5.7).
+    steps = np.maximum(1e-6 * np.where(x0 != 0, np.abs(x0), 1.0), 1e-2 * np.array(sig))
     prop = propagate_linear(model, x0, cov, groups=groups, names=OUTPUTS, abs_step=steps)
     cov_y = prop.cov
     cr = prop.parts.get("random", np.zeros((4, 4)))
