@@ -201,7 +201,7 @@ STANDARDS = Sheet(
      _c("sigma_1s", "1σ (abs)", required=False, width=11, number_format="0.00E+00"),
      _c("date", "Date", "text", required=False, width=11), _c("run", "Run", "text", required=False, width=14),
      _c("role", "Role (primary/check)", "text", required=False, width=11),
-     _c("role_used", "Role used", "computed", quantity="role", width=9),
+     _c("role_used", "Role used", "computed", quantity="role", width=16),
      _c("factor", "Session factor", "computed", quantity="factor", number_format="0.0000000", width=11),
      _c("normalised", "Normalised", "computed", quantity="normalised", number_format="0.0000000", width=12),
      _c("check_mean", "Mean normalised (material, session)", "computed", quantity="mean", number_format="0.0000000",
@@ -802,11 +802,11 @@ def _session_standards(standards: Rows, constants: Rows, session: str, ratio: st
     default = DEFAULT_PRIMARY.get(ratio)
     not_check = [m for m, r in roles.items() if "check" not in r]
     if typed:
-        primary, how = typed[0], "marked primary"
+        primary, how = typed[0], "marked"
     elif default in by_mat and "check" not in roles[default]:
-        primary, how = default, f"default primary for {ratio}"
+        primary, how = default, "default"
     elif len(not_check) == 1 and len(by_mat) == 1:
-        primary, how = not_check[0], "the session's only material"
+        primary, how = not_check[0], "only material"
     else:
         raise t.error(hits[0], "role", f"session {session!r} has no primary reference material for {ratio} "
                       f"(materials: {', '.join(by_mat)}): type 'primary' in the Role column of its rows")
@@ -881,7 +881,7 @@ def standard_value(quantity: str, session: Any, material: Any, ratio: Any, measu
     if is_primary:
         mean = f.mean * f.factor
         table: Dict[str, Any] = {"mean": mean, "accepted": f.accepted, "dev_ppm": (mean / f.accepted - 1) * 1e6,
-                                 "dev_eps": (mean / f.accepted - 1) * 1e4, "z": "primary: defines the factor"}
+                                 "dev_eps": (mean / f.accepted - 1) * 1e4, "z": "n/a: primary"}
     else:
         hit = next((v for k, v in ss.checks.items() if k.lower() == mat.lower()), None)
         if hit is None:
@@ -1724,7 +1724,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
     fmt = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_2s_total": "0.00", "x_scale_1s_pct": "0.0000",
            "age_95": "0.00", "initial": "0.0000000",
            "initial_2s": "0.0E+00", "eps_t": "0.00", "eps_t_2s": "0.00", "mswd": "0.00", "p": "0.000",
-           "slope": "0.0000000", "slope_1s": "0.0E+00", "n": "0"}
+           "slope": "0.0000000", "slope_1s": "0.0E+00", "n": "0", "mswd_low": "0.00", "mswd_high": "0.00"}
     for q_i, (q, label, unit) in enumerate(ISOCHRON_QUANTITIES):
         iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0)] = CellSpec(label, style="label")
         iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 3)] = CellSpec(unit, style="note")

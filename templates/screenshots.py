@@ -26,6 +26,7 @@ import install as lo  # noqa: E402
 
 SHOTS = (  # (file, sheet, cell to select)
     ("samples.png", "Samples", "F7"),
+    ("standards.png", "Standards", "N11"),
     ("results.png", "Results", "I5"),
     ("isochron.png", "Isochron", "J9"),
 )
