@@ -15,6 +15,11 @@ Cells never lie:
 * a message arriving as an input (another RatioDesk cell's message) is passed on with the argument
   it came through: ``"⚠ from sy: ..."``, leading the user to the first cause.
 * an undefined result says why.
+* no call does unbounded work: every argument that sizes work or output (points, cycles, values,
+  runs, ratios, spike isotopes, table cells, any range's cells) is checked against its bound in
+  ``functions.py`` (``MAX_*``) before the engine is called, with a message naming the argument
+  (``"⚠ points must be a whole number from 3 to 10000, got 1e+09"``); the caches below hold at most
+  :data:`CACHE_MAX_CELLS` input cells each.
 
 The engine is imported lazily, on the first call that needs it, so a LibreOffice without numpy or
 scipy shows :data:`NEEDS_NUMPY` in every cell instead of Err:504; problems are logged to
@@ -40,6 +45,15 @@ else:  # imported as a top-level module (tests put macros/ on sys.path)
     import functions as _table
 
 MARKER = _table.MESSAGE_MARKER
+MAX_RANGE_CELLS = _table.MAX_RANGE_CELLS
+MAX_ISOCHRON_POINTS = _table.MAX_ISOCHRON_POINTS
+MAX_VALUES = _table.MAX_VALUES
+MAX_ELLIPSE_POINTS = _table.MAX_ELLIPSE_POINTS
+MAX_NAMED_RATIOS = _table.MAX_NAMED_RATIOS
+MAX_SPIKE_ISOTOPES = _table.MAX_SPIKE_ISOTOPES
+MAX_TABLE_CELLS = _table.MAX_TABLE_CELLS
+#: Input cells one result cache may hold (about 80 bytes each as LibreOffice delivers them: ~80 MB).
+CACHE_MAX_CELLS = 1_000_000
 YEARS_PER_MA = 1.0e6
 ENGINE_PACKAGES = ("ratiodesk_engine", "reduction")
 NEEDS_NUMPY = (MARKER + "RatioDesk needs numpy and scipy in LibreOffice's Python; install them with: "
@@ -199,11 +213,12 @@ def _cells(name: str, grid: Any) -> List[Any]:
     if isinstance(grid, tuple):
         rows = len(grid)
         cols = len(grid[0]) if rows else 0
-        if cols == 1:
-            return [r[0] for r in grid]
-        if rows == 1:
-            return list(grid[0])
-        raise CellMessage(f"{name} must be one column or one row, got {rows} rows x {cols} columns")
+        if cols != 1 and rows != 1:
+            raise CellMessage(f"{name} must be one column or one row, got {rows} rows x {cols} columns")
+        if rows * cols > MAX_RANGE_CELLS:
+            raise CellMessage(f"{name} is a range of {rows * cols} cells; at most {MAX_RANGE_CELLS} cells (one "
+                              "whole column of a standard sheet)")
+        return [r[0] for r in grid] if cols == 1 else list(grid[0])
     return [grid]
 
 
@@ -218,12 +233,14 @@ def _is_empty(v: Any) -> bool:
     return v is None or v == ""
 
 
-def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = ()) -> Tuple[Dict[str, Any], List[int]]:
+def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = (),
+            limit: Optional[Tuple[int, str]] = None) -> Tuple[Dict[str, Any], List[int]]:
     """Read parallel numeric columns; return ``({name: list of float or None}, kept_rows)``.
 
     ``named`` is ``[(argument name, grid), ...]``; an ``optional`` argument may be ``None``
     (omitted) or entirely empty, and is then returned as ``None``. Rows empty in every given
-    range are skipped; ``kept_rows`` lists the 1-based range rows that were kept.
+    range are skipped; ``kept_rows`` lists the 1-based range rows that were kept. ``limit``,
+    ``(most, noun)``, bounds the kept rows (e.g. ``(1000, "points")``).
     """
     opt = set(optional)
     lists: Dict[str, List[Any]] = {}
@@ -245,12 +262,14 @@ def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = ()) -> T
         return {name: None for name, _ in named}, []
     n = first[1]
     if all(set(map(type, c)) == _FLOAT_ONLY for c in lists.values()):  # the common case, at C speed
+        _within(first[0], n, limit)
         out_fast: Dict[str, Any] = {name: None for name, _ in named}
         out_fast.update(lists)
         return out_fast, list(range(1, n + 1))
     kept = [i for i in range(n) if not all(_is_empty(c[i]) for c in lists.values())]
     if not kept:
         raise CellMessage(f"{first[0]} has no values (all {n} rows are empty)")
+    _within(first[0], len(kept), limit)
     out: Dict[str, Any] = {name: None for name, _ in named}
     for name, cells in lists.items():
         vals = []
@@ -268,6 +287,81 @@ def columns(named: Sequence[Tuple[str, Any]], optional: Iterable[str] = ()) -> T
                 raise CellMessage(f"row {i + 1} of {name} is text {v!r}, not a number")
         out[name] = vals
     return out, [i + 1 for i in kept]
+
+
+def _within(name: str, count: int, limit: Optional[Tuple[int, str]]) -> None:
+    """Refuse more than ``limit = (most, noun)`` rows with values in the argument ``name``.
+
+    Raises
+    ------
+    CellMessage
+        ``"x has 1001 points; at most 1000 points in one call ..."``.
+    """
+    if limit is not None and count > limit[0]:
+        raise CellMessage(f"{name} has {count} {limit[1]}; at most {limit[0]} {limit[1]} in one call (a bound that "
+                          "keeps every cell fast)")
+
+
+def whole(name: str, v: Any, default: float, low: int, high: int, zero_is_default: bool = False) -> int:
+    """A count argument: a whole number from ``low`` to ``high``.
+
+    Parameters
+    ----------
+    name : str
+        The argument's name, for the message.
+    v : Any
+        The argument as delivered.
+    default : float
+        The value when the argument is omitted.
+    low, high : int
+        The bounds, both allowed.
+    zero_is_default : bool
+        Read 0 as omitted (a reference to one empty cell arrives as 0.0).
+
+    Returns
+    -------
+    int
+        The count.
+
+    Raises
+    ------
+    CellMessage
+        Not a number, not whole, or outside ``low``..``high``.
+    """
+    n = number(name, v, default)
+    if zero_is_default and n == 0.0:
+        n = default
+    if not (low <= n <= high and n == int(n)):
+        raise CellMessage(f"{name} must be a whole number from {low} to {high}, got {n:g}")
+    return int(n)
+
+
+def table_range(name: str, grid: Any) -> Any:
+    """A table argument of the RD.WORKBOOK.* functions, unchanged, once its size is within the bound.
+
+    Parameters
+    ----------
+    name : str
+        The argument's name, for the message.
+    grid : Any
+        The range as delivered (rows of cells).
+
+    Returns
+    -------
+    Any
+        ``grid`` itself.
+
+    Raises
+    ------
+    CellMessage
+        More than :data:`MAX_TABLE_CELLS` cells (rows x columns).
+    """
+    if isinstance(grid, tuple) and grid:
+        rows, cols = len(grid), len(grid[0])
+        if rows * cols > MAX_TABLE_CELLS:
+            raise CellMessage(f"{name} is a range of {rows} x {cols} = {rows * cols} cells; at most "
+                              f"{MAX_TABLE_CELLS} cells per table (the template's largest table has 2057)")
+    return grid
 
 
 def _one(name: str, grid: Tuple[Tuple[Any, ...], ...]) -> Any:
@@ -361,12 +455,38 @@ def call(fn: Callable, rowmap: Optional[List[int]], *args: Any, **kwargs: Any) -
         raise
 
 
-class _Cache:
-    """Results by inputs, so accessor cells reading the same fit reuse it (first in, first out)."""
+def input_cells(*args: Any) -> int:
+    """Cells in the arguments as delivered.
 
-    def __init__(self, size: int = 256) -> None:
+    Parameters
+    ----------
+    *args : Any
+        Arguments as LibreOffice delivers them.
+
+    Returns
+    -------
+    int
+        A range counts rows x columns, any other value 1.
+    """
+    n = 0
+    for a in args:
+        n += len(a) * len(a[0]) if type(a) is tuple and a and type(a[0]) is tuple else 1
+    return n
+
+
+class _Cache:
+    """Results by inputs, so accessor cells reading the same fit reuse it (first in, first out).
+
+    The keys are the inputs as delivered, so the cache also bounds the input cells it holds
+    (``max_cells``): the oldest entries go first, and inputs larger than a quarter of it are not kept.
+    """
+
+    def __init__(self, size: int = 256, max_cells: int = CACHE_MAX_CELLS) -> None:
         self.size = size
+        self.max_cells = max_cells
+        self.cells = 0
         self.data: OrderedDict[Any, Any] = OrderedDict()
+        self.sizes: Dict[Any, int] = {}
 
     def hit(self, key: Any) -> Any:
         """The cached result (or raise the cached error); KeyError when absent."""
@@ -375,7 +495,8 @@ class _Cache:
             return value
         raise value
 
-    def get(self, key: Any, make: Callable[[], Any]) -> Any:
+    def get(self, key: Any, make: Callable[[], Any], cells: int = 1) -> Any:
+        """The cached result of ``key`` or ``make()`` (``cells``: input cells the key holds)."""
         try:
             hit = self.data[key]
         except KeyError:
@@ -383,12 +504,22 @@ class _Cache:
                 hit = (True, make())
             except Exception as exc:  # a failing fit fails every accessor the same way, once
                 hit = (False, exc)
-            self.data[key] = hit
-            if len(self.data) > self.size:
-                self.data.popitem(last=False)
+            if cells <= self.max_cells // 4:
+                self.data[key] = hit
+                self.sizes[key] = cells
+                self.cells += cells
+                while self.data and (len(self.data) > self.size or self.cells > self.max_cells):
+                    old, _ = self.data.popitem(last=False)
+                    self.cells -= self.sizes.pop(old, 0)
         if hit[0]:
             return hit[1]
         raise hit[1]
+
+    def clear(self) -> None:
+        """Forget every entry."""
+        self.data.clear()
+        self.sizes.clear()
+        self.cells = 0
 
 
 FIT_CACHE = _Cache()
@@ -427,7 +558,8 @@ def fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any, treatment: Any, anchor: Any 
         pass
     except TypeError:  # an unhashable argument: no caching
         raw = None
-    cols, kept = columns(list(zip(_FIT_NAMES, (x, sx, y, sy, rho))), optional=("rho",))
+    cols, kept = columns(list(zip(_FIT_NAMES, (x, sx, y, sy, rho))), optional=("rho",),
+                         limit=(MAX_ISOCHRON_POINTS, "points"))
     tr = text("treatment", treatment, "analytical")
     anc = None
     if anchor is not None or anchorSigma is not None:
@@ -435,7 +567,7 @@ def fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any, treatment: Any, anchor: Any 
     reg = engine("regression")
     make = lambda: call(reg.fit_isochron, kept, cols["x"], cols["sx"], cols["y"], cols["sy"],  # noqa: E731
                         cols["rho"], treatment=tr, anchor=anc)
-    return make() if raw is None else FIT_CACHE.get(raw, make)
+    return make() if raw is None else FIT_CACHE.get(raw, make, input_cells(*raw))
 
 
 _N2 = "undefined for 2 points (no degrees of freedom)"
@@ -588,7 +720,7 @@ def rdAgeSlope(slope: Any, system: Any, refset: Any = None) -> Any:
 # --------------------------------------------------------------------------------------------
 @cell_function(array=True, rename={"sigma_1s": "sigma"})
 def rdMeanWeighted(values: Any, sigma: Any, external: Any = None) -> Any:
-    cols, kept = columns([("values", values), ("sigma", sigma)])
+    cols, kept = columns([("values", values), ("sigma", sigma)], limit=(MAX_VALUES, "values"))
     m = call(engine("regression").weighted_mean, kept, cols["values"], cols["sigma"],
              external_scatter=flag("external", external))
     return row(cell(m.mean), cell(m.mean_sigma_1s), cell(m.mswd, "MSWD is undefined for 1 value"),
@@ -600,11 +732,9 @@ def rdMeanWeighted(values: Any, sigma: Any, external: Any = None) -> Any:
 # --------------------------------------------------------------------------------------------
 @cell_function(array=True, rename={"n_points": "points"})
 def rdEllipse(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, points: Any = None, confidence: Any = None) -> Any:
-    n = number("points", points, 48.0)
-    if n != int(n):
-        raise CellMessage(f"points must be a whole number, got {n!r}")
+    n = whole("points", points, 48.0, 3, MAX_ELLIPSE_POINTS)
     xs, ys = engine("regression").ellipse_points(number("x", x), number("sx", sx), number("y", y), number("sy", sy),
-                                                 number("rho", rho, 0.0), n_points=int(n),
+                                                 number("rho", rho, 0.0), n_points=n,
                                                  confidence=number("confidence", confidence, 0.95))
     return tuple((float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist()))
 
@@ -622,7 +752,9 @@ def names_values(names_arg: str, names: Any, values_arg: str, values: Any,
     nums, kept = columns([(values_arg, values)] + ([(sigmas_arg, sigmas)] if sigmas_arg else []),
                          optional=(sigmas_arg,) if sigmas_arg else ())
     keep = [i - 1 for i in kept]
+    _within(names_arg, len(keep), (MAX_NAMED_RATIOS, "ratios"))
     out: Dict[str, float] = {}
+    first_row: Dict[str, int] = {}
     sig: Optional[Dict[str, float]] = {} if sigmas_arg and nums.get(sigmas_arg) is not None else None
     for j, i in enumerate(keep):
         label = labels[i]
@@ -630,9 +762,14 @@ def names_values(names_arg: str, names: Any, values_arg: str, values: Any,
             raise _passed_on(names_arg, label)
         if not isinstance(label, str) or not label.strip():
             raise CellMessage(f"row {i + 1} of {names_arg} must be a ratio name such as 143Nd/144Nd")
-        out[label.strip()] = nums[values_arg][j]
+        name = label.strip()
+        if name in first_row:
+            raise CellMessage(f"row {i + 1} of {names_arg} repeats {name!r} (first on row {first_row[name]}): "
+                              "give each ratio once")
+        first_row[name] = i + 1
+        out[name] = nums[values_arg][j]
         if sig is not None:
-            sig[label.strip()] = nums[sigmas_arg][j]
+            sig[name] = nums[sigmas_arg][j]
     return out, sig
 
 
@@ -654,6 +791,9 @@ def spike(name: str, grid: Any) -> Any:
     for j, (iso, ab) in enumerate(zip(grid[0], grid[1])):
         if _is_empty(iso) and _is_empty(ab):
             continue
+        if len(isotopes) == MAX_SPIKE_ISOTOPES:
+            raise CellMessage(f"column {j + 1} of {name}: more than {MAX_SPIKE_ISOTOPES} isotope columns (one "
+                              "column per isotope of the element)")
         if not isinstance(iso, str) or not _ISOTOPE.match(iso):
             raise CellMessage(f"column {j + 1} of {name}, row 1: {iso!r} is not an isotope name such as 150Nd")
         isotopes.append(iso.strip())
@@ -667,7 +807,7 @@ def spike(name: str, grid: Any) -> Any:
     conc_s = number(f"1 sigma (row 3, column 3 of {name})", third[2], 0.0)
     del spike_iso
     return SPIKE_CACHE.get(grid, lambda: engine("dilution").make_spike(
-        m.group(2), isotopes, abundances, third[0].strip(), conc, conc_s, label=name))
+        m.group(2), isotopes, abundances, third[0].strip(), conc, conc_s, label=name), input_cells(grid))
 
 
 # --------------------------------------------------------------------------------------------
@@ -675,15 +815,13 @@ def spike(name: str, grid: Any) -> Any:
 # --------------------------------------------------------------------------------------------
 @cell_function(array=True, rename={"values": "cycles", "reject_k": "rejectK", "min_kept": "minKept"})
 def rdCycles(cycles: Any, rejectK: Any = None, minKept: Any = None) -> Any:
-    cols, kept = columns([("cycles", cycles)])
+    cols, kept = columns([("cycles", cycles)], limit=(MAX_VALUES, "cycles"))
     if isinstance(rejectK, str) and rejectK.strip().lower() == "none":
         k: Optional[float] = None
     else:
         k = number("rejectK", rejectK, 3.5) or 3.5  # an empty cell arrives as 0: the default (robust rule)
-    n_min = number("minKept", minKept, 3.0) or 3.0
-    if n_min != int(n_min):
-        raise CellMessage(f"minKept must be a whole number, got {n_min!r}")
-    st = call(engine("cycles").cycle_stats, kept, cols["cycles"], reject_k=k, min_kept=int(n_min))
+    n_min = whole("minKept", minKept, 3.0, 2, MAX_VALUES, zero_is_default=True)  # empty cell: 0 -> the default
+    st = call(engine("cycles").cycle_stats, kept, cols["cycles"], reject_k=k, min_kept=n_min)
     return row(cell(st.mean), cell(st.sem_1s), cell(st.sd_1s), cell(st.n_kept), cell(st.n_rejected))
 
 
@@ -802,14 +940,14 @@ def standard(runs: Any, accepted: Any, material: Any, ratio: Any, acceptedSigma:
         return STANDARD_CACHE.hit(raw)
     except KeyError:
         pass
-    cols, kept = columns([("runs", runs)])
+    cols, kept = columns([("runs", runs)], limit=(MAX_VALUES, "runs"))
     acc = _optional_number("accepted", accepted)
     mat = None if material is None or material == 0.0 or material == "" else _isotope_text("material", material)
     rat = None if ratio is None or ratio == 0.0 or ratio == "" else _isotope_text("ratio", ratio)
     acc_s = _optional_number("acceptedSigma", acceptedSigma)
     std = engine("standards")
     return STANDARD_CACHE.get(raw, lambda: call(std.standard_factor, kept, cols["runs"], acc, material=mat, ratio=rat,
-                                                accepted_sigma_1s=acc_s))
+                                                accepted_sigma_1s=acc_s), input_cells(*raw))
 
 
 _STD = {"measured": "runs", "accepted_sigma_1s": "acceptedSigma", "sigma_1s": "sigma", "values": "value"}
@@ -895,7 +1033,7 @@ def analysis(system: Any, parentNames: Any, parentValues: Any, daughterNames: An
               parent_bias_factor=_optional_number("parentBias", parentBias),
               parent_blank_ng=number("parentBlankNg", parentBlankNg, 0.0),
               daughter_blank_ng=number("daughterBlankNg", daughterBlankNg, 0.0))
-    return ANALYSIS_CACHE.get(raw, lambda: engine("chain").reduce_spiked_analysis(*args, **kw))
+    return ANALYSIS_CACHE.get(raw, lambda: engine("chain").reduce_spiked_analysis(*args, **kw), input_cells(*raw))
 
 
 # --------------------------------------------------------------------------------------------
@@ -907,8 +1045,9 @@ def rdWorkbookAnalysis(quantity: Any, analysis: Any, samples: Any, measured: Any
     a = _one("analysis", analysis) if type(analysis) is tuple else analysis
     if isinstance(a, str) and a.startswith(MARKER):
         raise _passed_on("analysis", a)
-    return cell(engine("workbook").analysis_value(text("quantity", quantity), "" if a is None else a, samples,
-                                                  measured, spikes, standards, refValues))
+    tables = [table_range(n, t) for n, t in (("samples", samples), ("measured", measured), ("spikes", spikes),
+                                              ("standards", standards), ("refValues", refValues))]
+    return cell(engine("workbook").analysis_value(text("quantity", quantity), "" if a is None else a, *tables))
 
 
 @cell_function()
@@ -920,12 +1059,16 @@ def rdWorkbookStandard(quantity: Any, session: Any, material: Any, ratio: Any, m
         if isinstance(v, str) and v.startswith(MARKER):
             raise _passed_on(n, v)
     ses, mat, rat, meas = ("" if v is None else v for v in vals)
-    return cell(engine("workbook").standard_value(text("quantity", quantity), ses, mat, rat, meas, standards,
-                                                  refValues))
+    return cell(engine("workbook").standard_value(text("quantity", quantity), ses, mat, rat, meas,
+                                                  table_range("standards", standards),
+                                                  table_range("refValues", refValues)))
 
 
 @cell_function()
 def rdWorkbookIsochron(quantity: Any, system: Any, treatment: Any, selection: Any, results: Any,
                        refValues: Any) -> Any:
     return cell(engine("workbook").isochron_value(text("quantity", quantity), _isotope_text("system", system),
-                                                  text("treatment", treatment, ""), selection, results, refValues))
+                                                  text("treatment", treatment, ""),
+                                                  table_range("selection", selection),
+                                                  table_range("results", results),
+                                                  table_range("refValues", refValues)))

@@ -12,8 +12,11 @@ LibreOffice then creates this component and calls ``trigger("<name>")``:
 
 Both show their progress in the status bar (``frame.createStatusIndicator()``).
 
-Run-file format (our own): delimited text (comma, semicolon or tab, detected), one header row and one
-row per element run. Header names map to Measured columns:
+Run-file format (our own): standard CSV (RFC 4180 quoting: a field holding the delimiter, a quote or a
+line break is in double quotes, a quote inside it doubled; a byte-order mark and CRLF line ends are
+fine) with a comma, semicolon or tab delimiter, sniffed from the whole file (comma when it cannot be
+told); one header row and one row per element run, every row with as many fields as the header (a
+row with more or fewer is refused, naming its line and column). Header names map to Measured columns:
 
 * ``analysis``, ``element``, ``date`` (→ run date), ``beta`` (→ external bias factor β);
 * a ratio name such as ``143Nd/144Nd`` → the measured mixture ratio;
@@ -30,7 +33,6 @@ from __future__ import annotations
 
 import csv
 import datetime as _dt
-import io
 import re
 from typing import Any, Callable, Dict, List, Optional, Sequence, Tuple
 
@@ -51,6 +53,13 @@ class RunFileError(ValueError):
     """A run file that cannot be imported; the message names the line and column."""
 
 
+#: Field delimiters a run file may use (detected): comma, semicolon, tab.
+DELIMITERS = ",;\t"
+DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab"}
+#: Characters of the file (whole lines, comments left out) the delimiter is sniffed from.
+SNIFF_CHARS = 65536
+
+
 def _number(text: str) -> Optional[float]:
     t = text.strip()
     if not t:
@@ -62,89 +71,257 @@ def _number(text: str) -> Optional[float]:
     return v if v == v and abs(v) != float("inf") else None
 
 
+def _physical_lines(text: str) -> List[str]:
+    """The file's lines without their ends (CRLF, CR or LF) and without a leading byte-order mark."""
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    if lines and lines[-1] == "":
+        lines.pop()
+    return lines
+
+
+def _between_records(line: str) -> bool:
+    """True for a line that is no part of the table when it starts a record: blank, comment or #map."""
+    s = line.strip()
+    return not s or s.startswith("#")
+
+
+def sniff_delimiter(lines: Sequence[str]) -> str:
+    """The field delimiter of a run file: comma, semicolon or tab.
+
+    Parameters
+    ----------
+    lines : sequence of str
+        The file's physical lines (comment, ``#map`` and blank lines are left out of the sample).
+
+    Returns
+    -------
+    str
+        The delimiter :class:`csv.Sniffer` finds in the whole sample (up to :data:`SNIFF_CHARS`
+        characters of whole lines); when it cannot tell, the one it finds in the header line
+        alone; else a comma (the ``excel`` dialect's).
+    """
+    body = [ln for ln in lines if not _between_records(ln)]
+    if not body:
+        return ","
+    sample: List[str] = []
+    size = 0
+    for ln in body:
+        if sample and size + len(ln) + 1 > SNIFF_CHARS:
+            break
+        sample.append(ln)
+        size += len(ln) + 1
+    for text in ("\n".join(sample) + "\n", body[0] + "\n"):
+        try:
+            return csv.Sniffer().sniff(text, delimiters=DELIMITERS).delimiter
+        except csv.Error:
+            continue
+    return ","
+
+
+class _Lines:
+    """The lines csv.reader reads; between records it skips blank, comment and ``#map`` lines (kept in
+    :attr:`maps`), inside a quoted field every line is the field's."""
+
+    def __init__(self, lines: Sequence[str]) -> None:
+        self.lines = lines
+        self.read = 0              # lines read so far = 1-based number of the last line read
+        self.between = True        # set before each record
+        self.start = 0             # 1-based line where the current record starts
+        self.maps: List[Tuple[int, str]] = []
+
+    def __iter__(self) -> _Lines:
+        return self
+
+    def __next__(self) -> str:
+        while self.read < len(self.lines):
+            line = self.lines[self.read]
+            self.read += 1
+            if self.between:
+                if _between_records(line):
+                    s = line.strip()
+                    if s.lower().startswith("#map "):
+                        self.maps.append((self.read, s))
+                    continue
+                self.between = False
+                self.start = self.read
+            return line + "\n"
+        raise StopIteration
+
+
+def read_records(text: str) -> Tuple[List[Tuple[int, int, List[str]]], List[Tuple[int, str]], str]:
+    """The records of a run file as standard CSV, with their file lines.
+
+    Standard CSV (RFC 4180): a field holding the delimiter, a quote or a line break is in double
+    quotes, a quote inside it is doubled; a byte-order mark and CRLF line ends are accepted; spaces
+    after a delimiter are not part of the field. Blank, comment (``#``) and ``#map`` lines between
+    records are no records.
+
+    Parameters
+    ----------
+    text : str
+        The whole file.
+
+    Returns
+    -------
+    records : list of (int, int, list of str)
+        First and last file line (1-based) of each record, and its fields.
+    maps : list of (int, str)
+        The ``#map`` lines with their line numbers.
+    delimiter : str
+        The delimiter used (:func:`sniff_delimiter`).
+
+    Raises
+    ------
+    RunFileError
+        A quote that is never closed, or text after a closing quote, naming the line.
+    """
+    lines = _physical_lines(text)
+    delimiter = sniff_delimiter(lines)
+    feed = _Lines(lines)
+    reader = csv.reader(feed, "excel", delimiter=delimiter, skipinitialspace=True, strict=True)
+    records: List[Tuple[int, int, List[str]]] = []
+    while True:
+        feed.between = True
+        try:
+            row = next(reader)
+        except StopIteration:
+            break
+        except csv.Error as exc:
+            if feed.read >= len(lines) and "end of data" in str(exc):
+                raise RunFileError(f"line {feed.start}: a quoted field starts on this line and is never closed "
+                                   "(the file ends inside it)") from None
+            if "expected after" in str(exc):
+                raise RunFileError(f"line {feed.read}: text follows the closing quote of a field; in standard CSV "
+                                   'a quote inside a quoted field is doubled ("")') from None
+            raise RunFileError(f"line {feed.read}: not readable as CSV ({exc})") from None
+        records.append((feed.start, feed.read, row))
+    return records, feed.maps, delimiter
+
+
+def _field_count_error(line: int, last: int, row: Sequence[str], header: Sequence[str], header_line: int,
+                       delimiter: str) -> RunFileError:
+    name = DELIMITER_NAMES.get(delimiter, repr(delimiter))
+    head = f"line {line}: {len(row)} fields, but the header (line {header_line}) has {len(header)}"
+    if len(row) > len(header):
+        text = (f"{head}: field {len(header) + 1} ({row[len(header)]!r}) has no column. A field that contains "
+                f'a {name} must be in double quotes ("..."), with a quote inside it doubled ("").')
+    else:
+        text = f"{head}: column {len(row) + 1} ({header[len(row)]!r}) is missing."
+    if last > line:
+        text += f" The record runs on to line {last}: is a quote opened on line {line} left unclosed?"
+    return RunFileError(text)
+
+
 def parse_run_file(text: str) -> List[Dict[str, Any]]:
     """Rows of a run file as Measured-sheet dicts (keys as in the sheet's key row).
 
-    Values are floats where the text is a number, else the text unchanged (the caller stores text as
-    text). Uncertainties are converted to 1σ absolute as their header says.
+    The file is standard CSV (:func:`read_records`). Values are floats where the text is a number,
+    else the text unchanged (the caller stores text as text). Uncertainties are converted to 1σ
+    absolute as their header says.
+
+    Parameters
+    ----------
+    text : str
+        The whole run file.
+
+    Returns
+    -------
+    list of dict
+        One dict per data row: ``analysis``, ``element``, ``run_date``, ``bias_factor`` and, per
+        ratio k = 1..4, ``r<k>_name``, ``r<k>``, ``r<k>_sigma_1s``.
+
+    Raises
+    ------
+    RunFileError
+        Anything that cannot be imported as it stands, naming the file line and the column: an
+        unknown, repeated or unpaired column, a row whose field count differs from the header's,
+        a relative σ of a ratio that is not a number, unreadable CSV.
     """
+    records, maps, delimiter = read_records(text)
     mapping: Dict[str, str] = {}
-    body: List[str] = []
-    for n, line in enumerate(text.splitlines(), start=1):
-        s = line.strip()
-        if s.lower().startswith("#map "):
-            src, eq, dst = s[5:].partition("=")
-            if not eq or not src.strip() or not dst.strip():
-                raise RunFileError(f"line {n}: a #map line reads '#map <column>=<meaning>', got {s!r}")
-            mapping[src.strip().lower()] = dst.strip()
-            continue
-        if s.startswith("#") or not s:
-            continue
-        body.append(line)
-    if not body:
+    for n, s in maps:
+        src, eq, dst = s[5:].partition("=")
+        if not eq or not src.strip() or not dst.strip():
+            raise RunFileError(f"line {n}: a #map line reads '#map <column>=<meaning>', got {s!r}")
+        mapping[src.strip().lower()] = dst.strip()
+    if not records:
         raise RunFileError("the file has no header row")
-    try:
-        dialect = csv.Sniffer().sniff(body[0], delimiters=",;\t")
-    except csv.Error:
-        dialect = csv.excel
-    rows = list(csv.reader(io.StringIO("\n".join(body)), dialect))
-    header = [mapping.get(h.strip().lower(), h.strip()) for h in rows[0]]
+    header_line, _last, fields = records[0]
+    header = [mapping.get(h.strip().lower(), h.strip()) for h in fields]
     ratio_names: List[str] = []
+    ratio_column: Dict[str, int] = {}
     roles: List[Tuple[str, Any]] = []
+    seen: Dict[Any, int] = {}
     for j, h in enumerate(header):
         low = h.lower()
+        where = f"line {header_line}, column {j + 1}"
         if low in ("analysis", "element", "beta"):
-            roles.append((low, None))
+            role: Tuple[str, Any] = (low, None)
         elif low in ("date", "run date", "run_date"):
-            roles.append(("run_date", None))
+            role = ("run_date", None)
         elif _RATIO.match(h):
             m = _RATIO.match(h)
-            name = f"{m.group(1)}/{m.group(2)}"
-            ratio_names.append(name)
-            roles.append(("ratio", name))
+            role = ("ratio", f"{m.group(1)}/{m.group(2)}")
         elif _SIGMA.match(h):
             m = _SIGMA.match(h)
             r = _RATIO.match(m.group(1))
-            roles.append(("sigma", (f"{r.group(1)}/{r.group(2)}", int(m.group(2)), bool(m.group(3)))))
+            role = ("sigma", (f"{r.group(1)}/{r.group(2)}", int(m.group(2)), bool(m.group(3))))
         else:
-            raise RunFileError(f"line 1, column {j + 1}: unknown column {h!r} (use analysis, element, date, beta, "
+            raise RunFileError(f"{where}: unknown column {h!r} (use analysis, element, date, beta, "
                                f"a ratio like 143Nd/144Nd, '<ratio> 2s', or map it with '#map {h}=...')")
+        key = (role[0], role[1][0] if role[0] == "sigma" else role[1])
+        if key in seen:
+            k = seen[key]
+            raise RunFileError(f"{where}: {fields[j].strip()!r} gives the same quantity as column {k + 1} "
+                               f"({fields[k].strip()!r}); give each column once")
+        seen[key] = j
+        roles.append(role)
+        if role[0] == "ratio":
+            ratio_names.append(role[1])
+            ratio_column[role[1]] = j
+    for j, (role_name, arg) in enumerate(roles):
+        if role_name == "sigma" and arg[0] not in ratio_column:
+            raise RunFileError(f"line {header_line}, column {j + 1}: {fields[j].strip()!r} is an uncertainty of "
+                               f"{arg[0]}, but the file has no {arg[0]} column")
     if "analysis" not in [r for r, _ in roles]:
-        raise RunFileError("no 'analysis' column (map one with '#map <column>=analysis')")
+        raise RunFileError(f"line {header_line}: no 'analysis' column (map one with '#map <column>=analysis')")
     if len(ratio_names) > MAX_RATIOS:
-        raise RunFileError(f"at most {MAX_RATIOS} ratios per run, got {len(ratio_names)}")
+        raise RunFileError(f"line {header_line}: at most {MAX_RATIOS} ratios per run, got {len(ratio_names)}")
     out: List[Dict[str, Any]] = []
-    for n, row in enumerate(rows[1:], start=2):
+    for n, last, row in records[1:]:
         if not any(c.strip() for c in row):
             continue
+        if len(row) != len(header):
+            raise _field_count_error(n, last, row, header, header_line, delimiter)
         rec: Dict[str, Any] = {}
         ratios: Dict[str, Any] = {}
         sigmas: Dict[str, Any] = {}
-        for j, (role, arg) in enumerate(roles):
-            cell = row[j] if j < len(row) else ""
+        for j, (role_name, arg) in enumerate(roles):
+            cell = row[j]
             num = _number(cell)
-            if role == "ratio":
+            if role_name == "ratio":
                 ratios[arg] = num if num is not None else cell
-            elif role == "sigma":
+            elif role_name == "sigma":
                 name, level, rel = arg
-                if num is None:
-                    sigmas[name] = cell
-                    continue
-                sigmas[name] = ("pending", num, level, rel)
-            elif role == "beta":
+                sigmas[name] = cell if num is None else ("pending", num, level, rel, j)
+            elif role_name == "beta":
                 rec["bias_factor"] = num if num is not None else cell
             else:
-                rec[role] = cell.strip()
+                rec[role_name] = cell.strip()
         for k, name in enumerate(ratio_names, start=1):
             rec[f"r{k}_name"] = name
             rec[f"r{k}"] = ratios.get(name, "")
             s = sigmas.get(name, "")
             if isinstance(s, tuple):
-                _p, v, level, rel = s
+                _p, v, level, rel, j = s
                 value = ratios.get(name)
                 if rel:
                     if not isinstance(value, float):
-                        raise RunFileError(f"line {n}: {name} is not a number, so its relative σ cannot be converted")
+                        raise RunFileError(f"line {n}, column {j + 1}: a relative σ of {name}, but {name} (column "
+                                           f"{ratio_column[name] + 1}) is {value!r}, not a number, so it cannot "
+                                           "be converted")
                     v = v / 100.0 * value
                 s = v / level                       # explicit: 2σ -> 1σ, % -> absolute
             rec[f"r{k}_sigma_1s"] = s

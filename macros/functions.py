@@ -57,6 +57,33 @@ CATEGORY = "Add-In"
 #: Leading marker of every RatioDesk message shown in a cell (see macros/cells.py).
 MESSAGE_MARKER = "\u26a0 "
 
+# Bounds on the work of one cell call (issue 10, item 4): every argument that sizes work or output
+# has an upper bound, enforced by macros/cells.py before the engine is called and stated in the
+# argument's Function Wizard text (tests/cells/test_bounds.py). Measured through the adapter on a
+# 2-core machine (numpy 2, scipy 1.1x), each keeps one call within about two seconds: cycle
+# statistics, weighted means (with external scatter) and session factors of 100 000 values < 0.1 s;
+# a whole column of mostly empty cells ~0.15 s per range argument. The slowest is the isochron's
+# excess-variance treatment, whose Nelder-Mead searches may each run to their 40 000-evaluation cap
+# (seen in 1 of 8 simulated data sets at 1 000 points: 1.4 s; 2.3 s at 10 000 points, up to ~6 s
+# when all three starts hit the cap), hence the isochron's lower bound.
+#: Cells of any one-column or one-row range argument: one whole column of a standard sheet.
+MAX_RANGE_CELLS = 1_048_576
+#: Points (rows with values) of one isochron fit.
+MAX_ISOCHRON_POINTS = 1_000
+#: Values of one RD.CYCLES, RD.MEAN.WEIGHTED or RD.STANDARD.* call (cycles, values, runs); also the
+#: largest minKept.
+MAX_VALUES = 100_000
+#: Segments of one RD.ELLIPSE outline (the output has one row more).
+MAX_ELLIPSE_POINTS = 10_000
+#: Named mixture ratios in one names/values pair (one element has at most ten stable isotopes).
+MAX_NAMED_RATIOS = 100
+#: Isotope columns of one spike block.
+MAX_SPIKE_ISOTOPES = 20
+#: Cells (rows x columns) of each table argument of the RD.WORKBOOK.* functions; the template's
+#: largest table range (Measured) has 2 057. The engine keeps up to 256 recent table sets in its
+#: caches; at this bound they hold ~170 MB at most (measured: ~3.3 kB per 100 cells).
+MAX_TABLE_CELLS = 10_000
+
 IDL_TYPES = {"range": "sequence< sequence< any > >", "cell": "any", "value": "any",
              "range_opt": "any",
              "array": "sequence< sequence< any > >"}
@@ -109,12 +136,19 @@ def _c(name: str, description: str) -> Arg:
     return Arg(name, "cell", description)
 
 
+def _t(name: str, description: str) -> Arg:
+    """A table argument of the RD.WORKBOOK.* functions (its bound stated)."""
+    return _r(name, f"{description} (at most {MAX_TABLE_CELLS} cells).")
+
+
 # Shared argument descriptions (the same words wherever the same input appears).
-_X = _r("x", "Parent/daughter ratios, e.g. 147Sm/144Nd (one column or one row).")
+_X = _r("x", f"Parent/daughter ratios, e.g. 147Sm/144Nd (one column or one row; at most {MAX_ISOCHRON_POINTS} "
+              "points).")
 _SX = _r("sx", "1 sigma absolute uncertainty of each x (same length as x; > 0).")
 _Y = _r("y", "Daughter ratios, e.g. 143Nd/144Nd (same length as x).")
 _SY = _r("sy", "1 sigma absolute uncertainty of each y (same length as y; > 0).")
-_RHO = _ro("rho", "Optional: error correlation of x and y per point, between -1 and 1 (empty: 0).")
+_RHO = _ro("rho", "Optional: error correlation of x and y per point, between -1 and 1 (same length as x; "
+                        "empty: 0).")
 _TREATMENT = _v("treatment", "Optional scatter treatment: analytical (default), expanded, equal-weights or "
                              "excess-variance.")
 _SYSTEM = _c("system", "Isotope system: sm-nd, lu-hf or rb-sr.")
@@ -128,17 +162,26 @@ _P = _c("parent", "Parent/daughter ratio today, e.g. 147Sm/144Nd.")
 _P1S = _c("parentSigma", "1 sigma of the parent ratio.")
 _TMA = _c("tMa", "Time in Ma (0 for today).")
 
+_SPIKE = _r("spike", f"Spike block of 3 rows (at most {MAX_SPIKE_ISOTOPES} isotope columns): isotope names; their "
+                    "abundances; spike isotope, concentration (umol/g), its 1 sigma.")
+_RUNS = _r("runs", f"The session's measured values of the reference material (at most {MAX_VALUES}).")
+
 _ANALYSIS_ARGS = (
     _SYSTEM,
-    _r("parentNames", "Names of the parent element's mixture ratios, e.g. 147Sm/152Sm, 149Sm/152Sm."),
-    _r("parentValues", "Their measured values."),
-    _r("daughterNames", "Names of the daughter element's mixture ratios, e.g. 143Nd/144Nd, ..."),
-    _r("daughterValues", "Their measured values."),
+    _r("parentNames", "Names of the parent element's mixture ratios, e.g. 147Sm/152Sm, 149Sm/152Sm (at most "
+                      f"{MAX_NAMED_RATIOS})."),
+    _r("parentValues", "Their measured values (same length as parentNames)."),
+    _r("daughterNames", f"Names of the daughter element's mixture ratios, e.g. 143Nd/144Nd, ... (at most "
+                        f"{MAX_NAMED_RATIOS})."),
+    _r("daughterValues", "Their measured values (same length as daughterNames)."),
     _c("sampleMass", "Sample mass (g)."), _c("spikeMass", "Mixed-spike solution mass (g)."),
-    _r("parentSpike", "Spike block of the parent element (3 rows, as for RD.DILUTION)."),
-    _r("daughterSpike", "Spike block of the daughter element."),
-    _ro("parentSigmas", "Optional: 1 sigma of each parent mixture ratio (same order)."),
-    _ro("daughterSigmas", "Optional: 1 sigma of each daughter mixture ratio."),
+    _r("parentSpike", f"Spike block of the parent element (3 rows, at most {MAX_SPIKE_ISOTOPES} isotope columns, "
+                      "as for RD.DILUTION)."),
+    _r("daughterSpike", f"Spike block of the daughter element (3 rows, at most {MAX_SPIKE_ISOTOPES} isotope "
+                        "columns)."),
+    _ro("parentSigmas", "Optional: 1 sigma of each parent mixture ratio (same length and order as parentNames)."),
+    _ro("daughterSigmas", "Optional: 1 sigma of each daughter mixture ratio (same length and order as "
+                          "daughterNames)."),
     _v("parentNorm", "Optional: parent normalising ratio, e.g. 147Sm/152Sm."),
     _v("parentBias", "Optional: external parent mass-bias factor (two-isotope Lu, Rb)."),
     _v("parentBlankNg", "Optional: parent blank in ng (default 0)."),
@@ -158,11 +201,13 @@ FUNCTIONS: Tuple[Function, ...] = (
              "from the median are rejected; robust SD = 1.4826 x median absolute deviation): one row of 5 "
              "cells: mean, its standard error (1 sigma), cycle SD, cycles kept, cycles rejected. Empty "
              "cells are missing cycles.",
-             (_r("cycles", "The cycle values of one analysis (one row or one column)."),
+             (_r("cycles", f"The cycle values of one analysis (one row or one column; at most {MAX_VALUES} "
+                           "cycles)."),
               _v("rejectK", "Optional: reject cycles more than k robust SD from the median (default 3.5, which "
                             "rejects only gross outliers and keeps the standard error honest; \"none\": "
                             "keep all)."),
-              _v("minKept", "Optional: never keep fewer cycles than this (default 3).")),
+              _v("minKept", f"Optional: never keep fewer cycles than this, a whole number from 2 to {MAX_VALUES} "
+                            "(default 3).")),
              "cycles.cycle_stats", "array"),
     # -- interference -----------------------------------------------------------------------------
     Function("rdInterferenceStrip", "RD.INTERFERENCE.STRIP", "interference",
@@ -205,18 +250,18 @@ FUNCTIONS: Tuple[Function, ...] = (
              (_c("mixRatio", "Measured spike-isotope ratio of the mixture, e.g. 150Nd/144Nd."),
               _c("ratio", "Its name, e.g. 150Nd/144Nd (numerator = the spike isotope)."),
               _c("sampleMass", "Sample mass (g)."), _c("spikeMass", "Spike solution mass (g)."),
-              _r("spike", "Spike block of 3 rows: isotope names; their abundances; spike isotope, "
-                          "concentration (umol/g), its 1 sigma."),
+              _SPIKE,
               _v("biasFactor", "Optional: mass-bias factor applied to mixRatio (default 0)."),
               _v("law", "Optional mass-bias law: exponential (default), power or linear.")),
              "dilution.id_concentration"),
     Function("rdDilutionBlock", "RD.DILUTION", "dilution",
              "Isotope dilution with (optional iterative internal) mass-bias correction, as a labelled block of 2 "
              "columns: concentrations, bias factor, magnification, then every solved sample ratio.",
-             (_r("names", "Names of the measured mixture ratios, e.g. 143Nd/144Nd, 146Nd/144Nd, 150Nd/144Nd."),
-              _r("values", "Their measured values (interference-stripped, not bias-corrected)."),
-              _r("spike", "Spike block of 3 rows: isotope names; their abundances; spike isotope, "
-                          "concentration (umol/g), its 1 sigma."),
+             (_r("names", "Names of the measured mixture ratios, e.g. 143Nd/144Nd, 146Nd/144Nd, 150Nd/144Nd "
+                          f"(at most {MAX_NAMED_RATIOS})."),
+              _r("values", "Their measured values (interference-stripped, not bias-corrected; same length as "
+                           "names)."),
+              _SPIKE,
               _c("sampleMass", "Sample mass (g)."), _c("spikeMass", "Spike solution mass (g)."),
               _v("normRatio", "Optional: normalising ratio for internal normalisation, e.g. 146Nd/144Nd."),
               _v("biasFactor", "Optional: external mass-bias factor (instead of normRatio)."),
@@ -243,7 +288,7 @@ FUNCTIONS: Tuple[Function, ...] = (
     Function("rdStandardFactor", "RD.STANDARD.FACTOR", "standard",
              "Session normalisation factor from reference-material runs (accepted / mean measured): one row of "
              "6 cells: factor, 1 sigma random, 1 sigma systematic, runs, mean, reproducibility (relative SD).",
-             (_r("runs", "The session's measured values of the reference material."),
+             (_RUNS,
               _v("accepted", "Optional: accepted value (else looked up from material and ratio)."),
               _v("material", "Optional: reference material, e.g. JNdi-1."),
               _v("ratio", "Optional: the ratio, e.g. 143Nd/144Nd."),
@@ -253,7 +298,7 @@ FUNCTIONS: Tuple[Function, ...] = (
              "Normalise a sample ratio to the session's reference-material runs: one row of 3 cells: value, "
              "1 sigma random (with the standard's reproducibility), 1 sigma systematic.",
              (_c("value", "Sample ratio."), _c("sigma", "Its 1 sigma."),
-              _r("runs", "The session's measured values of the reference material."),
+              _RUNS,
               _v("accepted", "Optional: accepted value (else looked up from material and ratio)."),
               _v("material", "Optional: reference material, e.g. JNdi-1."),
               _v("ratio", "Optional: the ratio, e.g. 143Nd/144Nd."),
@@ -297,7 +342,8 @@ FUNCTIONS: Tuple[Function, ...] = (
     Function("rdAgeTwoPoint", "RD.AGE.TWOPOINT", "age",
              "Two-point (e.g. mineral - whole-rock) age in Ma: one row of 5 cells as RD.AGE.ISOCHRON.",
              (_r("point1", "First point as one row of 4 or 5 cells: x, sx, y, sy and optionally rho."),
-              _r("point2", "Second point, the same way."), _SYSTEM, _REFSET), "ages.two_point_age", "array"),
+              _r("point2", "Second point, the same way (4 or 5 cells)."), _SYSTEM, _REFSET), "ages.two_point_age",
+             "array"),
     Function("rdAgeModel", "RD.AGE.MODEL", "age",
              "Single-stage model age in Ma relative to CHUR or the depleted mantle: one row of 3 cells: age, "
              "1 sigma, check (ok, or a warning: older than the solar system, P/D close to the reservoir's, "
@@ -321,8 +367,8 @@ FUNCTIONS: Tuple[Function, ...] = (
     # -- weighted mean -------------------------------------------------------------------------
     Function("rdMeanWeighted", "RD.MEAN.WEIGHTED", "mean",
              "Inverse-variance weighted mean: one row of 4 cells: mean, its 1 sigma, MSWD, p.",
-             (_r("values", "Values to average (one column or one row)."),
-              _r("sigma", "1 sigma absolute uncertainty of each value (> 0)."),
+             (_r("values", f"Values to average (one column or one row; at most {MAX_VALUES})."),
+              _r("sigma", "1 sigma absolute uncertainty of each value (same length as values; > 0)."),
               _v("external", "Optional: TRUE to add an external scatter, estimated by maximum likelihood, to every "
                              "sigma (default FALSE).")),
              "regression.weighted_mean", "array"),
@@ -332,11 +378,11 @@ FUNCTIONS: Tuple[Function, ...] = (
              "Results sheet's cells).",
              (_c("quantity", "Result to show, e.g. x, x_1s, y, y_1s, rho, parent_conc, check."),
               _c("analysis", "Analysis ID (column A of Samples)."),
-              _r("samples", "The Samples table from its key row down."),
-              _r("measured", "The Measured table from its key row down."),
-              _r("spikes", "The Spikes table from its key row down."),
-              _r("standards", "The Standards table from its key row down."),
-              _r("refValues", "The Constants table (reference values) from its key row down.")),
+              _t("samples", "The Samples table from its key row down"),
+              _t("measured", "The Measured table from its key row down"),
+              _t("spikes", "The Spikes table from its key row down"),
+              _t("standards", "The Standards table from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
              "workbook.analysis_value"),
     Function("rdWorkbookStandard", "RD.WORKBOOK.STANDARD", "workbook",
              "One computed cell of a Standards row of the RatioDesk template: the material's role in its "
@@ -345,16 +391,16 @@ FUNCTIONS: Tuple[Function, ...] = (
              (_c("quantity", "role, factor, normalised, mean, accepted, dev_ppm, dev_eps or z."),
               _c("session", "Session of the row."), _c("material", "Reference material of the row."),
               _c("ratio", "Ratio of the row, e.g. 143Nd/144Nd."), _c("measured", "Measured value of the row."),
-              _r("standards", "The Standards table (input columns) from its key row down."),
-              _r("refValues", "The Constants table (reference values) from its key row down.")),
+              _t("standards", "The Standards table (input columns) from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
              "workbook.standard_value"),
     Function("rdWorkbookIsochron", "RD.WORKBOOK.ISOCHRON", "workbook",
              "One quantity of the template's isochron of one system (the Isochron sheet's summary cells).",
              (_c("quantity", "Quantity, e.g. age, age_2s, initial, mswd, p, slope, message."),
               _SYSTEM, _c("treatment", "Scatter treatment cell (empty: analytical)."),
-              _r("selection", "This system's selection block of the Isochron sheet, key row first."),
-              _r("results", "The Results table from its key row down."),
-              _r("refValues", "The Constants table (reference values) from its key row down.")),
+              _t("selection", "This system's selection block of the Isochron sheet, key row first"),
+              _t("results", "The Results table from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
              "workbook.isochron_value"),
     # -- error ellipse -------------------------------------------------------------------------
     Function("rdEllipse", "RD.ELLIPSE", "ellipse",
@@ -362,7 +408,8 @@ FUNCTIONS: Tuple[Function, ...] = (
              "Enter as an array formula.",
              (_c("x", "x of the point."), _c("sx", "1 sigma of x (> 0)."), _c("y", "y of the point."),
               _c("sy", "1 sigma of y (> 0)."), _v("rho", "Optional: error correlation (default 0)."),
-              _v("points", "Optional: number of outline segments (default 48)."),
+              _v("points", f"Optional: number of outline segments, a whole number from 3 to {MAX_ELLIPSE_POINTS} "
+                           "(default 48)."),
               _v("confidence", "Optional: confidence level of the region (default 0.95).")),
              "regression.ellipse_points", "array"),
 )

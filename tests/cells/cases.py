@@ -398,7 +398,7 @@ CASES: List[Case] = [
     Case("msg-point-empty", "rdAgeTwoPoint", (R(((X[0], None, Y[0], SY[0]),)), _P2, L("sm-nd")),
          Msg(("sx of point1 is required",)), array=True),
     Case("msg-ellipse-points", "rdEllipse", (L(X[0]), L(SX[0]), L(Y[0]), L(SY[0]), OMIT, L(2)),
-         Msg(("points",)), array=True),
+         Msg(("points must be a whole number from 3 to 10000", "got 2")), array=True),
     Case("msg-sigma-zero", "rdIsochronSlope", (col(X), col(SX), col(Y), col([4e-6, 4e-6, 0.0, 4e-6, 4e-6])),
          Msg(("must be > 0", "row 3 of sy")), array=True),
     Case("msg-sigma-zero-after-gap", "rdIsochronSlope",
@@ -424,7 +424,60 @@ CASES: List[Case] = [
     Case("msg-slope-undefined", "rdAgeSlope", (L(-1.5), L("sm-nd")), Msg(("undefined", "slope"))),
 ]
 
+# Bounded work (issue 10, item 4): every argument that sizes work or output has an upper bound,
+# stated in its Function Wizard text (macros/functions.py, MAX_*); at the bound the call works, one
+# above it is a message naming the argument. The bounds on 100 000 values (cycles, weighted-mean
+# values, standard runs) and on a range's cells are in test_bounds.py only: placing 100 001 cells
+# one by one in a real Calc would take minutes.
+N_BOUND = table.MAX_ISOCHRON_POINTS
+XB = [round(0.1 + 0.15 * i / (N_BOUND - 1), 6) for i in range(N_BOUND)]
+YB = [round(0.51090 + SLOPE * x + 2.5e-6 * math.sin(1.7 * i), 8) for i, x in enumerate(XB)]
+SXB = [round(0.002 * x, 9) for x in XB]
+SYB = [4.0e-6] * N_BOUND
+_BIG_TABLE = R((("analysis",),) + ((None,),) * table.MAX_TABLE_CELLS)      # 10 001 cells, one of them filled
+BOUNDS: List[Case] = [
+    # the issue's call: 1E9 points ran 102 s and used 24 GB before soffice was killed
+    Case("msg-ellipse-points-issue", "rdEllipse", (L(0.1), L(0.0002), L(0.51), L(0.000004), L(0.0), L(1e9)),
+         Msg(("points must be a whole number from 3 to 10000", "got 1e+09")), array=True),
+    Case("msg-ellipse-points-above", "rdEllipse", (L(X[0]), L(SX[0]), L(Y[0]), L(SY[0]), OMIT, L(10001)),
+         Msg(("points must be a whole number from 3 to 10000", "got 10001")), array=True),
+    Case("msg-ellipse-points-fraction", "rdEllipse", (L(X[0]), L(SX[0]), L(Y[0]), L(SY[0]), OMIT, L(24.5)),
+         Msg(("points must be a whole number", "got 24.5")), array=True),
+    Case("ellipse-points-at-bound", "rdEllipse",
+         (L(X[0]), L(SX[0]), L(Y[0]), L(SY[0]), L(RHO[0]), L(float(table.MAX_ELLIPSE_POINTS))),
+         lambda: tuple((float(a), float(b)) for a, b in zip(*regression.ellipse_points(
+             X[0], SX[0], Y[0], SY[0], RHO[0], n_points=table.MAX_ELLIPSE_POINTS))), array=True),
+    Case("msg-cycles-minkept-above", "rdCycles", (col(CYC), OMIT, L(100001)),
+         Msg(("minKept must be a whole number from 2 to 100000", "got 100001")), array=True),
+    Case("msg-cycles-minkept-one", "rdCycles", (col(CYC), OMIT, L(1)),
+         Msg(("minKept must be a whole number from 2 to 100000", "got 1")), array=True),
+    Case("isochron-points-at-bound", "rdIsochronMswd", (col(XB), col(SXB), col(YB), col(SYB)),
+         lambda: regression.fit_isochron(XB, SXB, YB, SYB).mswd),
+    Case("msg-isochron-points-above", "rdIsochronMswd",
+         (col(XB + [0.26]), col(SXB + [0.00052]), col(YB + [0.5126]), col(SYB + [4e-6])),
+         Msg(("x has 1001 points; at most 1000 points in one call",))),
+    Case("msg-age-isochron-points-above", "rdAgeIsochron",
+         (col(XB + [0.26]), col(SXB + [0.00052]), col(YB + [0.5126]), col(SYB + [4e-6]), L("sm-nd")),
+         Msg(("x has 1001 points; at most 1000 points",)), array=True),
+    Case("msg-dilution-ratios-above", "rdDilutionBlock",
+         (R((tuple(f"{100 + k}Nd/144Nd" for k in range(101)),)), R((tuple(0.5 for _ in range(101)),)),
+          spike_block(ND_SPIKE), L(0.30), L(0.08)),
+         Msg(("names has 101 ratios; at most 100 ratios",)), array=True),
+    Case("msg-dilution-ratio-repeated", "rdDilutionBlock",
+         (R(((ND_KEYS[0], ND_KEYS[1], ND_KEYS[0]),)), R(((ND_MIX[ND_KEYS[0]], ND_MIX[ND_KEYS[1]], 0.5),)),
+          spike_block(ND_SPIKE), L(0.30), L(0.08)),
+         Msg(("row 3 of names repeats '143Nd/144Nd' (first on row 1)",)), array=True),
+    Case("msg-spike-isotopes-above", "rdDilutionConc",
+         (L(0.26), L("150Nd/144Nd"), L(0.30), L(0.08),
+          R((tuple(f"{130 + k}Nd" for k in range(21)), (0.01,) * 21, ("150Nd", 0.004) + (None,) * 19))),
+         Msg(("column 21 of spike: more than 20 isotope columns",))),
+    Case("msg-workbook-table-cells", "rdWorkbookIsochron",
+         (L("age"), L("Sm-Nd"), OMIT, _BIG_TABLE, R((("analysis",),)), R((("key",),))),
+         Msg(("selection is a range of 10001 x 1 = 10001 cells; at most 10000 cells per table",))),
+]
+
 CASES += PART2
+CASES += BOUNDS
 BY_ID: Dict[str, Case] = {c.id: c for c in CASES}
 
 

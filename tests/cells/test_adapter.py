@@ -38,7 +38,7 @@ def test_accessors_reuse_one_fit(monkeypatch):
         return real(*a, **k)
 
     monkeypatch.setattr(reg, "fit_isochron", counting)
-    cells.FIT_CACHE.data.clear()
+    cells.FIT_CACHE.clear()
     args = FIT + (col(RHO),)
     for m in ("rdIsochronBlock", "rdIsochronSlope", "rdIsochronIntercept", "rdIsochronMswd"):
         getattr(cells, m)(*as_delivered(m, args))
