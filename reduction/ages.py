@@ -23,13 +23,14 @@ from typing import Any, Optional, Tuple, Union
 
 import numpy as np
 
-from ._validate import as_scalar, require_correlation
+from ._validate import as_scalar, finite_result, require_correlation
 from .constants import ReferenceSet, reference_set
 from .errors import InputError, UndefinedResultError
 from .regression import IsochronFit, york_fit
 from .systems import IsotopeSystem, get_system
 
 __all__ = [
+    "AGE_LIMIT_MA",
     "Epsilon",
     "IsochronAge",
     "MODEL_AGE_NEAR_RESERVOIR_REL",
@@ -109,6 +110,13 @@ class Epsilon:
 #: 2012, Science 338, 651–655; value recalled from memory). A model age beyond it dates nothing.
 SOLAR_SYSTEM_AGE_MA = 4567.3
 
+#: Largest age (Ma, either sign) an isochron slope may give, and the largest time ``t_ma`` the
+#: functions here accept: 10 × :data:`SOLAR_SYSTEM_AGE_MA` = 45 673 Ma. A rule of this program: nothing
+#: it dates can be older than the solar system, and a slope that implies ten times that (e.g. 1e308,
+#: which gave 108 439 787 Ma) is a typing or unit error, not an age; the factor 10 leaves room for
+#: negative-slope and test isochrons without letting absurd numbers through.
+AGE_LIMIT_MA = 10.0 * SOLAR_SYSTEM_AGE_MA
+
 #: A sample whose parent ratio lies within this fraction of the reservoir's, ``|P − P_res|/P_res``, gets a
 #: model-age flag (common practice, not a published limit: with ΔP small the sample's evolution line runs
 #: nearly parallel to the reservoir's and the age hangs on a small difference).
@@ -147,9 +155,11 @@ def _lambda_ok(decay_constant: Any) -> float:
 
 
 def age_from_slope(slope: float, decay_constant: float) -> float:
-    """Age in years from an isochron slope: ``t = ln(1 + slope)/λ``.
+    """Age in years from an isochron slope: ``t = ln(1 + slope)/λ`` (e.g. Faure & Mensing 2005).
 
-    Raises :class:`~reduction.errors.UndefinedResultError` for slope ≤ −1.
+    Raises :class:`~reduction.errors.UndefinedResultError` for slope ≤ −1, and for a slope whose
+    age lies beyond ±:data:`AGE_LIMIT_MA` (45 673 Ma, 10 × the age of the solar system; a rule of
+    this program): such a slope is a typing or unit error, not an age.
 
     Examples
     --------
@@ -160,14 +170,55 @@ def age_from_slope(slope: float, decay_constant: float) -> float:
     lam = _lambda_ok(decay_constant)
     if b <= -1:
         raise UndefinedResultError(f"slope {b!r} <= -1 gives no age (ln(1 + slope) undefined)")
-    return math.log1p(b) / lam
+    t = math.log1p(b) / lam
+    if not abs(t) <= AGE_LIMIT_MA * _MA:
+        raise UndefinedResultError(
+            f"slope {b:.6g} with decay constant {lam:.6g} /a gives an age of {t / _MA:.6g} Ma, beyond "
+            f"±{AGE_LIMIT_MA:g} Ma (10 × the age of the solar system, {SOLAR_SYSTEM_AGE_MA:g} Ma): that is no "
+            "age; check the slope (x and y swapped? units?) and the decay constant")
+    return t
+
+
+def _t_ok(name: str, t_ma: float) -> float:
+    """A time in Ma within ±:data:`AGE_LIMIT_MA`."""
+    if not abs(t_ma) <= AGE_LIMIT_MA:
+        raise InputError(name, f"must lie within ±{AGE_LIMIT_MA:g} Ma (10 × the age of the solar system), got "
+                               f"{t_ma:.6g} Ma")
+    return t_ma
 
 
 def slope_from_age(t_years: float, decay_constant: float) -> float:
-    """Isochron slope of an age in years: ``e^{λt} − 1``."""
+    """Isochron slope of an age in years: ``e^{λt} − 1`` (the inverse of :func:`age_from_slope`).
+
+    ``t_years`` must lie within ±:data:`AGE_LIMIT_MA` (in years, 4.5673e10 a); a slope too large for
+    double precision (a decay constant far beyond any real one) raises
+    :class:`~reduction.errors.UndefinedResultError`.
+    """
     t = as_scalar("t_years", t_years)
     lam = _lambda_ok(decay_constant)
-    return math.expm1(lam * t)
+    _t_ok("t_years", t / _MA)
+    return _growth_years(t, lam)
+
+
+def _growth_years(t_years: float, lam: float) -> float:
+    """e^{λt} − 1, or an UndefinedResultError if it overflows."""
+    try:
+        g = math.expm1(lam * t_years)
+        if not math.isfinite(g):
+            raise OverflowError
+        return g
+    except OverflowError:
+        raise UndefinedResultError(f"e^(λt) - 1 with λ = {lam:.6g} /a and t = {t_years / _MA:.6g} Ma is too large for "
+                                   "double precision; check the decay constant and the time") from None
+
+
+def _sigma2(a: float, b: float, rho: float) -> float:
+    """sqrt(a² + b² + 2ρab) for two correlated error terms, without overflow (scaled by max |a|, |b|)."""
+    m = max(abs(a), abs(b))
+    if m == 0.0 or not math.isfinite(m):
+        return 0.0 if m == 0.0 else math.inf
+    a, b = a / m, b / m
+    return m * math.sqrt(max(a * a + b * b + 2.0 * rho * a * b, 0.0))
 
 
 def _setup(system: SystemLike, ref: Optional[ReferenceSet]) -> Tuple[IsotopeSystem, ReferenceSet]:
@@ -216,6 +267,11 @@ def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSe
     if ks < 0:
         raise InputError("x_scale_sigma_rel", f"must be >= 0 (a 1σ relative uncertainty), got {ks!r}")
     sysobj, ref = _setup(system, ref)
+    for nm in ("slope_sigma_1s", "intercept", "intercept_sigma_1s", "slope_sigma_95_expanded",
+               "intercept_sigma_95_expanded", "mswd", "p_value"):
+        v = getattr(fit, nm)
+        if v is not None and (not math.isfinite(v) or (nm != "intercept" and v < 0)):
+            raise InputError("fit", f"{nm} must be a finite number{'' if nm == 'intercept' else ' >= 0'}, got {v!r}")
     lam_ref = ref.decay_constant(sysobj.decay_key)
     lam, slam = lam_ref.value, lam_ref.sigma_1s
     t = age_from_slope(fit.slope, lam)
@@ -224,6 +280,8 @@ def isochron_age(fit: IsochronFit, system: SystemLike, ref: Optional[ReferenceSe
     s_all = math.hypot(s_b, t * slam / lam)
     s_total = math.hypot(s_all, abs(dt_db * fit.slope) * ks)   # x -> k x: b -> b/k, ∂b/∂k = −b at k = 1
     s95 = abs(dt_db) * fit.slope_sigma_95_expanded / _MA if fit.slope_sigma_95_expanded is not None else None
+    finite_result("isochron age", **{"age σ": s_b, "age σ with λ": s_all, "total age σ": s_total,
+                                     "95 % age error": s95})
     return IsochronAge(
         age_ma=t / _MA, age_sigma_1s_ma=s_b / _MA, age_sigma_1s_ma_with_lambda=s_all / _MA,
         initial=fit.intercept, initial_sigma_1s=fit.intercept_sigma_1s, decay_constant=lam,
@@ -266,7 +324,7 @@ def _sample(daughter_ratio: Any, daughter_sigma_1s: Any, parent_ratio: Any, pare
 
 
 def _growth(t_ma: float, lam: float) -> float:
-    return math.expm1(lam * t_ma * _MA)
+    return _growth_years(t_ma * _MA, lam)
 
 
 def _reservoir_kind(sysobj: IsotopeSystem, reservoir: str) -> str:
@@ -278,13 +336,19 @@ def _reservoir_kind(sysobj: IsotopeSystem, reservoir: str) -> str:
 
 def initial_ratio(daughter_ratio: float, parent_ratio: float, t_ma: float, system: SystemLike,
                   ref: Optional[ReferenceSet] = None) -> float:
-    """Daughter ratio at ``t_ma``: ``R(t) = R_0 − P_0 (e^{λt} − 1)``."""
+    """Daughter ratio at ``t_ma``: ``R(t) = R_0 − P_0 (e^{λt} − 1)`` (e.g. Faure & Mensing 2005).
+
+    ``t_ma`` must lie within ±:data:`AGE_LIMIT_MA`; a result too large for double precision raises
+    :class:`~reduction.errors.UndefinedResultError`.
+    """
     sysobj, ref = _setup(system, ref)
     r = as_scalar("daughter_ratio", daughter_ratio)
     p = as_scalar("parent_ratio", parent_ratio)
-    t = as_scalar("t_ma", t_ma)
+    t = _t_ok("t_ma", as_scalar("t_ma", t_ma))
     lam = ref.decay_constant(sysobj.decay_key).value
-    return r - p * _growth(t, lam)
+    out = r - p * _growth(t, lam)
+    finite_result("initial ratio", **{"ratio at t": out})
+    return out
 
 
 def epsilon(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: float, t_ma: float,
@@ -318,6 +382,7 @@ def epsilon(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: float
     t = as_scalar("t_ma", t_ma)
     if t < 0:
         raise InputError("t_ma", f"must be >= 0, got {t!r}")
+    _t_ok("t_ma", t)
     kind = _reservoir_kind(sysobj, "CHUR")
     rc = ref.reservoir(kind, sysobj.daughter_ratio)
     pc = ref.reservoir(kind, sysobj.parent_ratio)
@@ -336,16 +401,19 @@ def epsilon(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: float
     # partial derivatives of ε
     d_r = 1e4 / rc_t
     d_p = -1e4 * g / rc_t
-    var = (d_r * sr) ** 2 + (d_p * sp) ** 2 + 2 * d_r * d_p * rho * sr * sp
-    var_rs_t = sr ** 2 + (g * sp) ** 2 - 2 * g * rho * sr * sp
+    # σ² = (d_r σr)² + (d_p σp)² + 2 d_r d_p ρ σr σp, formed without squaring (no overflow)
+    sigma = _sigma2(d_r * sr, d_p * sp, rho)
+    sigma_rs_t = _sigma2(sr, -g * sp, rho)
     if include_reference:
-        d_rc = -1e4 * rs_t / rc_t ** 2
-        d_pc = 1e4 * rs_t * g / rc_t ** 2
-        dg_dlam = t * _MA * math.exp(lam * t * _MA)
-        d_lam = 1e4 * (-p * rc_t + rs_t * pc.value) / rc_t ** 2 * dg_dlam
-        var += (d_rc * rc.sigma_1s) ** 2 + (d_pc * pc.sigma_1s) ** 2 + (d_lam * lam_ref.sigma_1s) ** 2
-    return Epsilon(value=eps, sigma_1s=math.sqrt(max(var, 0.0)), t_ma=t, chur_daughter_t=rc_t,
-                   sample_daughter_t=rs_t, sample_daughter_t_sigma_1s=math.sqrt(max(var_rs_t, 0.0)),
+        d_rc = -1e4 * rs_t / rc_t / rc_t
+        d_pc = 1e4 * rs_t * g / rc_t / rc_t
+        dg_dlam = t * _MA * (g + 1.0)      # d(e^{λt} − 1)/dλ = t e^{λt}
+        d_lam = 1e4 * (-p * rc_t + rs_t * pc.value) / rc_t / rc_t * dg_dlam
+        sigma = math.hypot(sigma, d_rc * rc.sigma_1s, d_pc * pc.sigma_1s, d_lam * lam_ref.sigma_1s)
+    finite_result("epsilon", value=eps, **{"σ": sigma, "sample ratio at t": rs_t,
+                                           "σ of the sample ratio at t": sigma_rs_t})
+    return Epsilon(value=eps, sigma_1s=sigma, t_ma=t, chur_daughter_t=rc_t,
+                   sample_daughter_t=rs_t, sample_daughter_t_sigma_1s=sigma_rs_t,
                    system=sysobj.key, reservoir=kind, reservoir_source=rc.source)
 
 
@@ -423,9 +491,9 @@ def model_age(daughter_ratio: float, daughter_sigma_1s: float, parent_ratio: flo
     t = math.log1p(q) / lam + 0.0   # + 0.0: q = -0.0 (R equal to the reservoir's) gives 0, not -0
     d_r = 1.0 / (lam * (1.0 + q) * dp)
     d_p = -q / (lam * (1.0 + q) * dp)
-    var = (d_r * sr) ** 2 + (d_p * sp) ** 2 + 2 * d_r * d_p * rho * sr * sp
     age_ma = t / _MA
-    sigma_ma = math.sqrt(max(var, 0.0)) / _MA
+    sigma_ma = _sigma2(d_r * sr, d_p * sp, rho) / _MA
+    finite_result("model age", age=age_ma, **{"age σ": sigma_ma})
     codes, flags = _model_age_flags(sysobj, kind, age_ma, sigma_ma, p, pr.value)
     return ModelAge(age_ma=age_ma, age_sigma_1s_ma=sigma_ma, reservoir=kind,
                     reservoir_source=rr.source, system=sysobj.key, decay_constant=lam,

@@ -14,6 +14,7 @@ from typing import Any, Mapping, Optional
 
 import numpy as np
 
+from ._validate import broadcast_shape, finite_result
 from .constants import isotope_mass
 from .errors import UndefinedResultError
 from .massbias import _checked
@@ -75,7 +76,10 @@ def blank_correct(total_umol: Any, total_ratio: Any, blank_umol: Any, blank_rati
     Returns
     -------
     BlankCorrection
-        σ by linear propagation with the analytic partial derivatives of the mass balance.
+        σ by linear propagation with the analytic partial derivatives of the mass balance (GUM,
+        JCGM 100:2008, eq. 10), formed without squaring any input, so amounts anywhere in double
+        precision's range are handled; a result that still does not fit raises
+        :class:`~reduction.errors.UndefinedResultError`.
     """
     nt = _arr("total_umol", total_umol, True)
     rt = _arr("total_ratio", total_ratio, True)
@@ -85,22 +89,37 @@ def blank_correct(total_umol: Any, total_ratio: Any, blank_umol: Any, blank_rati
     s_nb = _arr("blank_sigma_1s", blank_sigma_1s, False)
     s_rt = _arr("total_ratio_sigma_1s", total_ratio_sigma_1s, False)
     s_rb = _arr("blank_ratio_sigma_1s", blank_ratio_sigma_1s, False)
-    ns = nt - nb
-    if np.any(ns <= 0):
-        raise UndefinedResultError("blank_umol: the blank is not smaller than the measured total amount")
-    rs = (nt * rt - nb * rb) / ns
-    if np.any(rs <= 0):
-        raise UndefinedResultError("blank_ratio: blank correction gives a ratio <= 0")
-    d_nt = nb * (rb - rt) / ns ** 2
-    d_nb = nt * (rt - rb) / ns ** 2
-    d_rt = nt / ns
-    d_rb = -nb / ns
-    var_r = (d_nt * s_nt) ** 2 + (d_nb * s_nb) ** 2 + (d_rt * s_rt) ** 2 + (d_rb * s_rb) ** 2
-    var_n = s_nt ** 2 + s_nb ** 2
-    cov = d_nt * s_nt ** 2 - d_nb * s_nb ** 2
-    with np.errstate(invalid="ignore", divide="ignore"):
-        rho = np.where(var_r * var_n > 0, cov / np.sqrt(var_r * var_n), 0.0)
-    return BlankCorrection(_o(ns), _o(np.sqrt(var_n)), _o(rs), _o(np.sqrt(var_r)), _o(rho), _o(nb / nt))
+    broadcast_shape(total_umol=nt, total_ratio=rt, blank_umol=nb, blank_ratio=rb, total_sigma_1s=s_nt,
+                    blank_sigma_1s=s_nb, total_ratio_sigma_1s=s_rt, blank_ratio_sigma_1s=s_rb)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        ns = nt - nb
+        if np.any(ns <= 0):
+            raise UndefinedResultError("blank_umol: the blank is not smaller than the measured total amount")
+        fb = nb / ns                     # n_b/n_s and n_t/n_s: the derivatives without squaring n_s
+        ft = nt / ns
+        rs = ft * rt - fb * rb
+        if np.any(rs <= 0):
+            raise UndefinedResultError("blank_ratio: blank correction gives a ratio <= 0")
+        d_nt = fb * (rb - rt) / ns
+        d_nb = ft * (rt - rb) / ns
+        d_rt = ft
+        d_rb = -fb
+
+        def term(d: np.ndarray, sig: np.ndarray) -> np.ndarray:
+            return np.where(sig == 0, 0.0, d * sig)      # an exact input contributes nothing, whatever d is
+
+        a, b, c, e = term(d_nt, s_nt), term(d_nb, s_nb), term(d_rt, s_rt), term(d_rb, s_rb)
+        # σ_R = sqrt(a² + b² + c² + e²), σ_n = sqrt(σ_nt² + σ_nb²) by hypot (no square overflows);
+        # ρ = (a σ_nt − b σ_nb)/(σ_R σ_n), formed from ratios <= 1
+        sig_r = np.hypot(np.hypot(a, b), np.hypot(c, e))
+        sig_n = np.hypot(s_nt, s_nb)
+        ok = (sig_r > 0) & (sig_n > 0)
+        rho = np.where(ok, (a / sig_r) * (s_nt / sig_n) - (b / sig_r) * (s_nb / sig_n), 0.0)
+        rho = np.clip(np.where(ok, rho, 0.0), -1.0, 1.0)
+        share = nb / nt
+    finite_result("blank correction", **{"sample amount": ns, "amount σ": sig_n, "sample ratio": rs,
+                                         "ratio σ": sig_r, "amount-ratio correlation": rho})
+    return BlankCorrection(_o(ns), _o(sig_n), _o(rs), _o(sig_r), _o(rho), _o(share))
 
 
 def blank_umol(blank_ng: Any, element: str, reference_isotope: str,
@@ -117,5 +136,9 @@ def blank_umol(blank_ng: Any, element: str, reference_isotope: str,
     b = _arr("blank_ng", blank_ng, False)
     comp = sample_composition(element, reference_isotope, ratios, natural)
     isos = element_isotopes(element)
-    mass_per_ref = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) * isotope_mass(i).value for i in isos)
-    return _o(b * 1e-3 / mass_per_ref)
+    broadcast_shape(blank_ng=b, **{f"ratios[{k!r}]": v for k, v in comp.items()})
+    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+        mass_per_ref = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) * isotope_mass(i).value for i in isos)
+        out = b * 1e-3 / mass_per_ref
+    finite_result("blank amount", **{"µmol of the reference isotope": out})
+    return _o(out)

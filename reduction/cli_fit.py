@@ -101,11 +101,16 @@ def _to_1s_abs(values: np.ndarray, sigma: np.ndarray, lines: List[int], column: 
     for k, s in enumerate(sigma):
         if s <= 0:
             raise InputError(f"line {lines[k]}, column {column}", f"uncertainty must be > 0, got {float(s)!r}")
-    out = np.abs(values) * sigma / 100.0 if relative else sigma.copy()
+    with np.errstate(over="ignore", under="ignore"):
+        out = np.abs(values) * (sigma / 100.0) if relative else sigma.copy()
     for k, s in enumerate(out):
-        if s <= 0:
+        if values[k] == 0 and relative:
             raise InputError(f"line {lines[k]}, column {column}",
                              "a relative uncertainty of a value of 0 is 0: give it as an absolute uncertainty")
+        if not (0 < s < math.inf):
+            raise InputError(f"line {lines[k]}, column {column}",
+                             f"{float(sigma[k]):g} % of {float(values[k]):g} is beyond double precision as an absolute "
+                             "uncertainty: give it as an absolute uncertainty")
     return out / level
 
 
@@ -286,6 +291,8 @@ def add_arguments_wmean(parser: argparse.ArgumentParser) -> None:
 
 def wmean_result(args: argparse.Namespace) -> Dict[str, Any]:
     """The JSON object of ``ratiodesk wmean``."""
+    if args.outlier_k is not None and not (math.isfinite(args.outlier_k) and args.outlier_k > 0):
+        raise InputError("--outlier-k", f"must be a finite number > 0, got {args.outlier_k!r}")
     cols, lines = read_columns(args.file, ("value", "sigma"))
     s = _to_1s_abs(cols["value"], cols["sigma"], lines, "sigma", args.sigma, args.relative)
     wm = weighted_mean(cols["value"], s, external_scatter=args.external, outlier_k=args.outlier_k)

@@ -47,15 +47,21 @@ from typing import Any, Optional, Union
 
 import numpy as np
 
+from ._validate import as_count
 from .errors import InputError, UndefinedResultError
 
-__all__ = ["RULES", "CycleStats", "cycle_mean", "cycle_sem_1s", "cycle_stats"]
+__all__ = ["MAX_PASSES_LIMIT", "RULES", "CycleStats", "cycle_mean", "cycle_sem_1s", "cycle_stats"]
 
 ArrayOrFloat = Union[float, np.ndarray]
 Threshold = Union[float, str, None]
 
 #: Rule names accepted by :func:`cycle_stats`.
 RULES = ("robust", "sigma-clip", "none")
+#: Upper bound of ``max_passes`` (every sigma-clipping pass but the last removes at least one cycle, so
+#: more passes than cycles never run; the bound keeps a typo such as 1e9 readable).
+MAX_PASSES_LIMIT = 1000
+#: Upper bound of ``min_kept`` (a run has at most a few thousand cycles).
+MIN_KEPT_LIMIT = 1_000_000
 #: Threshold each rule uses when ``reject_k="default"``: 3.5 robust SD (Iglewicz & Hoaglin 1993, recalled
 #: from memory); 2 SD for sigma-clipping (common practice).
 DEFAULT_K = {"robust": 3.5, "sigma-clip": 2.0}
@@ -147,7 +153,7 @@ def _resolve_rule(rule: Any, reject_k: Threshold):
     else:
         try:
             k = float(reject_k)
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise InputError("reject_k", f"must be > 0, None or 'default', got {reject_k!r}") from None
         if not (np.isfinite(k) and k > 0):
             raise InputError("reject_k", f"must be > 0, None or 'default', got {reject_k!r}")
@@ -176,9 +182,11 @@ def cycle_stats(values: Any, *, rule: str = "robust", reject_k: Threshold = "def
         ``"default"`` is 3.5 for ``"robust"`` and 2 for ``"sigma-clip"``. ``None`` keeps every cycle
         whatever the rule.
     max_passes : int, default 10
-        Upper limit on sigma-clipping passes (the robust rule makes one).
+        Upper limit on sigma-clipping passes (the robust rule makes one), a whole number from 1 to
+        :data:`MAX_PASSES_LIMIT` (1000).
     min_kept : int, default 3
-        A pass that would leave fewer than ``min_kept`` cycles in a row is not applied to that row.
+        A pass that would leave fewer than ``min_kept`` cycles in a row is not applied to that row
+        (a whole number from 0 to 1 000 000; values below 2 act as 2).
 
     Returns
     -------
@@ -214,7 +222,7 @@ def cycle_stats(values: Any, *, rule: str = "robust", reject_k: Threshold = "def
     """
     try:
         x = np.array(values, dtype=float)  # a copy: never touch the caller's array
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError("values", "could not be read as numbers") from None
     if x.ndim not in (1, 2):
         raise InputError("values", f"must be 1-D (cycles) or 2-D (analyses x cycles), got shape {x.shape}")
@@ -229,9 +237,16 @@ def cycle_stats(values: Any, *, rule: str = "robust", reject_k: Threshold = "def
         i = int(np.flatnonzero(np.isinf(x).any(axis=1))[0])
         raise InputError("values", "contains inf", row=i + 1)
     name, k = _resolve_rule(rule, reject_k)
-    if int(max_passes) < 1:
-        raise InputError("max_passes", f"must be >= 1, got {max_passes!r}")
-    min_kept = max(int(min_kept), 2)
+    max_passes = as_count("max_passes", max_passes, 1, MAX_PASSES_LIMIT,
+                          "sigma clipping stops after at most as many passes as there are cycles")
+    min_kept = max(as_count("min_kept", min_kept, 0, MIN_KEPT_LIMIT), 2)
+    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+        return _cycle_stats(x, one_d, name, k, max_passes, min_kept)
+
+
+def _cycle_stats(x: np.ndarray, one_d: bool, name: str, k: Optional[float], max_passes: int,
+                 min_kept: int) -> CycleStats:
+    """:func:`cycle_stats` on checked input (2-D, NaN = missing)."""
     present = np.isfinite(x)
     n_present = present.sum(axis=1)
     if np.any(n_present < 2):
@@ -248,7 +263,7 @@ def cycle_stats(values: Any, *, rule: str = "robust", reject_k: Threshold = "def
         ok_rows = new.sum(axis=1) >= min_kept
         kept = np.where(ok_rows[:, None], new, present)
     elif name == "sigma-clip":
-        for _ in range(int(max_passes)):
+        for _ in range(max_passes):
             passes += 1
             mean, sd, n = _masked_mean_sd(x, kept)
             with np.errstate(invalid="ignore"):
@@ -262,7 +277,10 @@ def cycle_stats(values: Any, *, rule: str = "robust", reject_k: Threshold = "def
     mean, sd, n = _masked_mean_sd(x, kept)
     sem = sd / np.sqrt(n)
     if np.any(~np.isfinite(mean)) or np.any(~np.isfinite(sd)):
-        raise UndefinedResultError("values: cycle statistics undefined (too few kept cycles)")
+        i = int(np.flatnonzero(~(np.isfinite(mean) & np.isfinite(sd)))[0])
+        where = "" if one_d else f" of row {i + 1}"
+        raise UndefinedResultError(f"values: the mean or SD of the cycles{where} is beyond double precision "
+                                   "(cycle values or their spread above ~1e154); check the units")
     n_rej = n_present - n
     if name == "robust":
         rule_text = (f"one pass rejecting cycles more than {k:g} robust SD from the median (robust SD = "
@@ -270,7 +288,7 @@ def cycle_stats(values: Any, *, rule: str = "robust", reject_k: Threshold = "def
                      f"at least {min_kept} cycles kept; mean, SD (ddof=1) and SEM = SD/sqrt(n) of the kept cycles")
     elif name == "sigma-clip":
         rule_text = (f"iterative rejection of cycles beyond {k:g} SD of the kept cycles' mean "
-                     f"(SD ddof=1; at least {min_kept} cycles kept; up to {int(max_passes)} passes)")
+                     f"(SD ddof=1; at least {min_kept} cycles kept; up to {max_passes} passes)")
     else:
         rule_text = "no outlier rejection"
     if one_d:
@@ -283,10 +301,12 @@ def _one_run(values: Any) -> np.ndarray:
     """A cell range (row or column) as one 1-D run of cycles."""
     try:
         x = np.array(values, dtype=float)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError("values", "could not be read as numbers") from None
     if x.ndim == 2 and 1 in x.shape:
         x = x.ravel()
+    if x.ndim != 1:
+        raise InputError("values", f"must be one run of cycles (a row or a column of cells), got shape {x.shape}")
     return x
 
 

@@ -23,6 +23,7 @@ practice) is M = R_mix·|R_s − R_t| / (|R_mix − R_s|·|R_t − R_mix|), smal
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Dict, Mapping, Optional, Sequence, Tuple
@@ -30,6 +31,7 @@ from typing import Any, Dict, Mapping, Optional, Sequence, Tuple
 import numpy as np
 
 from . import constants
+from ._validate import as_count, as_name, as_scalar, broadcast_shape, finite_result
 from .composition import NaturalComposition, natural_composition
 from .constants import isotope_mass, normalising_ratio
 from .errors import ConvergenceError, InputError, UndefinedResultError
@@ -57,6 +59,11 @@ __all__ = [
 SINGULAR_MAGNIFICATION = 100.0
 #: A mixture is flagged as poor when its magnification exceeds this multiple of the optimum.
 POOR_MIX_FACTOR = 2.0
+#: Upper bound of :func:`isotope_dilution`'s ``max_iter`` (spike stripping converges in a handful of passes).
+MAX_ITER_LIMIT = 10_000
+#: Floating-point state of the arithmetic here: overflow and the like are not warned about but caught
+#: by the finiteness check of each result.
+_QUIET = dict(over="ignore", invalid="ignore", divide="ignore", under="ignore")
 
 
 def _split(ratio: str, name: str = "ratio") -> Tuple[str, str]:
@@ -104,6 +111,8 @@ def sample_composition(element: str, reference_isotope: str,
         raise InputError("reference_isotope", f"{reference_isotope!r} is not an isotope of {element}")
     nat = _natural(element, natural)
     comp: Dict[str, Any] = dict(nat.ratios_to(reference_isotope))
+    if overrides is not None and not isinstance(overrides, Mapping):
+        raise InputError("sample_ratios", f"must be a mapping of ratio name to value, got {type(overrides).__name__}")
     for k, v in (overrides or {}).items():
         num, den = _split(k, "sample_ratios")
         if den != reference_isotope or f"{num}/{den}" not in comp:
@@ -203,14 +212,16 @@ def make_spike(element: str, isotopes: Sequence[str], abundances: Sequence[float
     concentration_sigma_1s : float, default 0
         1σ absolute uncertainty of that concentration.
     """
+    if isinstance(isotopes, str) or not isinstance(isotopes, (Sequence, np.ndarray)):
+        raise InputError("isotopes", f"must be a list of isotope names, got {type(isotopes).__name__}")
     isos = tuple(str(i).strip() for i in isotopes)
     try:
         ab = np.array(abundances, dtype=float).ravel()
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError("abundances", "could not be read as numbers") from None
     if len(isos) != ab.size or not isos:
         raise InputError("abundances", f"has {ab.size} values but isotopes has {len(isos)}")
-    if not np.all(np.isfinite(ab)) or np.any(ab < 0) or ab.sum() <= 0:
+    if not np.all(np.isfinite(ab)) or np.any(ab < 0) or not np.any(ab > 0):
         raise InputError("abundances", "must be finite, >= 0 and not all zero")
     known = set(element_isotopes(element))
     for i in isos:
@@ -220,13 +231,18 @@ def make_spike(element: str, isotopes: Sequence[str], abundances: Sequence[float
         raise InputError("isotopes", "lists an isotope twice")
     if spike_isotope not in isos or ab[isos.index(spike_isotope)] <= 0:
         raise InputError("spike_isotope", f"{spike_isotope!r} must be one of the isotopes with abundance > 0")
-    c = float(concentration_umol_g)
-    s = float(concentration_sigma_1s)
-    if not (np.isfinite(c) and c > 0):
+    c = as_scalar("concentration_umol_g", concentration_umol_g)
+    s = as_scalar("concentration_sigma_1s", concentration_sigma_1s)
+    if not c > 0:
         raise InputError("concentration_umol_g", f"must be > 0, got {c!r}")
-    if not (np.isfinite(s) and s >= 0):
+    if not s >= 0:
         raise InputError("concentration_sigma_1s", f"must be >= 0, got {s!r}")
-    ab = ab / ab.sum()
+    with np.errstate(under="ignore"):
+        ab = ab / ab.max()     # first to the largest, so the sum cannot overflow
+        ab = ab / ab.sum()
+    if ab[isos.index(spike_isotope)] <= 0:
+        raise InputError("spike_isotope", f"{spike_isotope!r}: its abundance is too small against the others "
+                         "to be represented")
     return Spike(label or f"{spike_isotope} spike", element, isos, tuple(float(a) for a in ab), spike_isotope,
                  c, s, calibrated)
 
@@ -246,27 +262,72 @@ def load_demo_spikes() -> Dict[str, Spike]:
 
 
 # ------------------------------------------------------------------------------------ ID equation
+def _ratio_or_inf(name: str, x: Any) -> np.ndarray:
+    """A ratio array > 0 that may be +inf (a spike free of the reference isotope); NaN and text refused."""
+    try:
+        a = np.asarray(x, dtype=float)
+    except (TypeError, ValueError, OverflowError):
+        raise InputError(name, "could not be read as numbers") from None
+    bad = np.isnan(a) | ~(a > 0)
+    if np.any(bad):
+        i = int(np.flatnonzero(bad.ravel())[0])
+        v = float(a.ravel()[i])
+        problem = f"must be a number > 0 (or inf), got {v!r}"
+        raise InputError(name, problem) if a.ndim == 0 else InputError(name, problem, row=i + 1)
+    return a
+
+
+def _magnification(rm: Any, rs: Any, rt: Any) -> np.ndarray:
+    with np.errstate(**_QUIET):
+        inv_t = np.where(np.isinf(rt), 0.0, 1.0 / (rt - rm))
+        return np.asarray(rm * np.abs(inv_t - 1.0 / (rs - rm)))
+
+
 def magnification(mix_ratio: Any, sample_ratio: Any, spike_ratio: Any) -> Any:
     """Error magnification |d ln n_sample / d ln R_mix| of a single-spike mixture (ratios k/r).
 
-    ``spike_ratio`` may be ``inf`` (spike free of the reference isotope); then M = R_mix/|R_mix − R_s|.
+    M = R_mix·|1/(R_t − R_mix) − 1/(R_s − R_mix)| = R_mix·|R_s − R_t| / (|R_mix − R_s|·|R_t − R_mix|)
+    (Webster 1960, and common practice; see the module docstring). ``spike_ratio`` may be ``inf``
+    (spike free of the reference isotope); then M = R_mix/|R_mix − R_s|. Ratios must be > 0; a mixture
+    ratio equal to the sample's or the spike's makes M infinite and raises
+    :class:`~reduction.errors.UndefinedResultError`.
     """
-    rm = np.asarray(mix_ratio, dtype=float)
-    rs = np.asarray(sample_ratio, dtype=float)
-    rt = np.asarray(spike_ratio, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv_t = np.where(np.isinf(rt), 0.0, 1.0 / (rt - rm))
-        m = rm * np.abs(inv_t - 1.0 / (rs - rm))
+    rm = _pos_array("mix_ratio", mix_ratio)
+    rs = _pos_array("sample_ratio", sample_ratio)
+    rt = _ratio_or_inf("spike_ratio", spike_ratio)
+    broadcast_shape(mix_ratio=rm, sample_ratio=rs, spike_ratio=rt)
+    if np.any(rm == rs):
+        raise UndefinedResultError("mix_ratio equals sample_ratio: the mixture holds no spike, so the error "
+                                   "magnification is infinite")
+    if np.any(rm == rt):
+        raise UndefinedResultError("mix_ratio equals spike_ratio: the mixture holds no sample, so the error "
+                                   "magnification is infinite")
+    m = _magnification(rm, rs, rt)
+    finite_result("error magnification", magnification=m)
     return _out(m)
 
 
-def magnification_min(sample_ratio: Any, spike_ratio: Any) -> Any:
-    """Smallest possible magnification for a sample/spike pair: (√R_t + √R_s)/|√R_t − √R_s| (1 if R_t = ∞)."""
-    rs = np.sqrt(np.asarray(sample_ratio, dtype=float))
-    rt = np.asarray(spike_ratio, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
+def _magnification_min(sample_ratio: Any, spike_ratio: Any) -> np.ndarray:
+    with np.errstate(**_QUIET):
+        rs = np.sqrt(np.asarray(sample_ratio, dtype=float))
+        rt = np.asarray(spike_ratio, dtype=float)
         q = np.where(np.isinf(rt), 0.0, rs / np.sqrt(np.where(np.isinf(rt), 1.0, rt)))
-        m = (1 + q) / np.abs(1 - q)
+        return np.asarray((1 + q) / np.abs(1 - q))
+
+
+def magnification_min(sample_ratio: Any, spike_ratio: Any) -> Any:
+    """Smallest possible magnification for a sample/spike pair: (√R_t + √R_s)/|√R_t − √R_s| (1 if R_t = ∞).
+
+    Reached at R_mix = √(R_s·R_t) (module docstring; Webster 1960 and common practice). Equal sample
+    and spike ratios (no isotope dilution possible) raise :class:`~reduction.errors.UndefinedResultError`.
+    """
+    rs = _pos_array("sample_ratio", sample_ratio)
+    rt = _ratio_or_inf("spike_ratio", spike_ratio)
+    broadcast_shape(sample_ratio=rs, spike_ratio=rt)
+    m = _magnification_min(rs, rt)
+    if not np.all(np.isfinite(m)):
+        raise UndefinedResultError("sample_ratio and spike_ratio are equal (or nearly): the spike does not change "
+                                   "the sample's ratio, so isotope dilution is impossible")
     return _out(m)
 
 
@@ -300,7 +361,8 @@ def id_amount(mix_ratio: Any, sample_ratio: Any, spike_ratio: Any, spike_ref_umo
     rs = _pos_array("sample_ratio", sample_ratio)
     rt = _pos_array("spike_ratio", spike_ratio)
     n = _pos_array("spike_ref_umol", spike_ref_umol)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    broadcast_shape(mix_ratio=rm, sample_ratio=rs, spike_ratio=rt, spike_ref_umol=n)
+    with np.errstate(**_QUIET):
         x = n * (rt - rm) / (rm - rs)
     if np.any(~np.isfinite(x)) or np.any(x <= 0):
         raise UndefinedResultError("mix_ratio: not strictly between sample_ratio and spike_ratio")
@@ -389,6 +451,7 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     tol : float, default 1e-13
         Convergence: stop when |R_norm,sample / R_norm,true − 1| < tol for every analysis.
     max_iter : int, default 100
+        Spike-stripping passes allowed, a whole number from 1 to :data:`MAX_ITER_LIMIT` (10 000).
     natural : NaturalComposition, optional
         Natural composition of the element (default: :func:`reduction.composition.natural_composition`).
 
@@ -402,7 +465,8 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
         Masses or ratios <= 0, spike ratio missing, spike composition too close to the sample's (best
         attainable magnification > 100: the ID equation is singular).
     UndefinedResultError
-        Mixture ratio outside the sample–spike interval.
+        Mixture ratio outside the sample–spike interval, or a result that double precision cannot hold
+        (e.g. a ratio typed as 1e308): never an inf or NaN concentration.
     ConvergenceError
         The spike-stripping iteration did not reach ``tol`` in ``max_iter`` passes.
 
@@ -416,15 +480,18 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     """
     if not isinstance(spike, Spike):
         raise InputError("spike", "must be a Spike (see make_spike)")
-    if not (np.isfinite(tol) and 0 < tol < 1e-3):
-        raise InputError("tol", f"must lie in (0, 1e-3), got {float(tol)!r}")
-    if int(max_iter) < 1:
-        raise InputError("max_iter", f"must be >= 1, got {max_iter!r}")
+    tol = as_scalar("tol", tol)
+    if not 0 < tol < 1e-3:
+        raise InputError("tol", f"must lie in (0, 1e-3), got {tol!r}")
+    max_iter = as_count("max_iter", max_iter, 1, MAX_ITER_LIMIT, "spike stripping converges in a few passes")
+    if not isinstance(measured, Mapping):
+        raise InputError("measured", f"must be a mapping of ratio name to value, got {type(measured).__name__}")
     if not measured:
         raise InputError("measured", "no ratios given")
     names = list(measured)
     split = {k: _split(k, "measured") for k in names}
-    ref = reference_isotope or split[names[0]][1]
+    ref = split[names[0]][1] if reference_isotope is None else as_name("reference_isotope", reference_isotope,
+                                                                         "144Nd")
     element = _el(ref)
     if element != spike.element:
         raise InputError("spike", f"is a {spike.element} spike but the ratios are of {element}")
@@ -443,7 +510,7 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     n_iso = None
     if norm_ratio is not None:
         n_iso, n_den = _split(norm_ratio, "norm_ratio")
-        if norm_true is not None and not (np.isfinite(norm_true) and norm_true > 0):
+        if norm_true is not None and not as_scalar("norm_true", norm_true) > 0:
             raise InputError("norm_true", f"must be > 0, got {float(norm_true)!r}")
         r_true = normalising_ratio(norm_ratio).value if norm_true is None else float(norm_true)
         if n_iso == ref:  # e.g. 86Sr/88Sr with reference 86Sr: use 88Sr/86Sr = 1/0.1194
@@ -458,12 +525,27 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
         comp[f"{n_iso}/{ref}"] = r_true
     elif bias_factor is None:
         raise InputError("bias_factor", "give norm_ratio (internal normalisation) or an external bias_factor")
+    beta_ext = None if bias_factor is None else _checked("bias_factor", bias_factor, "any")
+    shapes = {f"measured[{k!r}]": meas[split[k][0]] for k in names}
+    shapes.update({f"sample_ratios[{k!r}]": v for k, v in comp.items()},
+                  sample_mass_g=ws, spike_mass_g=wt, bias_factor=beta_ext)
+    broadcast_shape(**{k: v for k, v in shapes.items() if v is not None})
+    with np.errstate(**_QUIET):
+        return _isotope_dilution(spike, element, ref, k_iso, n_iso, norm_ratio, comp, meas, ws, wt, beta_ext, law,
+                                 sample_ratios, tol, max_iter)
+
+
+def _isotope_dilution(spike: Spike, element: str, ref: str, k_iso: str, n_iso: Optional[str],
+                      norm_ratio: Optional[str], comp: Dict[str, Any], meas: Dict[str, np.ndarray], ws: np.ndarray,
+                      wt: np.ndarray, bias_factor: Optional[np.ndarray], law: str,
+                      sample_ratios: Optional[Mapping[str, Any]], tol: float, max_iter: int) -> Dilution:
+    """The iteration of :func:`isotope_dilution` on checked inputs."""
     a = {i: spike.abundance(i) for i in element_isotopes(element)}
     a_k, a_r = a[k_iso], a[ref]
     rs_k = comp[f"{k_iso}/{ref}"]
     rt_k = np.inf if a_r == 0 else a_k / a_r
-    m_min = magnification_min(rs_k, rt_k)
-    if np.any(np.asarray(m_min) > SINGULAR_MAGNIFICATION):
+    m_min = _magnification_min(rs_k, rt_k)
+    if not np.all(m_min <= SINGULAR_MAGNIFICATION):
         raise InputError("spike", f"its {k_iso}/{ref} ({rt_k:.6g}) is too close to the sample's "
                          f"({float(np.ravel(rs_k)[0]):.6g}): the ID equation is near-singular "
                          "(best attainable magnification "
@@ -499,8 +581,6 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
             beta = beta + np.asarray(_bias_factor_of(s_n, r_true, mass[n_iso], m_r, law))
     else:
         beta = np.asarray(bias_factor, dtype=float)
-        if not np.all(np.isfinite(beta)):
-            raise InputError("bias_factor", "must be finite")
         it = 1
         rc_k = corr(k_iso, beta)
         u = _spike_u(rs_k, rc_k, a_k, a_r)
@@ -514,11 +594,18 @@ def isotope_dilution(measured: Mapping[str, Any], spike: Spike, sample_mass_g: A
     isos = element_isotopes(element)
     sum_r = sum(np.asarray(comp[f"{i}/{ref}"]) for i in isos)
     sum_rm = sum(np.asarray(comp[f"{i}/{ref}"]) * isotope_mass(i).value for i in isos)
-    mag = magnification(rc_k, rs_k, rt_k)
+    mag = _magnification(rc_k, rs_k, rt_k)
     poor = np.asarray(mag) > POOR_MIX_FACTOR * np.asarray(m_min)
-    return Dilution(element, ref, _out(ref_umol_g * sum_r), _out(ref_umol_g * sum_rm), _out(ref_umol_g),
-                    comp, _out(sum_rm / sum_r), _out(beta), law, _out(u), _out(rc_k), mag, m_min,
-                    bool(poor) if poor.ndim == 0 else poor, it, rule)
+    out = Dilution(element, ref, _out(ref_umol_g * sum_r), _out(ref_umol_g * sum_rm), _out(ref_umol_g),
+                   comp, _out(sum_rm / sum_r), _out(beta), law, _out(u), _out(rc_k), _out(mag), _out(m_min),
+                   bool(poor) if poor.ndim == 0 else poor, it, rule)
+    finite_result("isotope dilution", **{
+        "concentration (µmol/g)": out.conc_umol_g, "concentration (µg/g)": out.conc_ug_g,
+        "reference-isotope amount": out.ref_umol_g, "atomic weight": out.atomic_weight,
+        "bias factor": out.bias_factor, "spike/sample ratio u": out.spike_sample_ratio,
+        "corrected mixture ratio": out.mix_ratio_corrected, "error magnification": out.magnification},
+        **{f"sample ratio {k}": v for k, v in comp.items()})
+    return out
 
 
 def id_concentration(mix_ratio: Any, ratio: str, sample_mass_g: Any, spike_mass_g: Any, spike: Spike, *,
@@ -534,7 +621,7 @@ def id_concentration(mix_ratio: Any, ratio: str, sample_mass_g: Any, spike_mass_
     bias_factor : array_like, default 0
         External mass-bias factor applied to ``mix_ratio``.
     """
-    return isotope_dilution({ratio: mix_ratio}, spike, sample_mass_g, spike_mass_g,
+    return isotope_dilution({as_name("ratio", ratio, "150Nd/144Nd"): mix_ratio}, spike, sample_mass_g, spike_mass_g,
                             bias_factor=bias_factor, law=law).conc_ug_g
 
 
@@ -598,6 +685,8 @@ def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: 
     The ID equation of Smith (2000) solved for the spike: u = (R_mix − R_s)/(a_k,t − R_mix·a_r,t),
     N_spike = u·n_r,standard, c_k = a_k,t·N_spike/W_spike.
     """
+    if not isinstance(spike, Spike):
+        raise InputError("spike", "must be a Spike (see make_spike)")
     k_iso, ref = _split(ratio)
     if k_iso != spike.spike_isotope or _el(ref) != spike.element:
         raise InputError("ratio", f"must be {spike.spike_isotope}/<{spike.element} isotope>, got {ratio!r}")
@@ -605,33 +694,48 @@ def calibrate_spike(mix_ratio: Any, standard_mass_g: Any, standard_conc_umol_g: 
     wstd = _pos_array("standard_mass_g", standard_mass_g)
     wt = _pos_array("spike_mass_g", spike_mass_g)
     cstd = _pos_array("standard_conc_umol_g", standard_conc_umol_g)
-    for nm, v in (("standard_conc_sigma_1s", standard_conc_sigma_1s), ("standard_mass_sigma_1s",
-                  standard_mass_sigma_1s), ("spike_mass_sigma_1s", spike_mass_sigma_1s)):
-        if not (np.isfinite(v) and v >= 0):
+    sig = {nm: as_scalar(nm, v) for nm, v in (("standard_conc_sigma_1s", standard_conc_sigma_1s),
+                                              ("standard_mass_sigma_1s", standard_mass_sigma_1s),
+                                              ("spike_mass_sigma_1s", spike_mass_sigma_1s))}
+    for nm, v in sig.items():
+        if not v >= 0:
             raise InputError(nm, f"must be >= 0, got {v!r}")
+    srm_all = _checked("mix_ratio_sigma_1s", mix_ratio_sigma_1s, "nonnegative")
+    shape = broadcast_shape(mix_ratio=rm, standard_mass_g=wstd, spike_mass_g=wt, standard_conc_umol_g=cstd,
+                            mix_ratio_sigma_1s=srm_all)
+    if len(shape) != 1 or shape[0] == 0:
+        raise InputError("mix_ratio", f"needs one value per calibration mixture (1-D, at least one), got shape {shape}")
     comp = sample_composition(spike.element, ref, natural=natural)
     isos = element_isotopes(spike.element)
-    n_ref_std = cstd * wstd / sum(comp[f"{i}/{ref}"] for i in isos)
     a_k, a_r = spike.abundance(k_iso), spike.abundance(ref)
     rs_k = comp[ratio]
     rt_k = np.inf if a_r == 0 else a_k / a_r
-    if magnification_min(rs_k, rt_k) > SINGULAR_MAGNIFICATION:
+    if not _magnification_min(rs_k, rt_k) <= SINGULAR_MAGNIFICATION:
         raise InputError("spike", "spike and standard ratios too close: reverse ID equation near-singular")
-    u = _spike_u(rs_k, rm, a_k, a_r)
-    vals = np.broadcast_to(a_k * u * n_ref_std / wt, rm.shape).astype(float)
-    mag = np.atleast_1d(magnification(rm, rs_k, rt_k))
-    n = vals.size
-    mean = float(vals.mean())
-    if n >= 2:
-        rnd = float(vals.std(ddof=1) / np.sqrt(n))
-    else:
-        srm = float(np.max(np.asarray(mix_ratio_sigma_1s, dtype=float)))
-        rnd = float(mean * mag[0] * srm / rm[0])
-    rel_sys = np.sqrt((standard_conc_sigma_1s / float(np.mean(cstd))) ** 2
-                      + (standard_mass_sigma_1s / float(np.mean(wstd))) ** 2 / n
-                      + (spike_mass_sigma_1s / float(np.mean(wt))) ** 2 / n)
-    sys_ = float(mean * rel_sys)
-    tot = float(np.hypot(rnd, sys_))
+    rm = np.broadcast_to(rm, shape)
+    with np.errstate(**_QUIET):
+        n_ref_std = cstd * wstd / sum(comp[f"{i}/{ref}"] for i in isos)
+        u = _spike_u(rs_k, rm, a_k, a_r)
+        vals = np.broadcast_to(a_k * u * n_ref_std / wt, shape).astype(float)
+        mag = np.atleast_1d(_magnification(rm, rs_k, rt_k))
+        n = vals.size
+        mean = float(vals.mean())
+        if n >= 2:
+            rnd = float(vals.std(ddof=1) / np.sqrt(n))
+        else:
+            rnd = float(mean * mag[0] * float(np.max(srm_all)) / rm[0])
+        # relative systematic σ: the standard's concentration, and each weighing averaged over n mixtures,
+        # in quadrature (hypot: no square overflows)
+        rel_sys = math.hypot(sig["standard_conc_sigma_1s"] / float(np.mean(cstd)),
+                             sig["standard_mass_sigma_1s"] / float(np.mean(wstd)) / math.sqrt(n),
+                             sig["spike_mass_sigma_1s"] / float(np.mean(wt)) / math.sqrt(n))
+        sys_ = float(mean * rel_sys)
+        tot = float(np.hypot(rnd, sys_))
+    finite_result("spike calibration", **{"concentration": vals, "random σ": rnd, "systematic σ": sys_,
+                                          "error magnification": mag})
+    if not mean > 0:
+        raise UndefinedResultError("spike calibration: the concentration underflows to 0 in double precision; "
+                                   "check the masses and the standard's concentration")
     new = replace(spike, concentration_umol_g=mean, concentration_sigma_1s=tot,
                   calibrated=calibrated or spike.calibrated)
     return SpikeCalibration(mean, tot, rnd, sys_, n, vals.copy(), mag, new)
@@ -668,19 +772,37 @@ def forward_mixture(element: str, reference_isotope: str, sample_conc_umol_g: An
     comp = sample_composition(element, reference_isotope, sample_ratios, natural)
     bcomp = sample_composition(element, reference_isotope, blank_ratios, natural)
     isos = element_isotopes(element)
-    tot_s = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) for i in isos)
-    tot_b = sum(np.asarray(bcomp[f"{i}/{reference_isotope}"]) for i in isos)
-    n_el = np.asarray(sample_conc_umol_g, dtype=float) * np.asarray(sample_mass_g, dtype=float)
-    nb = np.asarray(blank_umol, dtype=float)
-    n_sp = spike.element_umol_g * np.asarray(spike_mass_g, dtype=float)
-    amount = {i: n_el * np.asarray(comp[f"{i}/{reference_isotope}"]) / tot_s
-              + nb * np.asarray(bcomp[f"{i}/{reference_isotope}"]) / tot_b
-              + n_sp * spike.abundance(i) for i in isos}
+    if not isinstance(spike, Spike):
+        raise InputError("spike", "must be a Spike (see make_spike)")
+    conc = _checked("sample_conc_umol_g", sample_conc_umol_g, "nonnegative")
+    ws = _pos_array("sample_mass_g", sample_mass_g)
+    wt = _checked("spike_mass_g", spike_mass_g, "nonnegative")
+    nb = _checked("blank_umol", blank_umol, "nonnegative")
+    beta = _checked("bias_factor", bias_factor, "any")
+    arrays = dict(sample_conc_umol_g=conc, sample_mass_g=ws, spike_mass_g=wt, blank_umol=nb, bias_factor=beta)
+    arrays.update({f"sample_ratios[{k!r}]": v for k, v in comp.items()})
+    arrays.update({f"blank_ratios[{k!r}]": v for k, v in bcomp.items()})
+    broadcast_shape(**arrays)
     m_r = isotope_mass(reference_isotope).value
     out: Dict[str, Any] = {}
-    for i in isos:
-        if i == reference_isotope:
-            continue
-        r = amount[i] / amount[reference_isotope]
-        out[f"{i}/{reference_isotope}"] = _out(bias_apply(r, isotope_mass(i).value, m_r, bias_factor, law))
+    with np.errstate(**_QUIET):
+        tot_s = sum(np.asarray(comp[f"{i}/{reference_isotope}"]) for i in isos)
+        tot_b = sum(np.asarray(bcomp[f"{i}/{reference_isotope}"]) for i in isos)
+        n_el = conc * ws
+        n_sp = spike.element_umol_g * wt
+        amount = {i: n_el * np.asarray(comp[f"{i}/{reference_isotope}"]) / tot_s
+                  + nb * np.asarray(bcomp[f"{i}/{reference_isotope}"]) / tot_b
+                  + n_sp * spike.abundance(i) for i in isos}
+        if not np.all(amount[reference_isotope] > 0):
+            raise UndefinedResultError(f"the mixture holds no {reference_isotope} (sample, blank and spike amounts "
+                                       "are 0 or too small for double precision): its ratios are undefined")
+        for i in isos:
+            if i == reference_isotope:
+                continue
+            r = amount[i] / amount[reference_isotope]
+            finite_result("forward mixture", **{f"ratio {i}/{reference_isotope}": r})
+            if not np.all(r > 0):
+                raise UndefinedResultError(f"the mixture holds no {i}: its ratio to {reference_isotope} is 0, which no "
+                                           "measurement gives; give a sample or spike that contains it")
+            out[f"{i}/{reference_isotope}"] = _out(bias_apply(r, isotope_mass(i).value, m_r, beta, law))
     return out

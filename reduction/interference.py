@@ -37,6 +37,7 @@ from typing import Any, Dict, Mapping, Optional, Tuple, Union
 
 import numpy as np
 
+from ._validate import as_name, as_scalar, broadcast_shape
 from .constants import isotope_mass
 from .errors import InputError, UndefinedResultError
 from .massbias import bias_apply
@@ -74,6 +75,8 @@ def interferent_ratio(interferent: str, monitor: str, natural: Any = None) -> fl
     """
     from .composition import NaturalComposition, natural_composition
 
+    interferent = as_name("interferent", interferent, "144Sm")
+    monitor = as_name("monitor", monitor, "147Sm")
     el = _element(interferent)
     if el != _element(monitor):
         raise InputError("monitor", f"{monitor!r} is not an isotope of the interfering element of {interferent!r}")
@@ -106,10 +109,12 @@ class Stripped:
 def _beam(name: str, x: Any) -> np.ndarray:
     try:
         a = np.asarray(x, dtype=float)  # read only; results are new arrays
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError(name, "could not be read as numbers") from None
     # one pass in the usual case: a finite sum means no inf (NaN = missing cycle is allowed)
-    if not np.isfinite(a.sum()) and np.any(np.isinf(a)):
+    with np.errstate(over="ignore", invalid="ignore"):
+        total = a.sum()
+    if not np.isfinite(total) and np.any(np.isinf(a)):
         raise InputError(name, "contains inf")
     return a
 
@@ -147,24 +152,33 @@ def strip_isobar(total: Any, monitor: Any, interferent: str, monitor_isotope: st
     UndefinedResultError
         If the interference is larger than the total beam in any cycle.
     """
+    interferent = as_name("interferent", interferent, "144Sm")
+    monitor_isotope = as_name("monitor_isotope", monitor_isotope, "147Sm")
     t = _beam("total", total)
     m = _beam("monitor", monitor)
-    if m.size and m.min() < 0:  # NaN (missing cycle) compares False, as in np.any(m < 0)
+    if m.size and np.any(m < 0):  # NaN (missing cycle) compares False
         raise InputError("monitor", "beam intensities must be >= 0")
-    r_true = interferent_ratio(interferent, monitor_isotope) if true_ratio is None else float(true_ratio)
+    r_true = interferent_ratio(interferent, monitor_isotope) if true_ratio is None else as_scalar("true_ratio",
+                                                                                                 true_ratio)
     if not r_true > 0:
         raise InputError("true_ratio", f"must be > 0, got {r_true!r}")
     r_meas = bias_apply(r_true, isotope_mass(interferent).value, isotope_mass(monitor_isotope).value,
                         bias_factor, law)
-    corr = m * r_meas
-    out = t - corr
-    with np.errstate(invalid="ignore"):
+    broadcast_shape(total=t, monitor=m, bias_factor=r_meas)
+    with np.errstate(over="ignore", invalid="ignore"):
+        corr = m * r_meas
+        if np.any(np.isinf(corr)):
+            raise UndefinedResultError(f"monitor: the {interferent} interference (monitor beam × {interferent}/"
+                                       f"{monitor_isotope} = {r_true:g}) overflows double precision; check the "
+                                       "beams and the ratio")
+        out = t - corr
         # one pass when every cycle is fine; a NaN minimum (missing cycle) takes the element test
-        bad = out <= 0 if not (out.size and out.min() > 0) else False
+        bad = (out <= 0) | np.isinf(out) if not (out.size and out.min() > 0 and np.isfinite(out.max())) else False
     if np.any(bad):
         i = int(np.flatnonzero(np.ravel(bad))[0])
         raise UndefinedResultError(
-            f"total: the {interferent} interference ({float(np.ravel(corr)[i]):g}) is not smaller than the "
+            f"total: the {interferent} interference ({float(np.ravel(np.broadcast_to(corr, out.shape))[i]):g}) is "
+            "not smaller than the "
             f"beam ({float(np.ravel(np.broadcast_to(t, out.shape))[i]):g}) at element {i + 1}")
     with np.errstate(invalid="ignore", divide="ignore"):
         rel = corr / t
@@ -232,12 +246,19 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
     BeamStrip
     """
     sysm = get_system(system)
+    if not isinstance(beams, Mapping):
+        raise InputError("beams", f"must be a mapping of isotope to beam values, got {type(beams).__name__}")
     work: Dict[str, np.ndarray] = {k: np.array(_beam(f"beams[{k!r}]", v)) for k, v in beams.items()}
+    broadcast_shape(**{f"beams[{k!r}]": v for k, v in work.items()})
+    for nm, v in (("bias_factors", bias_factors), ("interferent_ratios", interferent_ratios)):
+        if v is not None and not isinstance(v, Mapping):
+            raise InputError(nm, f"must be a mapping (element or ratio name to value), got {type(v).__name__}")
     factors = dict(bias_factors or {})
     for el, v in factors.items():
         if isinstance(v, str):
             raise InputError("bias_factors", f"{el}: must be a number or an array here, got {v!r} "
                              "('analyte' is resolved by reduction.chain.reduce_cycles)")
+        broadcast_shape(**{f"beams[{k!r}]": b for k, b in work.items()}, **{f"bias_factors[{el!r}]": v})
     known = {f"{i}/{m}" for _, i, m in INTERFERENCES[sysm.key]}
     overrides: Dict[str, float] = {}
     for k, v in dict(interferent_ratios or {}).items():
@@ -247,7 +268,7 @@ def strip_beams(beams: Mapping[str, Any], system: Any, *,
                              f"(use one of {sorted(known)})")
         try:
             fv = float(v)
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise InputError("interferent_ratios", f"{k!r}: is not a number: {v!r}") from None
         if not (np.isfinite(fv) and fv > 0):
             raise InputError("interferent_ratios", f"{k!r}: must be a finite number > 0, got {fv!r}")

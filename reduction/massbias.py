@@ -25,7 +25,7 @@ from typing import Any, Optional, Tuple
 
 import numpy as np
 
-from ._validate import as_array, require_positive
+from ._validate import as_array, as_name, broadcast_shape, finite_result, require_positive
 from .constants import isotope_mass, normalising_ratio
 from .errors import InputError, UndefinedResultError
 
@@ -60,10 +60,12 @@ def _checked(name: str, x: Any, sign: str = "positive") -> np.ndarray:
     """
     try:
         a = np.asarray(x, dtype=float)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError(name, "could not be read as numbers") from None
     ok_sign = True if sign == "any" else bool((a > 0).all() if sign == "positive" else (a >= 0).all())
-    if ok_sign and np.isfinite(a.sum()):
+    with np.errstate(over="ignore", invalid="ignore"):   # a sum that overflows takes the named checks
+        total = a.sum()
+    if ok_sign and np.isfinite(total):
         return a
     as_array(name, a, ndim=None)  # raises for NaN / inf, naming the element
     return require_positive(name, a, allow_zero=sign == "nonnegative")
@@ -89,32 +91,43 @@ def ratio_masses(ratio: str) -> Tuple[float, float]:
     ratio : str
         ``"num/den"``, e.g. ``"143Nd/144Nd"``.
     """
-    num, sep, den = str(ratio).partition("/")
+    num, sep, den = as_name("ratio", ratio, "143Nd/144Nd").partition("/")
     if not sep or not num or not den:
         raise InputError("ratio", f"must be written 'num/den' like '143Nd/144Nd', got {ratio!r}")
     return isotope_mass(num.strip()).value, isotope_mass(den.strip()).value
 
 
+#: Floating-point state of the arithmetic here: overflow and the like are not warned about but
+#: caught by the finiteness check of each result (:func:`reduction._validate.finite_result`).
+_QUIET = dict(over="ignore", invalid="ignore", divide="ignore", under="ignore")
+
+
 def _check_masses(mass_num: Any, mass_den: Any) -> Tuple[np.ndarray, np.ndarray]:
     mi = _positive("mass_num", mass_num)
     mj = _positive("mass_den", mass_den)
+    broadcast_shape(mass_num=mi, mass_den=mj)
     if np.any(mi == mj):
         raise InputError("mass_den", "equals mass_num: a ratio of one isotope to itself has no mass bias")
     return mi, mj
 
 
 def _gain(mi: np.ndarray, mj: np.ndarray, factor: np.ndarray, law: str) -> np.ndarray:
-    """Multiplier g with R_true = g · R_measured."""
-    if law == "exponential":
-        return np.exp(factor * np.log(mi / mj))
-    if law == "power":
-        base = 1.0 + factor
-        if np.any(base <= 0):
-            raise UndefinedResultError("factor: power law needs 1 + ε > 0")
-        return base ** (mi - mj)
-    g = 1.0 + factor * (mi - mj)
-    if np.any(g <= 0):
-        raise UndefinedResultError("factor: linear law gives 1 + ε·Δm <= 0 (bias far too large)")
+    """Multiplier g with R_true = g · R_measured (finite and > 0, else UndefinedResultError)."""
+    with np.errstate(**_QUIET):
+        if law == "exponential":
+            g = np.exp(factor * np.log(mi / mj))
+        elif law == "power":
+            base = 1.0 + factor
+            if np.any(base <= 0):
+                raise UndefinedResultError("factor: power law needs 1 + ε > 0")
+            g = base ** (mi - mj)
+        else:
+            g = 1.0 + factor * (mi - mj)
+            if np.any(g <= 0):
+                raise UndefinedResultError("factor: linear law gives 1 + ε·Δm <= 0 (bias far too large)")
+    if not np.all(np.isfinite(g)) or np.any(g == 0):
+        raise UndefinedResultError(f"factor: the {law}-law correction factor overflows or vanishes in double "
+                                   "precision (the bias factor is far too large); check it")
     return g
 
 
@@ -141,13 +154,16 @@ def bias_factor(measured_norm: Any, true_norm: Any, mass_num: Any, mass_den: Any
     rm = _positive("measured_norm", measured_norm)
     rt = _positive("true_norm", true_norm)
     mk, ml = _check_masses(mass_num, mass_den)
-    q = rt / rm
-    if law == "exponential":
-        f = np.log(q) / np.log(mk / ml)
-    elif law == "power":
-        f = q ** (1.0 / (mk - ml)) - 1.0
-    else:
-        f = (q - 1.0) / (mk - ml)
+    broadcast_shape(measured_norm=rm, true_norm=rt, mass_num=mk, mass_den=ml)
+    with np.errstate(**_QUIET):
+        q = rt / rm
+        if law == "exponential":
+            f = np.log(q) / np.log(mk / ml)
+        elif law == "power":
+            f = q ** (1.0 / (mk - ml)) - 1.0
+        else:
+            f = (q - 1.0) / (mk - ml)
+    finite_result("mass-bias factor", **{"bias factor": f, "ratio true/measured": q})
     return _out(f)
 
 
@@ -167,7 +183,12 @@ def bias_correct(measured: Any, mass_num: Any, mass_den: Any, factor: Any, law: 
     law = _law(law)
     r = _positive("measured", measured)
     mi, mj = _check_masses(mass_num, mass_den)
-    return _out(r * _gain(mi, mj, _finite("factor", factor), law))
+    f = _finite("factor", factor)
+    broadcast_shape(measured=r, mass_num=mi, mass_den=mj, factor=f)
+    with np.errstate(**_QUIET):
+        out = r * _gain(mi, mj, f, law)
+    finite_result("mass-bias correction", **{"corrected ratio": out})
+    return _out(out)
 
 
 def bias_apply(true: Any, mass_num: Any, mass_den: Any, factor: Any, law: str = "exponential") -> Any:
@@ -179,7 +200,12 @@ def bias_apply(true: Any, mass_num: Any, mass_den: Any, factor: Any, law: str = 
     law = _law(law)
     r = _positive("true", true)
     mi, mj = _check_masses(mass_num, mass_den)
-    return _out(r / _gain(mi, mj, _finite("factor", factor), law))
+    f = _finite("factor", factor)
+    broadcast_shape(true=r, mass_num=mi, mass_den=mj, factor=f)
+    with np.errstate(**_QUIET):
+        out = r / _gain(mi, mj, f, law)
+    finite_result("mass-bias fractionation", **{"fractionated ratio": out})
+    return _out(out)
 
 
 def _true_norm(norm_ratio: str, true_norm: Optional[float]) -> float:
@@ -196,7 +222,7 @@ def bias_factor_from(measured_norm: Any, norm_ratio: str = "146Nd/144Nd", *, tru
     >>> round(bias_factor_from(0.7219, "146Nd/144Nd"), 12)
     0.0
     """
-    mk, ml = ratio_masses(norm_ratio)
+    mk, ml = ratio_masses(as_name("norm_ratio", norm_ratio, "146Nd/144Nd"))
     return bias_factor(measured_norm, _true_norm(norm_ratio, true_norm), mk, ml, law)
 
 
@@ -229,6 +255,8 @@ def normalise(measured: Any, ratio: str, measured_norm: Any, norm_ratio: str, *,
     >>> round(normalise(0.511500, "143Nd/144Nd", 0.7219, "146Nd/144Nd"), 9)
     0.5115
     """
+    ratio = as_name("ratio", ratio, "143Nd/144Nd")
+    norm_ratio = as_name("norm_ratio", norm_ratio, "146Nd/144Nd")
     if _law(law) != "exponential":
         f = bias_factor_from(measured_norm, norm_ratio, true_norm=true_norm, law=law)
         return correct_named(measured, ratio, f, law)
@@ -240,11 +268,18 @@ def normalise(measured: Any, ratio: str, measured_norm: Any, norm_ratio: str, *,
     r = _positive("measured", measured)
     mk, ml = _check_masses(*ratio_masses(norm_ratio))
     mi, mj = _check_masses(*ratio_masses(ratio))
+    broadcast_shape(measured=r, measured_norm=rm, true_norm=rt)
     c = float(np.log(mi / mj) / np.log(mk / ml))
-    g = np.divide(rt, rm)
-    if g.ndim == 0:
-        return _out(r * np.exp(np.log(g) * c))
-    np.log(g, out=g)
-    np.multiply(g, c, out=g)
-    np.exp(g, out=g)
-    return _out(np.multiply(r, g, out=g) if g.shape == np.broadcast(r, g).shape else r * g)
+    with np.errstate(**_QUIET):
+        g = np.divide(rt, rm)
+        if g.ndim == 0:
+            out = r * np.exp(np.log(g) * c)
+        else:
+            np.log(g, out=g)
+            np.multiply(g, c, out=g)
+            np.exp(g, out=g)
+            out = np.multiply(r, g, out=g) if g.shape == np.broadcast(r, g).shape else r * g
+    if not (np.all(np.isfinite(out)) and np.all(out > 0)):
+        raise UndefinedResultError(f"normalise: the {ratio} corrected with {norm_ratio} overflows or vanishes in "
+                                   "double precision (measured and true normalising ratios far apart); check them")
+    return _out(out)

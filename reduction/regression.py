@@ -23,10 +23,20 @@ from typing import Any, List, Optional, Tuple
 import numpy as np
 from scipy import optimize, special
 
-from ._validate import as_array, as_scalar, require_correlation, require_positive, require_same_length
+from ._validate import (
+    as_array,
+    as_count,
+    as_scalar,
+    finite_result,
+    require_correlation,
+    require_positive,
+    require_same_length,
+)
 from .errors import ConvergenceError, InputError, UndefinedResultError
 
 __all__ = [
+    "ELLIPSE_MAX_POINTS",
+    "MAX_ITER_LIMIT",
     "WEAK_TEST_MAX_DOF",
     "mswd_notes",
     "mswd_position",
@@ -49,6 +59,12 @@ _CHUNK_VALUES = 65536   # values per array in one batch chunk (512 kB: fastest i
 _BLAS_MAX = 4096  # below this length a single fit uses np.dot for its sums
 _ATOL = 1e-300  # absolute floor of the convergence test, only matters for a slope of exactly 0
 _FLOOR_RTOL = 1e-12  # a repeated update within this of its input ends the iteration (rounding floor)
+#: Upper bound of ``max_iter`` (York fits converge in tens of steps; the bound keeps a typo from
+#: running for hours).
+MAX_ITER_LIMIT = 100_000
+#: Upper bound of :func:`ellipse_points`' ``n_points`` (a chart outline needs tens; 1e9 points took
+#: 102 s and 24 GB).
+ELLIPSE_MAX_POINTS = 10_000
 
 
 # --------------------------------------------------------------------------------------------
@@ -172,7 +188,7 @@ def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = Fals
     Parameters
     ----------
     dof : int
-        Degrees of freedom, ≥ 1.
+        Degrees of freedom, a whole number from 1 to 1e15.
     level : float
         One-sided level in (0, 1) of each end (0.95: 5 % and 95 % quantiles).
     approximate : bool
@@ -187,12 +203,10 @@ def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = Fals
     >>> round(wendt_carl_limits(8)[1], 3)
     1.938
     """
-    if isinstance(dof, bool) or int(dof) != dof or dof < 1:
-        raise InputError("dof", f"must be a whole number >= 1, got {dof!r}")
+    f = as_count("dof", dof, 1, 10 ** 15)
     level = as_scalar("level", level)
     if not 0 < level < 1:
         raise InputError("level", f"must lie strictly between 0 and 1, got {level!r}")
-    f = int(dof)
     if approximate:
         half = 2.0 * math.sqrt(2.0 / f)
         return max(0.0, 1.0 - half), 1.0 + half
@@ -214,7 +228,8 @@ _FP_PROBLEM = ("the values or their errors are too large or too small for double
 def _x_spread(sxx: Any, xm: Any, n: int) -> Any:
     """False where Σ(x − x̄)² is zero up to rounding: x values equal to within a few ulps of their
     mean (e.g. 0.1, 0.1, 0.1, whose deviations from the computed mean are ~1e-17, not 0)."""
-    return sxx > n * (16.0 * _EPS * xm) ** 2
+    tol = 16.0 * _EPS * xm
+    return sxx > n * tol * tol     # a product, not **: a Python float ** overflows into an exception
 
 
 def _fp_guard() -> Any:
@@ -497,6 +512,20 @@ def _york_solve(x: np.ndarray, sx: np.ndarray, y: np.ndarray, sy: np.ndarray, r:
     return b, a, np.sqrt(var_b), np.sqrt(var_a), cov_ab, s, iterations, xbar, ybar
 
 
+def _fast_points(x: Any, sx: Any, y: Any, sy: Any, rho: Any) -> Optional[Tuple[np.ndarray, ...]]:
+    """The five arrays from one stacked copy if they pass every check at once, else None."""
+    if rho is None:
+        stacked = np.array([x, sx, y, sy], dtype=float)
+        if stacked.ndim == 2 and np.isfinite(stacked.sum()) and stacked[1::2].min() > 0:
+            return stacked[0], stacked[1], stacked[2], stacked[3], np.zeros(stacked.shape[1])
+        return None
+    stacked = np.array([x, sx, y, sy, np.broadcast_to(rho, np.shape(x))], dtype=float)
+    if (stacked.ndim == 2 and np.isfinite(stacked.sum()) and stacked[1:4:2].min() > 0
+            and -1.0 < stacked[4].min() and stacked[4].max() < 1.0):
+        return stacked[0], stacked[1], stacked[2], stacked[3], stacked[4]
+    return None
+
+
 def _check_points(x: Any, sx: Any, y: Any, sy: Any, rho: Any, ndim: int = 1,
                   names: Tuple[str, str, str, str, str] = ("x", "sx", "y", "sy", "rho")) -> Tuple[np.ndarray, ...]:
     """Validate the five point arrays (copies; the caller's arrays are never modified)."""
@@ -504,24 +533,29 @@ def _check_points(x: Any, sx: Any, y: Any, sy: Any, rho: Any, ndim: int = 1,
         # fast path: one stacked copy, checked at once; on any doubt the named checks below run
         # (a finite sum means every value is finite; sx and sy are rows 1 and 3, checked by one min)
         try:
-            if rho is None:
-                stacked = np.array([x, sx, y, sy], dtype=float)
-                ok = stacked.ndim == 2 and np.isfinite(stacked.sum()) and stacked[1::2].min() > 0
-                if ok:
-                    return stacked[0], stacked[1], stacked[2], stacked[3], np.zeros(stacked.shape[1])
-            else:
-                stacked = np.array([x, sx, y, sy, np.broadcast_to(rho, np.shape(x))], dtype=float)
-                ok = (stacked.ndim == 2 and np.isfinite(stacked.sum()) and stacked[1:4:2].min() > 0
-                      and -1.0 < stacked[4].min() and stacked[4].max() < 1.0)
-                if ok:
-                    return stacked[0], stacked[1], stacked[2], stacked[3], stacked[4]
-        except (TypeError, ValueError):
+            with np.errstate(over="ignore", invalid="ignore"):   # a sum that overflows takes the named checks
+                fast = _fast_points(x, sx, y, sy, rho)
+            if fast is not None:
+                return fast
+        except (TypeError, ValueError, OverflowError):
             pass
     xa = as_array(names[0], x, ndim=ndim)
     sxa = as_array(names[1], sx, ndim=ndim)
     ya = as_array(names[2], y, ndim=ndim)
     sya = as_array(names[3], sy, ndim=ndim)
-    ra = np.zeros_like(xa) if rho is None else as_array(names[4], np.broadcast_to(rho, np.shape(xa)), ndim=ndim)
+    if rho is None:
+        ra = np.zeros_like(xa)
+    else:
+        # one ρ for every point, or one per point: the length is checked before anything is broadcast
+        ra = as_array(names[4], rho, ndim=None)
+        if ra.ndim == 0 or ndim == 2:
+            try:
+                ra = np.broadcast_to(ra, xa.shape).copy()
+            except ValueError:
+                raise InputError(names[4], f"has shape {ra.shape} but {names[0]} has shape {xa.shape}: give one "
+                                           "correlation, or one per point") from None
+        elif ra.ndim != 1:
+            raise InputError(names[4], f"must be one number or 1-dimensional, got shape {ra.shape}")
     if ndim == 1:
         require_same_length(**{names[0]: xa, names[1]: sxa, names[2]: ya, names[3]: sya, names[4]: ra})
     else:
@@ -573,7 +607,7 @@ def _make_fit(n: int, dof: int, b: float, a: float, sb: float, sa: float, cab: f
     scale = 1.0
     if scale_by_mswd and mswd is not None and mswd > 1.0:
         scale = math.sqrt(mswd)
-    rab = cab / (sb * sa) if sb > 0 and sa > 0 else 0.0
+    rab = (cab / sb) / sa if sb > 0 and sa > 0 else 0.0     # divided twice: sb·sa may underflow
     # every field given, in declaration order: filled directly, skipping the frozen dataclass's
     # per-field object.__setattr__ (the instance is the same: fields, equality, repr, replace)
     fit = object.__new__(IsochronFit)
@@ -604,9 +638,9 @@ def york_fit(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int
     rho : array_like or float, optional
         Correlation of the x and y errors of each point, in (−1, 1); default 0.
     max_iter : int
-        Iteration limit of the slope equation.
+        Iteration limit of the slope equation, 1 to :data:`MAX_ITER_LIMIT` (100 000).
     rtol : float
-        Relative convergence tolerance of the slope.
+        Relative convergence tolerance of the slope (> 0).
 
     Returns
     -------
@@ -650,10 +684,7 @@ def _york_checked(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarr
     n = xa.size
     if n < 2:
         raise InputError("x", f"a line needs at least 2 points, got {n}")
-    if not (isinstance(max_iter, int) and max_iter >= 1):
-        raise InputError("max_iter", f"must be a whole number >= 1, got {max_iter!r}")
-    if not (rtol > 0):
-        raise InputError("rtol", f"must be > 0, got {float(rtol)!r}")
+    max_iter, rtol = _iteration_options(max_iter, rtol)
     n_report = n if n_report is None else n_report
     if n == 2:
         try:
@@ -665,7 +696,8 @@ def _york_checked(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarr
             raise UndefinedResultError(f"two-point line: {_FP_PROBLEM}") from None
         if not (sb > 0 and sa > 0 and math.isfinite(sb) and math.isfinite(sa)):
             raise UndefinedResultError(f"two-point line: {_FP_PROBLEM}")
-        return _make_fit(n_report, 0, b, a, sb, sa, cab, None, treatment, xbar, a + b * xbar, 0, anchor=anchor)
+        return _finite_fit(_make_fit(n_report, 0, b, a, sb, sa, cab, None, treatment, xbar, a + b * xbar, 0,
+                                     anchor=anchor))
     solve = _york_single if n < _BLAS_MAX else _york_solve
     try:
         with _fp_guard():
@@ -674,8 +706,27 @@ def _york_checked(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.ndarr
         raise UndefinedResultError(f"York fit: {_FP_PROBLEM}") from None
     if not all(math.isfinite(float(v)) for v in (b, a, sb, sa, cab, s)):
         raise UndefinedResultError(f"York fit: {_FP_PROBLEM}")
-    return _make_fit(n_report, n - 2, float(b), float(a), float(sb), float(sa), float(cab), float(s), treatment,
-                     float(xbar), float(ybar), int(it), scale_by_mswd=scale_by_mswd, anchor=anchor)
+    return _finite_fit(_make_fit(n_report, n - 2, float(b), float(a), float(sb), float(sa), float(cab), float(s),
+                                 treatment, float(xbar), float(ybar), int(it), scale_by_mswd=scale_by_mswd,
+                                 anchor=anchor))
+
+
+def _finite_fit(fit: IsochronFit) -> IsochronFit:
+    """The fit, if every number in it is finite (the expanded errors t·√MSWD·σ can overflow)."""
+    vals = {k: v for k, v in fit.__dict__.items() if isinstance(v, float)}
+    if fit.mswd_limits_95 is not None:
+        vals["MSWD range"] = fit.mswd_limits_95
+    finite_result(f"York fit ({fit.treatment})", **vals)
+    return fit
+
+
+def _iteration_options(max_iter: Any, rtol: Any) -> Tuple[int, float]:
+    """Check ``max_iter`` (1 to :data:`MAX_ITER_LIMIT`) and ``rtol`` (> 0)."""
+    it = as_count("max_iter", max_iter, 1, MAX_ITER_LIMIT, "York fits converge in tens of iterations")
+    tol = as_scalar("rtol", rtol)
+    if not tol > 0:
+        raise InputError("rtol", f"must be > 0, got {tol!r}")
+    return it, tol
 
 
 def york_fit_batch(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_iter: int = 500,
@@ -701,6 +752,7 @@ def york_fit_batch(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, max_ite
     ----------
     York et al. 2004, Am. J. Phys. 72, 367–375.
     """
+    max_iter, rtol = _iteration_options(max_iter, rtol)
     xa, sxa, ya, sya, ra = _check_points(x, sx, y, sy, rho, ndim=2)
     if xa.shape[1] < 3:
         raise InputError("x", f"each dataset needs at least 3 points, got {xa.shape[1]}")
@@ -866,7 +918,7 @@ def fit_isochron(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, treatment
                                        f"not {treatment!r}")
         try:
             a0, s0 = anchor
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise InputError("anchor", f"must be (initial_value, initial_sigma_1s), got {anchor!r}") from None
         a0 = as_scalar("anchor value", a0)
         s0 = as_scalar("anchor sigma", s0)
@@ -887,59 +939,121 @@ def fit_isochron(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, *, treatment
         return york
     if n < 3:
         raise InputError("treatment", f"{treatment!r} needs at least 3 points, got {n}")
-    if treatment == "equal-weights":
-        b, a, sb, sa, cab = _equal_weights(xa, ya)
-        extra = {}
-    else:
-        b, a, sb, sa, cab, s, ss = _excess_variance(xa, sxa, ya, sya, ra, york)
-        extra = {"excess_sigma_y_1s": s, "excess_sigma_y_sigma_1s": ss}
+    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+        if treatment == "equal-weights":
+            b, a, sb, sa, cab = _equal_weights(xa, ya)
+            extra = {}
+        else:
+            b, a, sb, sa, cab, s, ss = _excess_variance(xa, sxa, ya, sya, ra, york)
+            extra = {"excess_sigma_y_1s": s, "excess_sigma_y_sigma_1s": ss}
+    finite_result(f"isochron fit ({treatment})", slope=b, intercept=a, **{
+        "slope error": sb, "intercept error": sa, "slope-intercept covariance": cab})
+    if not (sb > 0 and sa > 0):
+        raise UndefinedResultError(f"isochron fit ({treatment}): the points lie exactly on the line, so the "
+                                   "scatter-based errors are 0 (use treatment 'analytical')")
     t95 = york.t95
     fields = dict(york.__dict__)
     fields.update(slope=float(b), intercept=float(a), slope_sigma_1s=float(sb), intercept_sigma_1s=float(sa),
-                  cov_slope_intercept=float(cab), rho_slope_intercept=float(max(-1.0, min(1.0, cab / (sb * sa)))),
+                  cov_slope_intercept=float(cab), rho_slope_intercept=float(max(-1.0, min(1.0, (cab / sb) / sa))),
                   slope_sigma_95_expanded=t95 * sb if t95 else None,
                   intercept_sigma_95_expanded=t95 * sa if t95 else None, sigma_scale=1.0, **extra)
-    return IsochronFit(**fields)
+    return _finite_fit(IsochronFit(**fields))
 
 
 # --------------------------------------------------------------------------------------------
 # weighted mean
 # --------------------------------------------------------------------------------------------
-def _ml_excess_1d(v: np.ndarray, var: np.ndarray) -> Tuple[float, float, Optional[float]]:
-    """ML mean and added variance τ² of values with variances ``var`` (random-effects model)."""
+#: Floor of a scaled variance in :func:`_ml_excess_1d` (keeps 1/var finite; far below any τ² it resolves).
+_VAR_FLOOR = 1e-280
+
+
+def _wmean_core(v: np.ndarray, s: np.ndarray) -> Tuple[float, float, float]:
+    """Weighted mean, its σ and χ² = Σ ((v − mean)/σ)², computed without squaring σ itself.
+
+    The weights are taken relative to the smallest σ, ``w_i = (σ_min/σ_i)²`` in (0, 1], so a σ of
+    1e-200 or 1e200 neither underflows nor overflows: mean = Σ w v / Σ w (a convex combination,
+    never beyond the values), σ_mean = σ_min/√Σw, the same numbers as 1/√Σ(1/σ²) in exact arithmetic.
+    """
+    with np.errstate(under="ignore", over="ignore", invalid="ignore"):
+        s0 = float(s.min())
+        q = s0 / s
+        w = q * q
+        sw = float(w.sum())
+        mean = float((w / sw) @ v)
+        z = (v - mean) / s
+        chi = float(z @ z)
+    return mean, s0 / math.sqrt(sw), chi
+
+
+def _ml_excess_1d(v: np.ndarray, s: np.ndarray, m0: float) -> Tuple[float, float, Optional[float]]:
+    """ML mean and added scatter τ of values with 1σ ``s`` (random-effects model); m0 = analytical mean.
+
+    Works in scaled units ``u = (v − m0)/S``, ``σ' = σ/S`` with ``S = max|v − m0|``. With the mean
+    profiled out, −2 ln L(τ²) = Σ (u − m)²/(σ'² + τ²) + Σ ln(1 + τ²/σ'²) + const, and its derivative
+    Σ (σ'² + τ² − r²)/(σ'² + τ²)² is positive once τ² ≥ max r², so the maximum lies in
+    0 ≤ τ² ≤ (max u − min u)² ≤ 4: a bounded search (Brent, scipy ``minimize_scalar``). A σ' too
+    large for its square (σ ≫ the spread) has weight 0; one too small is floored at
+    :data:`_VAR_FLOOR`, which moves the likelihood only where τ' < 1e-140.
+    """
+    with np.errstate(under="ignore", over="ignore", invalid="ignore", divide="ignore"):
+        big = float(np.max(np.abs(v - m0)))
+        if not math.isfinite(big):
+            raise UndefinedResultError("weighted mean: the values spread over more than double precision holds "
+                                       "(~1e308): check the values and their units")
+        if big == 0.0:
+            return m0, 0.0, None
+        u = (v - m0) / big
+        var = np.maximum((s / big) ** 2, _VAR_FLOOR)
+    if not math.isfinite(float(var.min())):
+        return m0, 0.0, None    # every σ exceeds the spread by more than 1e154: no scatter to find
+
+    def state(t2: float) -> Tuple[float, np.ndarray, float]:
+        d = var + t2
+        dmin = float(d.min())
+        with np.errstate(under="ignore"):
+            w = dmin / d                # relative weights in [0, 1]; an infinite σ' weighs 0
+        m = float(w @ u) / float(w.sum())
+        return m, w, dmin
 
     def nll(t2: float) -> float:
-        w = 1.0 / (var + t2)
-        m = float(w @ v / w.sum())
-        return float(np.sum(w * (v - m) ** 2) + np.sum(np.log(var + t2)))
+        m, w, dmin = state(t2)
+        r = u - m
+        with np.errstate(under="ignore"):
+            return float((w @ (r * r)) / dmin + np.sum(np.log1p(t2 / var)))
 
-    spread = float(np.var(v)) + float(var.max())
-    r = optimize.minimize_scalar(nll, bounds=(0.0, 10.0 * spread), method="bounded",
-                                 options={"xatol": 1e-14 * spread})
+    r = optimize.minimize_scalar(nll, bounds=(0.0, 4.0), method="bounded", options={"xatol": 1e-14})
     t2 = float(r.x)
-    if nll(0.0) <= r.fun:
-        t2 = 0.0
-    w = 1.0 / (var + t2)
-    mean = float(w @ v / w.sum())
+    if not (math.isfinite(t2) and math.isfinite(float(r.fun))):
+        raise ConvergenceError("weighted mean: the search for the external scatter did not converge")
+    if nll(0.0) <= r.fun or t2 <= 0.0:
+        return m0, 0.0, None
+    m, w, dmin = state(t2)
     tau = math.sqrt(t2)
-    sig_tau: Optional[float] = None
-    if tau > 0:
-        # Fisher information of τ² in the random-effects model: ½ Σ w²  -> σ(τ) = σ(τ²)/(2τ)
-        var_t2 = 2.0 / float(np.sum(w * w))
-        sig_tau = math.sqrt(var_t2) / (2.0 * tau)
-    return mean, tau, sig_tau
+    # Fisher information of τ² in the random-effects model: ½ Σ 1/(σ² + τ²)²  ->  σ(τ) = σ(τ²)/(2τ)
+    sig_t2 = math.sqrt(2.0) * dmin / math.sqrt(float(w @ w))
+    return m0 + big * m, big * tau, big * sig_t2 / (2.0 * tau)
 
 
-def _flag_outliers(v: np.ndarray, var: np.ndarray, k: float) -> Tuple[bool, ...]:
-    """Iterative leave-one-out outlier flags (see :func:`weighted_mean`)."""
+def _flag_outliers(v: np.ndarray, s: np.ndarray, k: float) -> Tuple[bool, ...]:
+    """Iterative leave-one-out outlier flags (see :func:`weighted_mean`); ``s`` = total 1σ per value.
+
+    Weights relative to the smallest σ of the unflagged values (as in :func:`_wmean_core`).
+    """
     flagged = np.zeros(v.size, dtype=bool)
     while (~flagged).sum() >= 3:
-        w = np.where(flagged, 0.0, 1.0 / var)
-        sw = w.sum()
-        swv = float(w @ v)
-        others_w = sw - w
-        others_mean = (swv - w * v) / others_w
-        z = np.abs(v - others_mean) / np.sqrt(var + 1.0 / others_w)
+        with np.errstate(under="ignore", over="ignore", invalid="ignore", divide="ignore"):
+            s0 = float(s[~flagged].min())
+            w = np.where(flagged, 0.0, (s0 / s) ** 2)
+            sw = float(w.sum())
+            c = float((w / sw) @ v)
+            dv = v - c
+            others_w = sw - w
+            others_dev = (float(w @ dv) - w * dv) / others_w
+            z = np.abs(dv - others_dev) / np.hypot(s, s0 / np.sqrt(others_w))
+            z = np.where(others_w > 0, z, 0.0)
+        if not np.all(np.isfinite(z)):
+            raise UndefinedResultError("weighted mean: the outlier test overflows double precision (values far "
+                                       "apart compared with their σ); check the values and their units")
         z[flagged] = -1.0
         i = int(np.argmax(z))
         if z[i] <= k:
@@ -970,10 +1084,22 @@ def weighted_mean(values: Any, sigma_1s: Any, *, external_scatter: bool = False,
     -------
     WeightedMean
 
+    Raises
+    ------
+    InputError
+        Values or σ not finite, σ <= 0, lengths differ, bad ``outlier_k``.
+    UndefinedResultError
+        A result double precision cannot hold (e.g. values 1e300 apart with σ = 1e-300: the MSWD
+        would be ~1e1200); never a NaN or inf.
+
     Notes
     -----
     mean = Σ v/σ² / Σ 1/σ², σ_mean = (Σ 1/σ²)^−½, MSWD = Σ (v − mean)²/σ² / (n − 1),
-    p = P(χ²_{n−1} > (n − 1)·MSWD) (standard; e.g. Wendt & Carl 1991).
+    p = P(χ²_{n−1} > (n − 1)·MSWD) (standard; e.g. Wendt & Carl 1991). The sums are formed with
+    weights relative to the smallest σ, (σ_min/σ)², so σ anywhere in double precision's range
+    (1e-300 next to 1) gives the mean, its σ and the MSWD without underflow or overflow (a σ of
+    1e-200 among σ of 1 gives mean = that value, σ_mean = 1e-200). The external scatter is found in
+    units scaled by the values' spread (see ``_ml_excess_1d``).
 
     Examples
     --------
@@ -986,31 +1112,38 @@ def weighted_mean(values: Any, sigma_1s: Any, *, external_scatter: bool = False,
     require_same_length(values=v, sigma_1s=s)
     require_positive("sigma_1s", s)
     n = v.size
-    var = s * s
-    w = 1.0 / var
-    mean = float(w @ v / w.sum())
-    chi = float(np.sum(w * (v - mean) ** 2))
-    mswd = chi / (n - 1) if n > 1 else None
-    p = _chi2_sf(chi, n - 1) if n > 1 else None
-    tau, sig_tau = 0.0, None
-    sigma_mean = 1.0 / math.sqrt(float(w.sum()))
-    if external_scatter:
-        if n < 2:
-            raise InputError("external_scatter", "needs at least 2 values")
-        mean, tau, sig_tau = _ml_excess_1d(v, var)
-        sigma_mean = 1.0 / math.sqrt(float(np.sum(1.0 / (var + tau * tau))))
-    if outlier_k is None:
-        flags = tuple(False for _ in range(n))
-        rule = "no outlier test"
-    else:
+    k: Optional[float] = None
+    if outlier_k is not None:
         k = as_scalar("outlier_k", outlier_k)
         if k <= 0:
             raise InputError("outlier_k", f"must be > 0, got {k!r}")
-        flags = _flag_outliers(v, var + tau * tau, k)
+    if external_scatter and n < 2:
+        raise InputError("external_scatter", "needs at least 2 values")
+    mean, sigma_mean, chi = _wmean_core(v, s)
+    if not math.isfinite(chi):
+        raise UndefinedResultError("weighted mean: the values differ by more than 1e154 times their σ, so the "
+                                   "MSWD is beyond double precision; check the values, σ and their units")
+    finite_result("weighted mean", mean=mean, **{"σ of the mean": sigma_mean})
+    mswd = chi / (n - 1) if n > 1 else None
+    p = _chi2_sf(chi, n - 1) if n > 1 else None
+    tau, sig_tau = 0.0, None
+    s_tot = s
+    if external_scatter:
+        mean, tau, sig_tau = _ml_excess_1d(v, s, mean)
+        if tau > 0:
+            s_tot = np.hypot(s, tau)
+            _m, sigma_mean, _c = _wmean_core(v, s_tot)
+    if k is None:
+        flags = tuple(False for _ in range(n))
+        rule = "no outlier test"
+    else:
+        flags = _flag_outliers(v, s_tot, k)
         rule = (f"iterative leave-one-out test at k = {k:g}: the value farthest from the weighted mean of the "
                 f"other unflagged values is flagged if |value - mean_others| > {k:g} * sqrt(sigma^2 + "
                 "external^2 + sigma_mean_others^2), and the test repeats on the rest; flagged values are "
                 "kept in the mean")
+    finite_result("weighted mean", mean=mean, **{"σ of the mean": sigma_mean, "external scatter": tau,
+                                                 "σ of the external scatter": sig_tau})
     return WeightedMean(n=n, mean=mean, mean_sigma_1s=sigma_mean, mswd=mswd, p_value=p, external_sigma_1s=tau,
                         outliers=flags, rule=rule, external_sigma_sigma_1s=sig_tau, dof=n - 1)
 
@@ -1023,7 +1156,26 @@ def ellipse_points(x: float, sx: float, y: float, sy: float, rho: float = 0.0, *
     """Outline of a point's error ellipse as a closed polygon (``n_points + 1`` vertices).
 
     The ellipse is the ``confidence`` region of a bivariate normal with the point's covariance
-    matrix, i.e. the Mahalanobis radius is ``sqrt(chi2.ppf(confidence, 2))`` (2.448 for 95 %).
+    matrix, i.e. the Mahalanobis radius is ``sqrt(chi2.ppf(confidence, 2))`` (2.448 for 95 %;
+    the χ² quantile with 2 degrees of freedom, standard bivariate-normal theory), drawn as the
+    image of a circle under the Cholesky factor of the covariance.
+
+    Parameters
+    ----------
+    x, sx, y, sy : float
+        The point and its 1σ absolute errors (> 0).
+    rho : float
+        Error correlation, in (−1, 1).
+    n_points : int
+        Number of segments, a whole number from 3 to :data:`ELLIPSE_MAX_POINTS` (10 000); the bound
+        is refused at once with an InputError, before any work.
+    confidence : float
+        Coverage of the region, in (0, 1).
+
+    Returns
+    -------
+    xs, ys : ndarray, shape (n_points + 1,)
+        The outline, closed (last vertex = first).
     """
     x = as_scalar("x", x)
     y = as_scalar("y", y)
@@ -1033,19 +1185,20 @@ def ellipse_points(x: float, sx: float, y: float, sy: float, rho: float = 0.0, *
     require_positive("sx", np.asarray(sx))
     require_positive("sy", np.asarray(sy))
     require_correlation("rho", np.asarray(rho))
-    if isinstance(n_points, bool) or int(n_points) != n_points or n_points < 3:
-        raise InputError("n_points", f"must be a whole number >= 3, got {n_points!r}")
+    n_points = as_count("n_points", n_points, 3, ELLIPSE_MAX_POINTS,
+                        "a chart outline needs tens of points; more only costs time and memory")
     confidence = as_scalar("confidence", confidence)
     if not 0 < confidence < 1:
         raise InputError("confidence", f"must lie strictly between 0 and 1, got {confidence!r}")
     k = math.sqrt(float(special.chdtri(2, 1.0 - confidence)))
-    cov = np.array([[sx * sx, rho * sx * sy], [rho * sx * sy, sy * sy]])
-    chol = np.linalg.cholesky(cov)
-    theta = np.linspace(0.0, 2.0 * math.pi, int(n_points) + 1)
-    circle = np.vstack([np.cos(theta), np.sin(theta)]) * k
-    pts = chol @ circle
-    xs = x + pts[0]
-    ys = y + pts[1]
+    theta = np.linspace(0.0, 2.0 * math.pi, n_points + 1)
+    c, sn = np.cos(theta) * k, np.sin(theta) * k
+    # the Cholesky factor of [[sx², ρ sx sy], [ρ sx sy, sy²]] written out, [[sx, 0], [ρ sy, sy √(1 − ρ²)]]:
+    # no square of σ is formed, so σ anywhere in double precision's range is drawn
+    with np.errstate(over="ignore", invalid="ignore"):
+        xs = x + sx * c
+        ys = y + sy * (rho * c + math.sqrt(1.0 - rho * rho) * sn)
+    finite_result("error ellipse", outline=np.concatenate([xs, ys]))
     xs[-1], ys[-1] = xs[0], ys[0]
     return xs, ys
 

@@ -11,13 +11,15 @@ random σ by :func:`apply_standard`.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any, Optional, Tuple
 
 import numpy as np
 
+from ._validate import as_scalar, broadcast_shape, finite_result
 from .constants import reference_material
-from .errors import InputError
+from .errors import InputError, UndefinedResultError
 
 __all__ = ["StandardFactor", "apply_standard", "standard_factor"]
 
@@ -83,7 +85,7 @@ def standard_factor(measured: Any, accepted: Optional[float] = None, *, material
     """
     try:
         x = np.array(measured, dtype=float).ravel()
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError("measured", "could not be read as numbers") from None
     if x.size == 0:
         raise InputError("measured", "needs at least one standard run")
@@ -95,21 +97,40 @@ def standard_factor(measured: Any, accepted: Optional[float] = None, *, material
         rv = reference_material(material, ratio)
         acc, acc_s, src = rv.value, rv.sigma_1s, rv.source
         if accepted_sigma_1s is not None:
-            acc_s = float(accepted_sigma_1s)
+            acc_s = as_scalar("accepted_sigma_1s", accepted_sigma_1s)
     else:
-        acc = float(accepted)
-        acc_s = 0.0 if accepted_sigma_1s is None else float(accepted_sigma_1s)
+        acc = as_scalar("accepted", accepted)
+        acc_s = 0.0 if accepted_sigma_1s is None else as_scalar("accepted_sigma_1s", accepted_sigma_1s)
         src = "given by the caller"
-    if not (np.isfinite(acc) and acc > 0):
+    if not acc > 0:
         raise InputError("accepted", f"must be > 0, got {acc!r}")
-    if not (np.isfinite(acc_s) and acc_s >= 0):
+    if not acc_s >= 0:
         raise InputError("accepted_sigma_1s", f"must be >= 0, got {acc_s!r}")
     n = int(x.size)
-    mean = float(x.mean())
-    sd = float(x.std(ddof=1)) if n > 1 else 0.0
-    sem = float(sd / np.sqrt(n))
-    f = acc / mean
-    return StandardFactor(f, f * sem / mean, f * acc_s / acc, n, mean, sd, sem, sd / mean, acc, acc_s, src)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore", under="ignore"):
+        # mean and SD of the runs scaled by a power of two near the largest (exact, so the same numbers as
+        # unscaled, but no sum or square can overflow)
+        top = float(np.ldexp(1.0, int(np.frexp(x.max())[1]) - 1))
+        xs = x / top
+        mean = float(xs.mean()) * top
+        sd = float(xs.std(ddof=1)) * top if n > 1 else 0.0
+        sem = float(sd / np.sqrt(n))
+        f = acc / mean
+        out = StandardFactor(f, f * (sem / mean), f * (acc_s / acc), n, mean, sd, sem, sd / mean, acc, acc_s, src)
+    finite_result("standard factor", factor=f, **{"σ of the factor (random)": out.factor_sigma_1s_random,
+                                                  "σ of the factor (systematic)": out.factor_sigma_1s_systematic})
+    if not f > 0:
+        raise UndefinedResultError("standard factor: accepted / mean underflows to 0 in double precision; check "
+                                   "the accepted value and the runs (units?)")
+    return out
+
+
+def _numbers(x: Any) -> bool:
+    try:
+        np.asarray(x, dtype=float)
+    except (TypeError, ValueError, OverflowError):
+        return False
+    return True
 
 
 def apply_standard(values: Any, sigma_1s: Any, std: StandardFactor, *,
@@ -128,18 +149,30 @@ def apply_standard(values: Any, sigma_1s: Any, std: StandardFactor, *,
     """
     if not isinstance(std, StandardFactor):
         raise InputError("std", "must be a StandardFactor (see standard_factor)")
-    v = np.asarray(values, dtype=float)
-    s = np.asarray(sigma_1s, dtype=float)
+    try:
+        v = np.asarray(values, dtype=float)
+        s = np.asarray(sigma_1s, dtype=float)
+    except (TypeError, ValueError, OverflowError):
+        raise InputError("values" if not _numbers(values) else "sigma_1s", "could not be read as numbers") from None
     if not np.all(np.isfinite(v)) or np.any(v <= 0):
         raise InputError("values", "must be finite numbers > 0")
     if not np.all(np.isfinite(s)) or np.any(s < 0):
         raise InputError("sigma_1s", "must be finite numbers >= 0")
-    out = v * std.factor
-    rel2 = (s / v) ** 2 + (std.factor_sigma_1s_random / std.factor) ** 2
-    if add_reproducibility:
-        rel2 = rel2 + std.reproducibility_rel_1s ** 2
-    rnd = out * np.sqrt(rel2)
-    sys_ = out * std.factor_sigma_1s_systematic / std.factor
+    broadcast_shape(values=v, sigma_1s=s)
+    f = std.factor
+    parts = (std.factor_sigma_1s_random, std.factor_sigma_1s_systematic, std.reproducibility_rel_1s)
+    if not (math.isfinite(f) and f > 0 and all(math.isfinite(p) and p >= 0 for p in parts)):
+        raise InputError("std", "its factor must be a finite number > 0 and its σ finite numbers >= 0")
+    with np.errstate(over="ignore", invalid="ignore", under="ignore"):
+        out = v * f
+        # relative σ in quadrature by hypot (no square overflows)
+        rel = np.hypot(s / v, std.factor_sigma_1s_random / f)
+        if add_reproducibility:
+            rel = np.hypot(rel, std.reproducibility_rel_1s)
+        rnd = out * rel
+        sys_ = out * (std.factor_sigma_1s_systematic / f)
+    finite_result("reference-material normalisation", **{"normalised value": out, "random σ": rnd,
+                                                         "systematic σ": sys_})
 
     def o(a: Any) -> Any:
         return float(a) if np.ndim(a) == 0 else np.asarray(a)
