@@ -17,6 +17,7 @@ import hashlib
 import os
 import platform
 import sys
+import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Dict, List, Mapping, Sequence, Tuple
@@ -24,7 +25,6 @@ from typing import Any, Callable, Dict, List, Mapping, Sequence, Tuple
 from . import __version__
 from .errors import RatioDeskError
 from .workbook import (
-    CONSTANTS,
     FIRST_ROW,
     ISOCHRON,
     ISOCHRON_BLOCK,
@@ -38,9 +38,9 @@ from .workbook import (
     PROVENANCE_HEADER,
     RESULTS,
     SHEET_BY_NAME,
-    SPIKES,
     STANDARDS,
     Evaluation,
+    FormulaCell,
     WorkbookData,
     build_layout,
     check_sheets,
@@ -50,6 +50,7 @@ from .workbook import (
     provenance_constant_rows,
     read_workbook,
     sheet_block,
+    table_extent,
     write_xlsx,
 )
 
@@ -57,13 +58,23 @@ __all__ = ["BatchError", "ReduceOutcome", "add_arguments_demo", "add_arguments_r
            "run_demo", "run_reduce", "tables_from_grid", "write_demo_workbook"]
 
 
+#: Problems a BatchError lists line by line (the count of the rest is stated).
+LISTED_PROBLEMS = 100
+
+
 class BatchError(RatioDeskError):
-    """The workbook has problems; ``problems`` lists them (sheet, row and column named in each)."""
+    """The workbook has problems; ``problems`` lists them (sheet, row and column named in each).
+
+    The message lists the first :data:`LISTED_PROBLEMS` and states how many more there are.
+    """
 
     def __init__(self, path: str, problems: Sequence[str]) -> None:
         self.problems = tuple(problems)
         head = f"{path}: {len(problems)} problem(s); nothing was written"
-        super().__init__(head + "".join(f"\n  {p}" for p in problems))
+        shown_ = problems[:LISTED_PROBLEMS]
+        rest = len(problems) - len(shown_)
+        tail = f"\n  … and {rest} more problem(s) (fix those above first)" if rest else ""
+        super().__init__(head + "".join(f"\n  {p}" for p in shown_) + tail)
 
 
 @dataclass(frozen=True)
@@ -82,18 +93,18 @@ def tables_from_grid(grid: Mapping[str, Sequence[Sequence[Any]]]) -> Tuple[Dict[
     tables: Dict[str, List[Dict[str, Any]]] = {}
     for name in ("Spikes", "Standards", "Samples", "Measured", "Constants"):
         sh = SHEET_BY_NAME[name]
-        block = sheet_block(grid, name, KEY_ROW, 0, sh.last_row, len(sh.columns) - 1)
+        block = sheet_block(grid, name, KEY_ROW, 0, table_extent(grid, sh), len(sh.columns) - 1)
         keys = [str(k) for k in block[0]]
         rows = []
         for r in block[1:]:
-            rows.append({k: v for k, v in zip(keys, r) if k})
+            rows.append({k: _shown_value(v) for k, v in zip(keys, r) if k})
         while rows and all(v == "" for v in rows[-1].values()):
             rows.pop()
         tables[name] = rows
     selection: Dict[str, List[Tuple[Any, Any]]] = {}
     for system, (first, last) in ISOCHRON_BLOCK.items():
         block = sheet_block(grid, "Isochron", first, 0, last, 1)
-        selection[system] = [(a, u) for a, u in block]
+        selection[system] = [(_shown_value(a), _shown_value(u)) for a, u in block]
     treatments = {}
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         col = ISOCHRON_SUMMARY_COL + 1 + k
@@ -101,6 +112,14 @@ def tables_from_grid(grid: Mapping[str, Sequence[Sequence[Any]]]) -> Tuple[Dict[
                                          col)[0][0] or "analytical"
     constants = tables.pop("Constants")
     return tables, constants, selection, treatments
+
+
+def _shown_value(v: Any) -> Any:
+    """A cell as results.xlsx repeats it: a formula (one the reduction does not read, such as a note)
+    by the value the file stored for it, else by its text, written as text."""
+    if isinstance(v, FormulaCell):
+        return str.__str__(v) if v.cached is None else v.cached
+    return v
 
 
 def _provenance(data: WorkbookData, constants: Sequence[Mapping[str, Any]], spikes: Sequence[Mapping[str, Any]],
@@ -144,7 +163,8 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
         return ev.cells.get((sheet, row, col), "")
 
     rows = []
-    for row in range(FIRST_ROW, RESULTS.last_row + 1):
+    last = max((r for (sheet, r, _c) in ev.cells if sheet == "Results"), default=RESULTS.last_row)
+    for row in range(FIRST_ROW, last + 1):        # every reduced row, below the template's rows too
         if cell("Results", row, 0) in ("", None):
             continue
         rows.append({c.key: cell("Results", row, j) for j, c in enumerate(RESULTS.columns)})
@@ -179,7 +199,7 @@ def _standards_summary(grid: Mapping[str, Any], ev: Evaluation) -> Tuple[Tuple[A
     """One row per (session, ratio, material) of the Standards sheet with its computed check values."""
     col = {c.key: j for j, c in enumerate(STANDARDS.columns)}
     seen: Dict[Tuple[str, ...], List[Any]] = {}
-    for row in range(FIRST_ROW, STANDARDS.last_row + 1):
+    for row in range(FIRST_ROW, table_extent(grid, STANDARDS) + 1):
         typed = sheet_block(grid, "Standards", row, 0, row, STANDARDS.input_width - 1)[0]
         if typed[col["session"]] in ("", None):
             continue
@@ -196,17 +216,15 @@ def _standards_summary(grid: Mapping[str, Any], ev: Evaluation) -> Tuple[Tuple[A
 
 def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str], None]) -> List[Tuple[Any, ...]]:
     """Monte Carlo σ of every analysis (seeded), reported beside the linear σ."""
-    from .workbook import MEASURED, SAMPLES, STANDARDS, analysis_result, table_ref
-    from .workbook import _block as block
+    from .workbook import BookTables
 
-    ins = {s.name: block(ev_grid, table_ref(s)) for s in (SAMPLES, MEASURED, SPIKES, STANDARDS, CONSTANTS)}
-    ids = [r[0] for r in ins["Samples"][1:] if r and r[0] != ""]
+    book = BookTables(ev_grid)
+    ids = [r[0] for r in book.rows["Samples"][1:] if r and r[0] != ""]
     out: List[Tuple[Any, ...]] = [("Analysis", "P/D 1σ linear", "P/D 1σ Monte Carlo", "D ratio 1σ linear",
                                    "D ratio 1σ Monte Carlo", "ρ linear", "ρ Monte Carlo", "draws")]
     for k, a in enumerate(ids, start=1):
         progress(f"Monte Carlo {k}/{len(ids)}: {a} ({draws} draws)")
-        res = analysis_result(str(a), ins["Samples"], ins["Measured"], ins["Spikes"], ins["Standards"],
-                              ins["Constants"], mc_draws=draws)
+        res = book.analysis(f"{a:g}" if isinstance(a, float) else str(a).strip(), mc_draws=draws)[0]
         mc = res.mc_sigma_1s or {}
         out.append((a, res.parent_ratio_sigma_1s, mc.get("parent_ratio", ""), res.daughter_ratio_sigma_1s,
                     mc.get("daughter_ratio", ""), res.rho, res.mc_rho if res.mc_rho is not None else "", draws))
@@ -218,13 +236,18 @@ def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
     """Reduce one workbook; write results.xlsx and report.pdf into ``out_dir``."""
     from .report import write_report
 
+    t0 = time.perf_counter()
     data = read_workbook(path)
     check_sheets(data)
     drift = formula_drift(data.formulas)
-    progress(f"read {data.path}: {sum(len(g) for g in data.grid.values())} rows on {len(data.grid)} sheets")
+    progress(f"read {data.path}: {sum(len(g) for g in data.grid.values())} rows on {len(data.grid)} sheets "
+             f"({time.perf_counter() - t0:.1f} s)")
+    t1 = time.perf_counter()
     ev = evaluate(data.grid, strict=False)
     if ev.errors:
         raise BatchError(data.path, [str(e) for e in ev.errors])
+    n = sum(1 for (sheet, _r, c), v in ev.cells.items() if sheet == "Results" and c == 0 and v not in ("", None))
+    progress(f"reduced {n} analyses ({time.perf_counter() - t1:.1f} s)")
     tables, constants, selection, treatments = tables_from_grid(data.grid)
     now = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     out = Path(out_dir)
@@ -240,7 +263,9 @@ def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
     write_xlsx(lay, results, values_only=True, extra_sheets=extra)
     report = out / "report.pdf"
     progress("drawing the report")
+    t2 = time.perf_counter()
     write_report(_report_data(data, ev, tables, constants, selection, treatments, now), report)
+    progress(f"report drawn ({time.perf_counter() - t2:.1f} s; {time.perf_counter() - t0:.1f} s in all)")
     return ReduceOutcome(results, report, ev, tuple(drift) + tuple(ev.warnings))
 
 

@@ -46,6 +46,30 @@ class ReportData:
     standards: Tuple[Tuple[Any, ...], ...] = field(default=())
 
 
+#: Characters of a typed label (analysis ID, sample, fraction) the report prints; results.xlsx holds it whole.
+LABEL_CHARS = 40
+SHORTENED_NOTE = (f"Labels longer than {LABEL_CHARS} characters (analysis IDs, samples, fractions) are shortened "
+                  "here and end in '…'; results.xlsx holds them in full.")
+
+
+_UNPRINTABLE = {"\t": "\\t", "\r": "\\r"}
+
+
+def _printable(v: Any) -> str:
+    """A typed text as the report prints it: a tab or carriage return shown as ``\\t`` / ``\\r`` (no font
+    has a glyph for them), every other character as typed."""
+    t = str(v)
+    if "\t" in t or "\r" in t:
+        t = "".join(_UNPRINTABLE.get(ch, ch) for ch in t)
+    return t
+
+
+def _label(v: Any) -> str:
+    """A typed label as the report prints it: at most :data:`LABEL_CHARS` characters, else cut with '…'."""
+    t = _printable(v)
+    return t if len(t) <= LABEL_CHARS else t[:LABEL_CHARS] + "…"
+
+
 def _fmt(v: Any, nd: int = 6) -> str:
     if isinstance(v, float):
         if v == 0:
@@ -70,14 +94,14 @@ def _sci(v: Any, nd: int = 2) -> str:
 
 
 # Result tables of the report: (key, header, formatter)
-_TABLE_CONC = (("analysis", "Analysis", str), ("sample", "Sample", str), ("fraction", "Fraction", str),
-               ("system", "System", str), ("parent_conc", "Parent\n(µg/g)", lambda v: _dec(v, 4)),
+_TABLE_CONC = (("analysis", "Analysis", _label), ("sample", "Sample", _label), ("fraction", "Fraction", _label),
+               ("system", "System", _label), ("parent_conc", "Parent\n(µg/g)", lambda v: _dec(v, 4)),
                ("parent_conc_1s", "±1σ abs\n(total)", lambda v: _dec(v, 4)),
                ("daughter_conc", "Daughter\n(µg/g)", lambda v: _dec(v, 4)),
                ("daughter_conc_1s", "±1σ abs\n(total)", lambda v: _dec(v, 4)),
                ("blank_share", "Daughter blank\n(% of total)", lambda v: _dec(v, 3)),
                ("check", "Check", str))
-_TABLE_RATIOS = (("analysis", "Analysis", str), ("x", "P/D ratio", lambda v: _dec(v, 6)),
+_TABLE_RATIOS = (("analysis", "Analysis", _label), ("x", "P/D ratio", lambda v: _dec(v, 6)),
                  ("x_1s", "±1σ abs\n(random)", _sci), ("x_2s_pct", "±2σ %\n(random)", lambda v: _dec(v, 3)),
                  ("x_1s_total", "±1σ abs\n(total)", _sci), ("y", "D ratio", lambda v: _dec(v, 7)),
                  ("y_1s", "±1σ abs\n(random)", _sci), ("y_2s_ppm", "±2σ ppm\n(random)", lambda v: _dec(v, 1)),
@@ -142,12 +166,14 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
         ax.add_patch(Polygon(np.column_stack([ex, ey]), closed=True, facecolor=face, alpha=0.55 if used else 1,
                              edgecolor="#1f3a68" if used else "#999999", lw=0.8))
         ax.plot([x], [y], marker="o", ms=3, color="#1f3a68" if used else "#999999")
-        ax.annotate(aid, (x, y), xytext=(6, -10), textcoords="offset points", fontsize=7, color="#333333")
+        ax.annotate(_label(aid), (x, y), xytext=(6, -10), textcoords="offset points", fontsize=7, color="#333333",
+                    parse_math=False)
         if have_fit:
             dev = (ey - (inter + slope * ex)) / (inter + slope * ex) * 1e6
             axr.add_patch(Polygon(np.column_stack([ex, dev]), closed=True, facecolor=face, alpha=0.55 if used else 1,
                                   edgecolor="#1f3a68" if used else "#999999", lw=0.8))
-            axr.annotate(aid, (x, float(np.mean(dev))), xytext=(6, 0), textcoords="offset points", fontsize=7)
+            axr.annotate(_label(aid), (x, float(np.mean(dev))), xytext=(6, 0), textcoords="offset points",
+                         fontsize=7, parse_math=False)
     span = xs.max() - xs.min() if len(xs) > 1 else 1.0
     lo, hi = xs.min() - 0.08 * span, xs.max() + 0.08 * span
     xx = np.linspace(max(lo, 0.0) if xs.min() >= 0 else lo, hi, 50)
@@ -161,8 +187,8 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
     ax.set_xlabel(xl)
     ax.set_ylabel(yl)
     ax.ticklabel_format(useOffset=False)
-    ax.set_title(f"{p.system} isochron — {data.title}", fontsize=11)
-    ax.text(0.02, 0.98, _age_text(p), transform=ax.transAxes, va="top", ha="left", fontsize=8.5,
+    ax.set_title(f"{p.system} isochron — {data.title}", fontsize=11, parse_math=False)
+    ax.text(0.02, 0.98, _age_text(p), transform=ax.transAxes, va="top", ha="left", fontsize=8.5, parse_math=False,
             family="monospace", bbox={"boxstyle": "round", "facecolor": "white", "edgecolor": "#bbbbbb"})
     ax.text(0.98, 0.02, "ellipses: 95 % confidence (2-D); open = not used in the fit", transform=ax.transAxes,
             ha="right", va="bottom", fontsize=7, color="#555555")
@@ -172,7 +198,7 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
     axr.set_ylabel("deviation from the line (ppm)")
     axr.set_title("Deviations from the fitted line, same ellipses magnified", fontsize=9)
     fig.text(0.5, 0.015, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center", fontsize=7,
-             color="#666666")
+             color="#666666", parse_math=False)
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     pdf.savefig(fig)
     plt.close(fig)
@@ -193,38 +219,101 @@ def _table_pages(pdf: Any, title: str, header: Sequence[str], rows: Sequence[Seq
         fig.text(0.04, 0.96, title + (f" (continued {k + 1})" if k else ""), fontsize=12, weight="bold")
         ax = fig.add_axes((0.03, 0.12, 0.94, 0.80))
         ax.axis("off")
-        cells = [[v if isinstance(v, str) else _fmt(v) for v in r] for r in chunk] or [["" for _ in header]]
-        if wrap:
-            cells = [["\n".join(textwrap.wrap(t, w)) if w and t else t for t, w in zip(r, wrap)] for r in cells]
-        tab = ax.table(cellText=cells, colLabels=list(header), loc="upper center", cellLoc="right",
-                       colWidths=list(col_widths) if col_widths else None)
-        tab.auto_set_font_size(False)
-        tab.set_fontsize(fontsize)
-        tab.scale(1, 1.25)
-        for (r, _c), cell in tab.get_celld().items():
-            cell.set_linewidth(0.3)
-            if r == 0:
-                cell.set_facecolor("#e8e8e8")
-                cell.set_text_props(weight="bold", wrap=True)
-                cell.set_height(cell.get_height() * 2.2)
-            elif wrap:
-                lines = max(t.count("\n") + 1 for t in cells[r - 1])
-                cell.set_height(cell.get_height() * lines)
-            if wrap and r > 0:
-                cell.get_text().set_va("center")
-                cell.set_text_props(ha="left" if wrap[_c] else "right")
-                cell._loc = "left" if wrap[_c] else "right"
-
+        cells = [[_printable(v) if isinstance(v, str) else _fmt(v) for v in r] for r in chunk] or [["" for _ in header]]
+        if not wrap:
+            _plain_table(fig, (0.03, 0.12, 0.94, 0.80), header, cells, col_widths, fontsize)
+        else:
+            _wrapped_table(ax, header, cells, col_widths, fontsize, wrap)
         wrapped = [textwrap.wrap(n, 190 if landscape else 130) for n in notes]
         step = 0.018 if landscape else 0.0128            # one 7-pt line as a fraction of the page height
         y = max(0.095, 0.03 + sum(step * len(lines) + 0.008 for lines in wrapped))
         for lines in wrapped:
-            fig.text(0.04, y, "\n".join(lines), fontsize=7, va="top")
+            fig.text(0.04, y, "\n".join(lines), fontsize=7, va="top", parse_math=False)
             y -= step * len(lines) + 0.008
-        fig.text(0.5, 0.005, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center",
+        fig.text(0.5, 0.005, f"{data.source} · RatioDesk {data.version} · {data.date}", ha="center", parse_math=False,
                  fontsize=7, color="#666666")
         pdf.savefig(fig)
         plt.close(fig)
+
+
+def _is_number_text(t: str) -> bool:
+    try:
+        float(t)
+    except ValueError:
+        return False
+    return True
+
+
+def _plain_table(fig: Any, box: Tuple[float, float, float, float], header: Sequence[str],
+                 cells: Sequence[Sequence[str]], col_widths: Optional[Sequence[float]], fontsize: float) -> None:
+    """A table of one-line cells drawn as plain texts and one set of rules (several times faster than a
+    matplotlib table, which matters for a report of thousands of analyses). Numbers are right-aligned,
+    text left-aligned; column widths follow the longest entry unless ``col_widths`` are given."""
+    from matplotlib.collections import LineCollection
+    from matplotlib.patches import Rectangle
+
+    left, bottom, width, height = box
+    ncol = len(header)
+    if col_widths:
+        weights = [float(w) for w in col_widths]
+    else:
+        weights = [min(max([len(line) for line in str(h).split("\n")] + [len(r[j]) for r in cells] + [4]), 28) + 2
+                   for j, h in enumerate(header)]
+    total = sum(weights)
+    edges = [left]
+    for w in weights:
+        edges.append(edges[-1] + width * w / total)
+    pitch = fontsize * 2.1 / 72 / fig.get_figheight()                 # one row, as a fraction of the page
+    head = pitch * 2.2
+    top = bottom + height
+    fig.add_artist(Rectangle((left, top - head), width, head, transform=fig.transFigure, facecolor="#e8e8e8",
+                             edgecolor="none"))
+    numeric = [all(_is_number_text(r[j]) for r in cells if r[j]) and any(r[j] for r in cells) for j in range(ncol)]
+    pad = 0.004
+    for j, h in enumerate(header):
+        x = edges[j + 1] - pad if numeric[j] else edges[j] + pad
+        fig.text(x, top - head / 2, str(h), ha="right" if numeric[j] else "left", va="center", fontsize=fontsize,
+                 weight="bold", parse_math=False)
+    for i, r in enumerate(cells):
+        y = top - head - (i + 0.5) * pitch
+        for j, t in enumerate(r):
+            if t:
+                fig.text(edges[j + 1] - pad if numeric[j] else edges[j] + pad, y, t, va="center", fontsize=fontsize,
+                         ha="right" if numeric[j] else "left", parse_math=False)
+    y_end = top - head - len(cells) * pitch
+    segs = [[(left, top), (left + width, top)], [(left, top - head), (left + width, top - head)]]
+    segs += [[(left, top - head - (i + 1) * pitch), (left + width, top - head - (i + 1) * pitch)]
+             for i in range(len(cells))]
+    segs += [[(x, top), (x, y_end)] for x in edges]
+    fig.add_artist(LineCollection(segs, transform=fig.transFigure, colors="black", linewidths=0.3))
+
+
+def _wrapped_table(ax: Any, header: Sequence[str], cells: Sequence[Sequence[str]],
+                   col_widths: Optional[Sequence[float]], fontsize: float, wrap: Sequence[int]) -> None:
+    """A matplotlib table whose cells wrap (``wrap`` characters per line, 0 = none)."""
+    import textwrap
+
+    cells = [["\n".join(textwrap.wrap(t, w)) if w and t else t for t, w in zip(r, wrap)] for r in cells]
+    tab = ax.table(cellText=cells, colLabels=list(header), loc="upper center", cellLoc="right",
+                   colWidths=list(col_widths) if col_widths else None)
+    for cell in tab.get_celld().values():
+        cell.get_text().set_parse_math(False)      # typed text is printed as typed, never as mathtext
+    tab.auto_set_font_size(False)
+    tab.set_fontsize(fontsize)
+    tab.scale(1, 1.25)
+    for (r, _c), cell in tab.get_celld().items():
+        cell.set_linewidth(0.3)
+        if r == 0:
+            cell.set_facecolor("#e8e8e8")
+            cell.set_text_props(weight="bold", wrap=True)
+            cell.set_height(cell.get_height() * 2.2)
+        else:
+            lines = max(t.count("\n") + 1 for t in cells[r - 1])
+            cell.set_height(cell.get_height() * lines)
+        if r > 0:
+            cell.get_text().set_va("center")
+            cell.set_text_props(ha="left" if wrap[_c] else "right")
+            cell._loc = "left" if wrap[_c] else "right"
 
 
 def write_report(data: ReportData, path: Any) -> None:
@@ -242,11 +331,13 @@ def write_report(data: ReportData, path: Any) -> None:
                   "176Hf/177Hf. 1σ abs = one standard deviation, absolute; 2σ % / ppm = two standard deviations, "
                   "relative. Random = measurement (isochron input); total adds spike calibration and accepted value.",
                   CAUTION)
+        long_labels = any(len(str(r.get(k, ""))) > LABEL_CHARS for r in data.results
+                          for k in ("analysis", "sample", "fraction", "system"))
         for title, spec, widths in (("Concentrations per analysis", _TABLE_CONC, None),
                                     ("Isochron inputs per analysis", _TABLE_RATIOS, None)):
             rows = [tuple(f(r.get(k, "")) for k, _h, f in spec) for r in data.results]
             _table_pages(pdf, title, tuple(h for _k, h, _f in spec), rows, data, col_widths=widths, fontsize=7,
-                         notes=legend + tuple(data.notes))
+                         notes=legend + ((SHORTENED_NOTE,) if long_labels else ()) + tuple(data.notes))
         from .workbook import ISOCHRON_QUANTITIES
 
         iso_rows: List[Tuple[Any, ...]] = []

@@ -23,26 +23,37 @@ run), ``Results`` (one formula row per analysis), ``Isochron`` (selection, fit, 
 from __future__ import annotations
 
 import math
+import os
 import re
 from dataclasses import dataclass, field
 from functools import lru_cache
+from types import MappingProxyType
 from typing import Any, Callable, Dict, List, Mapping, Optional, Sequence, Tuple
 
 from .errors import InputError, RatioDeskError
 
 __all__ = [
     "ANALYSIS_QUANTITIES",
+    "MAX_DATA_ROWS",
+    "BookTables",
     "CellError",
     "Column",
+    "FormulaCell",
     "ISOCHRON_QUANTITIES",
+    "LogicalCell",
     "SHEETS",
     "Sheet",
+    "WorkbookFileError",
     "analysis_value",
     "constants_rows",
+    "evaluate",
     "isochron_value",
     "provenance_constant_rows",
     "provenance_note",
+    "read_workbook",
+    "shown",
     "status_text",
+    "table_extent",
 ]
 
 TITLE_ROW, NOTE_ROW, HEADER_ROW, KEY_ROW, FIRST_ROW = 1, 2, 3, 4, 5
@@ -72,6 +83,96 @@ class CellError(InputError):
 
 class FollowOnError(CellError):
     """A cell that only repeats another cell's problem (already listed): shown in the cell, not listed again."""
+
+
+class WorkbookFileError(InputError):
+    """A file that cannot be read as a RatioDesk workbook (corrupt, encrypted, another format)."""
+
+    def __init__(self, path: str, problem: str) -> None:
+        super().__init__("workbook", problem)
+        self.path = path
+        self.args = (f"{path}: {problem}",)
+
+    def __str__(self) -> str:
+        return self.args[0]
+
+
+#: Characters of a typed text that a message quotes; longer text is cut there (with its length stated).
+SHOWN_CHARS = 40
+
+
+def shown(v: Any) -> str:
+    """A typed value as a message quotes it: ``repr`` of the text, cut to :data:`SHOWN_CHARS` characters.
+
+    A 10 000-character ID is shown as its first 40 characters, ``…`` and its length, so a message
+    stays one readable line; control characters appear escaped (``'\\t=1'``).
+    """
+    s = f"{v:g}" if isinstance(v, float) else str(v)
+    if len(s) > SHOWN_CHARS:
+        return repr(s[:SHOWN_CHARS]) + f"… ({len(s)} characters)"
+    return repr(s)
+
+
+class SpecialCell(str):
+    """A cell value that is neither a number nor typed text: a logical value or a formula.
+
+    It is a ``str`` (code unaware of it treats it as text, never as a number) that compares equal
+    only to a special cell of the same kind and text, so a cached result never mixes it up with
+    typed text (or TRUE with 1).
+    """
+
+    def __eq__(self, other: object) -> bool:
+        return type(other) is type(self) and str.__eq__(self, other)
+
+    def __ne__(self, other: object) -> bool:
+        return not self.__eq__(other)
+
+    def __hash__(self) -> int:
+        return hash((type(self).__name__, str.__str__(self)))
+
+    def problem(self) -> str:
+        """Why the cell is not a number (or a text the batch path can read)."""
+        raise NotImplementedError
+
+
+class LogicalCell(SpecialCell):
+    """A logical cell (TRUE or FALSE): .xlsx ``t="b"``, .ods ``office:value-type="boolean"``."""
+
+    def problem(self) -> str:
+        return f"is {str.__str__(self)} (a logical value), not a number: type the number"
+
+
+class FormulaCell(SpecialCell):
+    """A formula typed into a cell the batch path reads as input (its text, e.g. ``=B5*2``).
+
+    ``cached`` is the value the file stores for it (what the spreadsheet showed when it was saved),
+    ``None`` when the file stores none. A formula that showed nothing (``""``) leaves its row empty,
+    as it looks in the spreadsheet; any other formula in an input cell is reported, never read as
+    empty or as its possibly stale cached value.
+    """
+
+    cached: Any = None
+
+    def problem(self) -> str:
+        return (f"holds a formula ({shown(str.__str__(self))}), which ratiodesk reduce does not evaluate: "
+                "type the value (or paste the cell as a value)")
+
+
+def logical(v: bool) -> LogicalCell:
+    """The cell value of a logical cell."""
+    return LogicalCell("TRUE" if v else "FALSE")
+
+
+def formula_cell(text: str, cached: Any = None) -> FormulaCell:
+    """The cell value of a formula cell (its text and the value the file caches for it, if any)."""
+    f = FormulaCell(text)
+    f.cached = cached
+    return f
+
+
+def blank(v: Any) -> bool:
+    """Whether a cell shows nothing: empty, or a formula whose stored value is empty."""
+    return (isinstance(v, str) and v == "") or (type(v) is FormulaCell and v.cached == "")
 
 
 # --------------------------------------------------------------------------------------------
@@ -486,10 +587,16 @@ def provenance_constant_rows(constants: Sequence[Mapping[str, Any]]) -> List[Tup
 # reading tables from cell values (shared by the add-in and the batch path)
 # --------------------------------------------------------------------------------------------
 def _clean(v: Any) -> Cell:
+    """One cell value as the tables read it: float, text ('' = empty) or a :class:`SpecialCell`.
+
+    A logical value stays a logical cell (never 1.0/0.0: TRUE in a mass cell is not 1 g).
+    """
     if v is None:
         return ""
+    if isinstance(v, str):
+        return v
     if isinstance(v, bool):
-        return float(v)
+        return logical(v)
     if isinstance(v, (int, float)):
         return float(v)
     if hasattr(v, "isoformat"):
@@ -510,6 +617,9 @@ class Table:
     keys: Tuple[str, ...]
     rows: Rows
     first_row: int = FIRST_ROW
+    #: look-up indexes of :meth:`find`, built on first use (column keys -> normalised values -> row indexes)
+    _index: Dict[Tuple[str, ...], Dict[Tuple[str, ...], List[int]]] = field(
+        default_factory=dict, compare=False, repr=False)
 
     @classmethod
     def from_range(cls, sheet: Sheet, rows: Any, first_row: int = FIRST_ROW) -> Table:
@@ -523,8 +633,8 @@ class Table:
         try:
             return self.keys.index(key)
         except ValueError:
-            raise CellError(self.sheet.name, KEY_ROW, None, "",
-                            f"the column key {key!r} is missing from row {KEY_ROW}") from None
+            raise CellError(self.sheet.name, self.first_row - 1, None, "",
+                            f"the column key {shown(key)} is missing from row {self.first_row - 1}") from None
 
     def header(self, key: str) -> str:
         try:
@@ -542,6 +652,8 @@ class Table:
 
     def text(self, i: int, key: str, required: bool = True) -> str:
         v = self.get(i, key)
+        if isinstance(v, FormulaCell):
+            raise self.error(i, key, v.problem())
         if isinstance(v, float):
             v = f"{v:g}"
         v = str(v).strip()
@@ -554,6 +666,8 @@ class Table:
     def number(self, i: int, key: str, required: bool = True, positive: bool = False,
                default: float = 0.0) -> float:
         v = self.get(i, key)
+        if isinstance(v, SpecialCell):
+            raise self.error(i, key, v.problem())
         if isinstance(v, str):
             s = v.strip()
             if not s:
@@ -562,7 +676,7 @@ class Table:
                 return default
             if s.startswith(MARKER.strip()):
                 raise self.error(i, key, f"from this cell: {s}")
-            raise self.error(i, key, f"is not a number: {s!r}")
+            raise self.error(i, key, f"is not a number: {shown(s)}")
         if not math.isfinite(v):
             raise self.error(i, key, f"must be a finite number, got {v!r}")
         if positive and not v > 0:
@@ -570,29 +684,49 @@ class Table:
         return v
 
     def filled(self, i: int) -> bool:
-        return any(v != "" for v in self.rows[i])
+        return any(not blank(v) for v in self.rows[i])
 
     def find(self, **match: str) -> List[int]:
-        def norm(v: Any) -> str:
-            return (f"{v:g}" if isinstance(v, float) else str(v)).strip().lower()
+        """Indexes of the rows whose cells equal ``match`` (trimmed, case-insensitive), in sheet order.
 
-        out = []
-        for i in range(len(self.rows)):
-            if all(norm(self.get(i, k)) == norm(v) for k, v in match.items()):
-                out.append(i)
-        return out
+        The first look-up by a set of columns builds an index, so looking up every analysis of a
+        large table costs one pass over it, not one pass per analysis.
+        """
+        if not self.rows:
+            return []
+        keys = tuple(sorted(match))
+        idx = self._index.get(keys)
+        if idx is None:
+            cols = [self.index(k) for k in keys]
+            idx = {}
+            for i, row in enumerate(self.rows):
+                idx.setdefault(tuple(_norm(row[j] if j < len(row) else "") for j in cols), []).append(i)
+            self._index[keys] = idx
+        return list(idx.get(tuple(_norm(match[k]) for k in keys), ()))
 
 
-def _constants(rows: Rows) -> Dict[str, Tuple[float, float, int]]:
-    """key -> (value, sigma_1s, sheet row) from a Constants range."""
+def _norm(v: Any) -> str:
+    """A cell as :meth:`Table.find` compares it (trimmed, lower case; numbers as ``%g``)."""
+    return (f"{v:g}" if isinstance(v, float) else str(v)).strip().lower()
+
+
+@lru_cache(maxsize=64)
+def _constants(rows: Rows) -> Mapping[str, Tuple[float, float, int]]:
+    """key -> (value, sigma_1s, sheet row) from a Constants range (read-only: the result is cached).
+
+    A key given twice is reported at its second row: which of the two values a formula would use
+    is not obvious to the reader of the sheet.
+    """
     t = Table.from_range(CONSTANTS, rows)
     out: Dict[str, Tuple[float, float, int]] = {}
     for i in range(len(t.rows)):
         key = t.text(i, "key", required=False)
         if not key or key == "set":
             continue
+        if key in out:
+            raise t.error(i, "key", f"the key {shown(key)} is given twice (first on row {out[key][2]}): keep one row")
         out[key] = (t.number(i, "value"), t.number(i, "sigma_1s", required=False), FIRST_ROW + i)
-    return out
+    return MappingProxyType(out)
 
 
 @lru_cache(maxsize=64)
@@ -601,16 +735,29 @@ def _refset(constants: Rows) -> Any:
     from .constants import reference_set
 
     t = Table.from_range(CONSTANTS, constants)
-    name = None
+    name, set_row = None, None
     for i in range(len(t.rows)):
         if t.text(i, "key", required=False) == "set":
-            name = t.text(i, "value", required=False) or None
-    overrides = {k: (v, s) for k, (v, s, _r) in _constants(constants).items() if k.split(".")[0] in
-                 ("decay", "CHUR", "DM", "UR")}
+            name, set_row = t.text(i, "value", required=False) or None, i
     try:
         base = reference_set(name)
     except InputError as exc:
-        raise CellError("Constants", None, "C", "Value", f"reference set: {exc}") from None
+        raise CellError("Constants", None if set_row is None else FIRST_ROW + set_row, "C", "Value",
+                        f"reference set: {exc.problem}") from None
+    overrides = {}
+    for k, (v, s, row) in _constants(constants).items():
+        if k.split(".")[0] not in ("decay", "CHUR", "DM", "UR"):
+            continue
+        # each override checked on its own first, so a bad one is named at its own row
+        try:
+            base.with_overrides({k: (v, s)})
+        except (InputError, KeyError) as exc:
+            if isinstance(exc, InputError) and "override" in exc.problem:
+                col, head = ("D", "1σ (abs)") if v > 0 else ("C", "Value")
+                raise CellError("Constants", row, col, head, f"{k}: {exc.problem}") from None
+            problem = exc.problem if isinstance(exc, InputError) else "no such reference value in the set"
+            raise CellError("Constants", row, "A", "Key", f"{shown(k)}: {problem}") from None
+        overrides[k] = (v, s)
     return base.with_overrides(overrides)
 
 
@@ -653,11 +800,16 @@ def _lab(constants: Rows, key: str) -> float:
     return v
 
 
-def _constant(constants: Rows, key: str) -> Tuple[float, float]:
+def _constant(constants: Rows, key: str, positive: bool = False) -> Tuple[float, float]:
+    """(value, 1σ) of a Constants row; with ``positive`` a value <= 0 or a σ < 0 is named at its cell."""
     c = _constants(constants)
     if key not in c:
-        raise CellError("Constants", None, "A", "Key", f"no row with the key {key!r}")
-    v, s, _r = c[key]
+        raise CellError("Constants", None, "A", "Key", f"no row with the key {shown(key)}")
+    v, s, row = c[key]
+    if positive and not v > 0:
+        raise CellError("Constants", row, "C", "Value", f"{key} must be > 0, got {v!r}")
+    if positive and s < 0:
+        raise CellError("Constants", row, "D", "1σ (abs)", f"{key}: a 1σ must be >= 0, got {s!r}")
     return v, s
 
 
@@ -677,8 +829,12 @@ def _spike(spikes: Table, label: str, element: str, where: Callable[[str], CellE
     hits = spikes.find(spike=label, element=element)
     if not hits:
         known = sorted({spikes.text(i, "spike", required=False) for i in range(len(spikes.rows))} - {""})
-        raise where(f"spike {label!r} has no {element} row on the Spikes sheet (spikes there: "
-                    f"{', '.join(known) or 'none'})")
+        listed = ", ".join(shown(k) for k in known[:12]) + (f" and {len(known) - 12} more" if len(known) > 12 else "")
+        raise where(f"spike {shown(label)} has no {element} row on the Spikes sheet (spikes there: "
+                    f"{listed or 'none'})")
+    if len(hits) > 1:
+        raise spikes.error(hits[1], "spike", f"spike {shown(label)} has a second {element} row (the first is row "
+                           f"{spikes.first_row + hits[0]}): keep one row per element of a spike")
     i = hits[0]
     isotopes, abundances, slots = [], [], []
     for k in range(1, 8):
@@ -724,10 +880,10 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
 
     hits = measured.find(analysis=analysis, element=element)
     if not hits:
-        raise where(f"no {element} run for analysis {analysis!r} on the Measured sheet")
+        raise where(f"no {element} run for analysis {shown(analysis)} on the Measured sheet")
     if len(hits) > 1:
-        raise measured.error(hits[1], "analysis", f"a second {element} run of analysis {analysis!r} (the first is "
-                             f"row {measured.first_row + hits[0]}): keep one row per element run")
+        raise measured.error(hits[1], "analysis", f"a second {element} run of analysis {shown(analysis)} (the first "
+                             f"is row {measured.first_row + hits[0]}): keep one row per element run")
     i = hits[0]
     isos = element_isotopes(element)
     ref = _REFERENCE_ISOTOPE.get(element, "")
@@ -739,10 +895,10 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
             continue
         num, sep, den = name.replace(" ", "").partition("/")
         if not sep or num not in isos or den != ref:
-            raise measured.error(i, f"r{k}_name", f"{name!r} is not a {element} ratio to {ref}: write it as "
+            raise measured.error(i, f"r{k}_name", f"{shown(name)} is not a {element} ratio to {ref}: write it as "
                                  f"<isotope>/{ref} with one of {', '.join(x for x in isos if x != ref)}")
         if num == ref or f"{num}/{den}" in vals:
-            raise measured.error(i, f"r{k}_name", f"{name!r} is given twice or is {ref}/{ref}")
+            raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice or is {ref}/{ref}")
         vals[f"{num}/{den}"] = measured.number(i, f"r{k}", positive=True)
         sig[f"{num}/{den}"] = measured.number(i, f"r{k}_sigma_1s", positive=True)
     bf = measured.number(i, "bias_factor", required=False, default=float("nan"))
@@ -781,23 +937,23 @@ def _session_standards(standards: Rows, constants: Rows, session: str, ratio: st
     hits = t.find(session=session, ratio=ratio)
     if not hits:
         raise CellError("Standards", None, "A", "Session",
-                        f"no {ratio} reference-material runs for session {session!r} on the Standards sheet")
+                        f"no {ratio} reference-material runs for session {shown(session)} on the Standards sheet")
     by_mat: Dict[str, List[int]] = {}
     roles: Dict[str, set] = {}
     for i in hits:
         m = t.text(i, "material")
         role = t.text(i, "role", required=False).lower()
         if role not in ("",) + _ROLES:
-            raise t.error(i, "role", f"must be 'primary', 'check' or empty, got {role!r}")
+            raise t.error(i, "role", f"must be 'primary', 'check' or empty, got {shown(role)}")
         by_mat.setdefault(m, []).append(i)
         roles.setdefault(m, set()).add(role)
     for m, r in roles.items():
         if {"primary", "check"} <= r:
             i = by_mat[m][0]
-            raise t.error(i, "role", f"{m} is marked both primary and check in session {session!r}")
+            raise t.error(i, "role", f"{m} is marked both primary and check in session {shown(session)}")
     typed = [m for m, r in roles.items() if "primary" in r]
     if len(typed) > 1:
-        raise t.error(by_mat[typed[1]][0], "role", f"session {session!r} has two primary materials for {ratio} "
+        raise t.error(by_mat[typed[1]][0], "role", f"session {shown(session)} has two primary materials for {ratio} "
                       f"({', '.join(typed)}): mark one 'primary', the others 'check'")
     default = DEFAULT_PRIMARY.get(ratio)
     not_check = [m for m, r in roles.items() if "check" not in r]
@@ -808,15 +964,15 @@ def _session_standards(standards: Rows, constants: Rows, session: str, ratio: st
     elif len(not_check) == 1 and len(by_mat) == 1:
         primary, how = not_check[0], "only material"
     else:
-        raise t.error(hits[0], "role", f"session {session!r} has no primary reference material for {ratio} "
+        raise t.error(hits[0], "role", f"session {shown(session)} has no primary reference material for {ratio} "
                       f"(materials: {', '.join(by_mat)}): type 'primary' in the Role column of its rows")
     rows = tuple(by_mat[primary])
     values = [t.number(i, "measured", positive=True) for i in rows]
-    try:
-        accepted, accepted_s = _constant(constants, f"rm.{primary}.{ratio}")
-    except CellError as exc:
-        raise t.error(rows[0], "material", f"the primary material {primary!r} has no accepted {ratio} on the "
-                      f"Constants sheet ({exc.problem})") from None
+    key = f"rm.{primary}.{ratio}"
+    if key not in _constants(constants):
+        raise t.error(rows[0], "material", f"the primary material {shown(primary)} has no accepted {ratio} on the "
+                      f"Constants sheet (no row with the key {shown(key)})")
+    accepted, accepted_s = _constant(constants, key, positive=True)
     try:
         f = standard_factor(values, accepted, accepted_sigma_1s=accepted_s)
     except InputError as exc:
@@ -836,10 +992,10 @@ def _session_standards(standards: Rows, constants: Rows, session: str, ratio: st
             s_mean = sigs[0] * f.factor
         else:   # one run, no σ typed: the primary's session scatter stands in for the run's own
             s_mean = mean * f.reproducibility_rel_1s
-        try:
-            acc, acc_s = _constant(constants, f"rm.{m}.{ratio}")
+        if f"rm.{m}.{ratio}" in _constants(constants):
+            acc, acc_s = _constant(constants, f"rm.{m}.{ratio}", positive=True)
             problem = ""
-        except CellError:
+        else:
             acc, acc_s = float("nan"), float("nan")
             problem = (f"{m} has no accepted {ratio} on the Constants sheet (add a row with the key "
                        f"'rm.{m}.{ratio}'); the check is not evaluated")
@@ -863,6 +1019,11 @@ def standard_value(quantity: str, session: Any, material: Any, ratio: Any, measu
     mat = str(material).strip()
     rat = str(ratio).strip()
     ss = _session_standards(as_rows(standards), as_rows(constants), ses, rat)
+    return _standard_cell(quantity, ss, ses, mat, measured)
+
+
+def _standard_cell(quantity: str, ss: SessionStandards, ses: str, mat: str, measured: Any) -> float | str:
+    """:func:`standard_value` once the session's standards are known."""
     f = ss.factor
     q = quantity.strip().lower()
     is_primary = mat.lower() == ss.primary.lower()
@@ -876,7 +1037,7 @@ def standard_value(quantity: str, session: Any, material: Any, ratio: Any, measu
         return float(f.factor)
     if q == "normalised":
         if not (math.isfinite(x) and x > 0):
-            raise CellError("Standards", None, "D", "Measured", f"is not a number > 0: {measured!r}")
+            raise CellError("Standards", None, "D", "Measured", f"is not a number > 0: {shown(measured)}")
         return float(x * f.factor)
     if is_primary:
         mean = f.mean * f.factor
@@ -885,7 +1046,7 @@ def standard_value(quantity: str, session: Any, material: Any, ratio: Any, measu
     else:
         hit = next((v for k, v in ss.checks.items() if k.lower() == mat.lower()), None)
         if hit is None:
-            raise CellError("Standards", None, "B", "Material", f"{mat!r} has no runs in session {ses!r}")
+            raise CellError("Standards", None, "B", "Material", f"{shown(mat)} has no runs in session {shown(ses)}")
         _rows, mean, s_mean, acc, acc_s, problem = hit
         if problem and q != "mean":
             return MARKER + problem
@@ -907,7 +1068,7 @@ def _standard(standards: Rows, constants: Rows, session: str, ratio: str,
     """The session factor from the session's primary material (checks never enter it)."""
     t = Table.from_range(STANDARDS, standards)
     if not t.find(session=session, ratio=ratio):
-        raise where(f"no {ratio} reference-material runs for session {session!r} on the Standards sheet")
+        raise where(f"no {ratio} reference-material runs for session {shown(session)} on the Standards sheet")
     return _session_standards(standards, constants, session, ratio).factor
 
 
@@ -976,27 +1137,49 @@ def _plausibility(res: Any, system: Any, sample_mass: float, spike_mass: float) 
     return out
 
 
+AnalysisOutcome = Tuple[Any, Any, float, Tuple[str, ...]]
+StandardLookup = Callable[[str, str, Callable[[str], CellError]], Any]
+
+#: The systems the template's sheets reduce (Samples column System).
+WORKBOOK_SYSTEMS = {"sm-nd": "Sm-Nd", "lu-hf": "Lu-Hf"}
+
+
 @lru_cache(maxsize=256)
 def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standards: Rows,
-              constants: Rows, mc_draws: int = 0) -> Tuple[Any, Any, float, Tuple[str, ...]]:
+              constants: Rows, mc_draws: int = 0) -> AnalysisOutcome:
     """(AnalysisResult, epsilon today, spike P/D calibration rel. 1σ, Check warnings) of one analysis."""
+    return _analysis_of(analysis, Table.from_range(SAMPLES, samples), Table.from_range(MEASURED, measured),
+                        Table.from_range(SPIKES, spikes),
+                        lambda session, ratio, where: _standard(standards, constants, session, ratio, where),
+                        constants, mc_draws)
+
+
+def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: StandardLookup, constants: Rows,
+                 mc_draws: int = 0) -> AnalysisOutcome:
+    """:func:`_analysis` on tables already read (the batch path reads each table once for every analysis).
+
+    ``standard(session, ratio, where)`` returns the session factor (:func:`_standard`).
+    """
     from .ages import epsilon
     from .chain import reduce_spiked_analysis
     from .systems import get_system
 
-    st = Table.from_range(SAMPLES, samples)
     hits = st.find(analysis=analysis)
     if not hits:
-        raise CellError("Samples", None, "A", "Analysis", f"no row for analysis {analysis!r}")
+        raise CellError("Samples", None, "A", "Analysis", f"no row for analysis {shown(analysis)}")
     if len(hits) > 1:
-        raise st.error(hits[1], "analysis", f"analysis ID {analysis!r} is used twice (first on row "
-                       f"{FIRST_ROW + hits[0]}): every analysis needs its own ID")
+        raise st.error(hits[1], "analysis", f"analysis ID {shown(analysis)} is used twice (first on row "
+                       f"{st.first_row + hits[0]}): every analysis needs its own ID")
     i = hits[0]
+    system_text = st.text(i, "system")
     try:
-        system = get_system(st.text(i, "system"))
-    except InputError as exc:
-        raise st.error(i, "system", exc.problem) from None
-    mt, sp = Table.from_range(MEASURED, measured), Table.from_range(SPIKES, spikes)
+        system = get_system(system_text)
+    except InputError:
+        raise st.error(i, "system", f"unknown isotope system {shown(system_text)}: type one of "
+                       f"{', '.join(WORKBOOK_SYSTEMS.values())}") from None
+    if system.key not in WORKBOOK_SYSTEMS:
+        raise st.error(i, "system", f"{shown(system_text)}: the workbook reduces "
+                       f"{' and '.join(WORKBOOK_SYSTEMS.values())} only")
     sample_mass = st.number(i, "sample_mass_g", positive=True)
     spike_mass = st.number(i, "spike_mass_g", positive=True)
     label = st.text(i, "spike")
@@ -1037,7 +1220,7 @@ def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standa
     d_spike = _spike(sp, label, d_el, at("spike"))
     p_mix, p_sig, p_bf, p_bf_s, _pi = _run(mt, analysis, p_el, at("analysis"))
     d_mix, d_sig, _d_bf, _d_bf_s, _di = _run(mt, analysis, d_el, at("analysis"))
-    std = _standard(standards, constants, session, system.daughter_ratio, at("session"))
+    std = standard(session, system.daughter_ratio, at("session"))
     ref = _refset(constants)
     naturals = _naturals(constants)
     kw: Dict[str, Any] = {}
@@ -1058,7 +1241,7 @@ def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standa
             standard=std, spike_rho=SPIKE_RHO, mc_draws=mc_draws, **kw)
         eps = epsilon(res.daughter_ratio, res.daughter_ratio_sigma_1s, res.parent_ratio, 0.0, system, ref)
     except RatioDeskError as exc:
-        raise CellError("Samples", FIRST_ROW + i, "A", "Analysis", f"analysis {analysis!r}: {exc}") from None
+        raise CellError("Samples", FIRST_ROW + i, "A", "Analysis", f"analysis {shown(analysis)}: {exc}") from None
     warn: List[str] = [f"poor spike-sample mix for {el}" for el in res.poor_mix]
     warn += _plausibility(res, system, sample_mass, spike_mass)
     zero = [_SIGMA_WORDS.get(n, n) for n in res.zero_sigma if not n.startswith(("parent_mix", "daughter_mix"))]
@@ -1112,7 +1295,12 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
     if not a:
         return ""
     rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
-    res, eps, x_scale, warnings = _analysis(a, *rows)
+    return _analysis_cell(quantity, _analysis(a, *rows))
+
+
+def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
+    """:func:`analysis_value` once the analysis is reduced."""
+    res, eps, x_scale, warnings = outcome
     rnd = res.sigma_1s_random
     q = quantity.strip().lower()
     table: Dict[str, Callable[[], Any]] = {
@@ -1150,6 +1338,7 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
     x, sx, y, sy, r = [], [], [], [], []
     scales: Dict[str, float] = {}
     used = 0
+    listed: Dict[str, int] = {}
     for i in range(len(sel.rows)):
         if not sel.filled(i):
             continue
@@ -1157,22 +1346,34 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
         use = sel.get(i, "use")
         if not a:
             raise sel.error(i, "analysis", "a row with a Use flag but no analysis ID")
+        if a.lower() in listed:
+            raise sel.error(i, "analysis", f"analysis {shown(a)} is listed twice (first on row {listed[a.lower()]}): "
+                            "list each analysis once")
+        listed[a.lower()] = sel.first_row + i
         if use == "":
             raise sel.error(i, "use", "is empty: type 1 to use the row or 0 to leave it out")
-        if use not in (0.0, 1.0):
-            raise sel.error(i, "use", f"must be 1 or 0, got {use!r}")
+        if isinstance(use, LogicalCell):
+            raise sel.error(i, "use", f"is {str.__str__(use)} (a logical value): type 1 to use the row or 0 to "
+                            "leave it out")
+        if isinstance(use, SpecialCell) or use not in (0.0, 1.0):
+            raise sel.error(i, "use", f"must be 1 or 0, got {shown(use) if isinstance(use, str) else repr(use)}")
         if use == 0.0:
             continue
         hits = res.find(analysis=a)
         if not hits:
-            raise sel.error(i, "analysis", f"analysis {a!r} is not on the Results sheet")
+            raise sel.error(i, "analysis", f"analysis {shown(a)} is not on the Results sheet")
         j = hits[0]
-        if _system_of(res.text(j, "system")) != sys_key:
-            raise sel.error(i, "analysis", f"analysis {a!r} is {res.text(j, 'system')}, not {system}")
+        try:
+            other = _system_of(res.text(j, "system"))
+        except InputError as exc:
+            raise sel.error(i, "analysis", f"{system}: analysis {shown(a)} (Results row {res.first_row + j}) has "
+                            f"the system {shown(res.text(j, 'system'))}: {exc.problem}") from None
+        if other != sys_key:
+            raise sel.error(i, "analysis", f"analysis {shown(a)} is {res.text(j, 'system')}, not {system}")
         for key, out in (("x", x), ("x_1s", sx), ("y", y), ("y_1s", sy), ("rho", r)):
             v = res.get(j, key)
             if isinstance(v, str) and v.strip():
-                raise sel.error(i, "analysis", f"{system}: analysis {a!r} (Results row {res.first_row + j}) "
+                raise sel.error(i, "analysis", f"{system}: analysis {shown(a)} (Results row {res.first_row + j}) "
                                 f"has no {res.header(key)}: {_cell_message(v)}")
             out.append(res.number(j, key))
         if "spike" in res.keys and "x_spike_1s_pct" in res.keys:
@@ -1181,7 +1382,16 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
     if used < 2:
         raise CellError("Isochron", None, "B", "Use (1/0)",
                         f"{system}: {used} row(s) selected; an isochron needs at least two")
-    fit = fit_isochron(x, sx, y, sy, r, treatment=treatment or "analytical")
+    try:
+        fit = fit_isochron(x, sx, y, sy, r, treatment=treatment or "analytical")
+    except InputError as exc:
+        if exc.argument == "treatment":
+            col = ISOCHRON_SUMMARY_COL + 1 + ISOCHRON_SYSTEMS.index(system) if system in ISOCHRON_SYSTEMS else None
+            raise CellError("Isochron", ISOCHRON_TREATMENT_ROW, None if col is None else col_letter(col),
+                            "Scatter treatment", f"{system}: {exc.problem}") from None
+        raise CellError("Isochron", None, "B", "Use (1/0)", f"{system}: the isochron fit failed: {exc}") from None
+    except RatioDeskError as exc:
+        raise CellError("Isochron", None, "B", "Use (1/0)", f"{system}: the isochron fit failed: {exc}") from None
     ref = _refset(constants)
     # one spike: its P/D calibration scales every x alike (a common factor, ages.isochron_age);
     # several spikes: independent factors per group, which one scale factor does not describe
@@ -1191,8 +1401,11 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
     elif len(scales) > 1:
         why = f"n/a: the rows use {len(scales)} spikes ({', '.join(sorted(scales))}); no common x scale"
     ks = next(iter(scales.values())) if len(scales) == 1 else 0.0
-    age = isochron_age(fit, sys_key, ref, x_scale_sigma_rel=ks)
-    eps = epsilon(age.initial, age.initial_sigma_1s, 0.0, age.age_ma, sys_key, ref)
+    try:
+        age = isochron_age(fit, sys_key, ref, x_scale_sigma_rel=ks)
+        eps = epsilon(age.initial, age.initial_sigma_1s, 0.0, age.age_ma, sys_key, ref)
+    except RatioDeskError as exc:
+        raise CellError("Isochron", None, "B", "Use (1/0)", f"{system}: no age from this fit: {exc}") from None
     return fit, age, eps, why
 
 
@@ -1217,8 +1430,13 @@ def isochron_value(quantity: str, system: Any, treatment: Any, selection: Any, r
     with that spike's parent/daughter concentration ratio (Results column ``x_spike_1s_pct``), a
     common factor passed as ``x_scale_sigma_rel``; with rows from several spikes it is text ("n/a").
     """
-    fit, age, eps, why = _isochron(str(system).strip(), str(treatment or "").strip().lower(), as_rows(selection),
-                              as_rows(results), as_rows(constants))
+    return _isochron_cell(quantity, _isochron(str(system).strip(), str(treatment or "").strip().lower(),
+                                              as_rows(selection), as_rows(results), as_rows(constants)))
+
+
+def _isochron_cell(quantity: str, outcome: Tuple[Any, Any, Any, str]) -> float | str:
+    """:func:`isochron_value` once the isochron is fitted."""
+    fit, age, eps, why = outcome
     q = quantity.strip().lower()
     t95 = fit.t95 if fit.t95 is not None else float("nan")
     table: Dict[str, Callable[[], Any]] = {
@@ -1388,6 +1606,33 @@ def isochron_summary_formula(quantity: str, system: str, treatment_cell: Ref) ->
                                        table_ref(RESULTS), table_ref(CONSTANTS)))
 
 
+#: The last row of a sheet in LibreOffice Calc (and in an .xlsx).
+SHEET_MAX_ROW = 1_048_576
+#: Where the template tells a Calc user that rows below a table's template rows are not reduced: the
+#: first Results row below its formula rows (where the next result would be looked for).
+CAPACITY_CELL = ("Results", RESULTS.last_row + 1, 0)
+
+
+def capacity_formula() -> Formula:
+    """The template's capacity check (a native formula, shown in :data:`CAPACITY_CELL`).
+
+    Empty while every filled cell of the input tables is within the template's rows; otherwise it names
+    each sheet with filled cells below them (their count, the last template row and the row capacity)
+    and how to proceed. The batch path reads every row and writes its own results there instead.
+    """
+    parts, counts = [], []
+    for sheet in (SAMPLES, MEASURED, SPIKES, STANDARDS, CONSTANTS):
+        below = Ref(sheet.name, 0, sheet.last_row + 1, sheet.input_width - 1, SHEET_MAX_ROW)
+        count = Formula("COUNTA", (below,), addin=False)
+        counts.append(count)
+        parts.append(Formula("IF", (count, Formula("CONCATENATE", (
+            f"{sheet.name}: ", count, f" filled cell(s) below row {sheet.last_row} (the template has "
+            f"{sheet.capacity} rows); "), addin=False), ""), addin=False))
+    message = Formula("CONCATENATE", (MARKER + "not reduced in Calc — ", *parts,
+                                      "ratiodesk reduce reads every row; or split the workbook"), addin=False)
+    return Formula("IF", (Formula("OR", tuple(counts), addin=False), message, ""), addin=False)
+
+
 def selection_rows() -> List[Tuple[str, int]]:
     """(system, sheet row) of every isochron selection row, in order."""
     return [(system, row) for system, (first, last) in ISOCHRON_BLOCK.items() for row in range(first, last + 1)]
@@ -1433,6 +1678,7 @@ def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
         tcell = Ref("Isochron", col, ISOCHRON_TREATMENT_ROW)
         for q_i, (q, _label, _unit) in enumerate(ISOCHRON_QUANTITIES):
             out[("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col)] = isochron_summary_formula(q, system, tcell)
+    out[CAPACITY_CELL] = capacity_formula()
     return out
 
 
@@ -1503,11 +1749,11 @@ def _ellipse(pt: Sequence[Cell], row: Optional[int] = None) -> List[Tuple[float,
             text = _cell_message(str(v)) if isinstance(v, str) and v.strip() else repr(v)
             err = FollowOnError if isinstance(v, str) and v.strip().startswith(MARKER.strip()) else CellError
             raise err("Isochron", row, col_letter(i), ISOCHRON.columns[i].header,
-                      f"ellipse of analysis {a!r} needs a number here, the cell shows: {text}")
+                      f"ellipse of analysis {shown(a)} needs a number here, the cell shows: {text}")
     try:
         xs, ys = ellipse_points(*vals, n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
     except InputError as exc:
-        raise CellError("Isochron", row, None, "", f"ellipse of analysis {a!r}: {exc}") from None
+        raise CellError("Isochron", row, None, "", f"ellipse of analysis {shown(a)}: {exc}") from None
     return [(float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist())]
 
 
@@ -1515,17 +1761,131 @@ def _raise(exc: Exception) -> Any:
     raise exc
 
 
-def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = True) -> Evaluation:
+#: Data rows per table sheet the batch path reads at most (bounds memory and time): a sheet with more
+#: filled rows is refused with a message (split the workbook), never read in part.
+MAX_DATA_ROWS = 20_000
+#: The last sheet row a reader keeps (data rows start at :data:`FIRST_ROW`).
+MAX_SHEET_ROW = FIRST_ROW - 1 + MAX_DATA_ROWS
+
+
+def too_many_rows(sheet: str, filled: int, first_beyond: int, more: str = "") -> CellError:
+    """The message for a sheet with more filled data rows than :data:`MAX_DATA_ROWS`."""
+    return CellError(sheet, first_beyond, None, "",
+                     f"the sheet has {filled:,} filled data rows{more}, more than the {MAX_DATA_ROWS:,} per sheet "
+                     f"ratiodesk reduce reads (rows {FIRST_ROW}-{MAX_SHEET_ROW:,}); nothing was read in part: split "
+                     f"the workbook into several of at most {MAX_DATA_ROWS:,} rows per sheet")
+
+
+def last_filled_row(grid: Mapping[str, Sequence[Sequence[Cell]]], sheet: Sheet) -> int:
+    """The last sheet row with a filled cell in the input columns of a table sheet (0: none)."""
+    g = grid.get(sheet.name, ())
+    width = sheet.input_width
+    for r in range(len(g), FIRST_ROW - 1, -1):
+        row = g[r - 1]
+        if any(not blank(v) for v in row[:width]):
+            return r
+    return 0
+
+
+def table_extent(grid: Mapping[str, Sequence[Sequence[Cell]]], sheet: Sheet) -> int:
+    """The last sheet row of a table as the batch path reads it: the template's rows, or further down
+    to the last filled row (every filled row is reduced, :data:`MAX_DATA_ROWS` at most)."""
+    last = last_filled_row(grid, sheet)
+    if last > MAX_SHEET_ROW:
+        g = grid.get(sheet.name, ())
+        filled = sum(1 for r in g[FIRST_ROW - 1:] if any(not blank(v) for v in r[:sheet.input_width]))
+        raise too_many_rows(sheet.name, filled, MAX_SHEET_ROW + 1)
+    return max(sheet.last_row, last)
+
+
+def _beyond_template(grid: Mapping[str, Sequence[Sequence[Cell]]], sheet: Sheet) -> Optional[CellError]:
+    """The first filled row below a table's template rows, as a message (None when there is none)."""
+    g = grid.get(sheet.name, ())
+    rows = [r for r in range(sheet.last_row + 1, len(g) + 1)
+            if any(not blank(v) for v in g[r - 1][:sheet.input_width])]
+    if not rows:
+        return None
+    return CellError(sheet.name, rows[0], None, "",
+                     f"{len(rows)} filled row(s) below row {sheet.last_row}, outside the template's "
+                     f"{sheet.capacity} rows: LibreOffice Calc does not reduce them (ratiodesk reduce reduces "
+                     f"every row); or split the workbook")
+
+
+EXTENTS = ("data", "template")
+
+
+class BookTables:
+    """The input tables of a grid, each read once with indexed look-ups (the batch path).
+
+    ``rows`` holds each table key row first, to its extent (:func:`table_extent`, or the template's
+    rows with ``extent="template"``); the session standards are computed once per session and ratio.
+    """
+
+    def __init__(self, grid: Mapping[str, Sequence[Sequence[Cell]]], extent: str = "data") -> None:
+        sheets = [SHEET_BY_NAME[n] for n in ("Samples", "Measured", "Spikes", "Standards", "Constants")]
+        self.last = {sh.name: table_extent(grid, sh) if extent == "data" else sh.last_row for sh in sheets}
+        self.rows: Dict[str, Rows] = {sh.name: sheet_block(grid, sh.name, KEY_ROW, 0, self.last[sh.name],
+                                                           sh.input_width - 1) for sh in sheets}
+        self.samples = Table.from_range(SAMPLES, self.rows["Samples"])
+        self.measured = Table.from_range(MEASURED, self.rows["Measured"])
+        self.spikes = Table.from_range(SPIKES, self.rows["Spikes"])
+        self.standards = Table.from_range(STANDARDS, self.rows["Standards"])
+        self._sessions: Dict[Tuple[str, str], Any] = {}
+
+    def session_standards(self, ses: str, rat: str) -> SessionStandards:
+        """:func:`_session_standards` of one session and ratio (its problem, if any, raised each time)."""
+        key = (ses, rat)
+        if key not in self._sessions:
+            try:
+                self._sessions[key] = _session_standards(self.rows["Standards"], self.rows["Constants"], ses, rat)
+            except CellError as exc:
+                self._sessions[key] = exc
+        got = self._sessions[key]
+        if isinstance(got, CellError):
+            raise got
+        return got
+
+    def standard(self, session: str, ratio: str, where: Callable[[str], CellError]) -> Any:
+        """The session factor, as :func:`_standard` gives it."""
+        if not self.standards.find(session=session, ratio=ratio):
+            raise where(f"no {ratio} reference-material runs for session {shown(session)} on the Standards sheet")
+        return self.session_standards(session, ratio).factor
+
+    def analysis(self, analysis: str, mc_draws: int = 0) -> AnalysisOutcome:
+        """:func:`_analysis` of one analysis ID (optionally with a seeded Monte Carlo)."""
+        return _analysis_of(analysis, self.samples, self.measured, self.spikes, self.standard,
+                            self.rows["Constants"], mc_draws)
+
+
+def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = True,
+             extent: str = "data") -> Evaluation:
     """Compute every computed cell from the input cells of ``grid`` (sheet -> rows of values).
 
-    ``grid`` holds the typed inputs; computed cells already in it are ignored. The order is the
-    grid's dependency order: Results, then the Isochron points, then the Isochron summaries.
-    With ``strict`` the first problem raises :class:`CellError`; otherwise problems are collected
-    and the cell holds the message, as it would in LibreOffice.
+    Parameters
+    ----------
+    grid : mapping of sheet name to rows of cell values
+        The typed inputs; computed cells already in it are ignored. The order is the grid's
+        dependency order: Standards, Results, then the Isochron points, then the Isochron summaries.
+    strict : bool
+        The first problem raises :class:`CellError`; otherwise problems are collected and the
+        cell holds the message, as it would in LibreOffice.
+    extent : {"data", "template"}
+        ``"data"`` (the batch path) reads every filled row of a table, below the template's rows too
+        (:data:`MAX_DATA_ROWS` per sheet at most), and writes a Results row for each Samples row.
+        ``"template"`` evaluates what LibreOffice Calc evaluates (the template's rows) and reports the
+        first filled row below them on each sheet as a problem, so no row goes unreduced unnoticed.
+
+    Returns
+    -------
+    Evaluation
+        Every computed cell's value, the problems and the warnings.
     """
+    if extent not in EXTENTS:
+        raise InputError("extent", f"must be one of {', '.join(EXTENTS)}, got {extent!r}")
     work: Dict[str, List[List[Cell]]] = {s: [list(r) for r in rows] for s, rows in grid.items()}
     cells: Dict[Tuple[str, int, int], Any] = {}
     errors: List[CellError] = []
+    listed: set = set()
     warnings: List[str] = []
 
     def put(sheet: str, row: int, col: int, v: Any) -> None:
@@ -1544,52 +1904,94 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         except CellError as exc:
             if strict:
                 raise
-            if not isinstance(exc, FollowOnError) and str(exc) not in {str(e) for e in errors}:
+            if not isinstance(exc, FollowOnError) and str(exc) not in listed:
+                listed.add(str(exc))
                 errors.append(exc)
             return MARKER + str(exc)
 
-    # clear computed cells first (a workbook from LibreOffice carries cached values)
+    if extent == "template":
+        for name in ("Samples", "Measured", "Spikes", "Standards", "Constants"):
+            beyond = _beyond_template(work, SHEET_BY_NAME[name])
+            if beyond is not None:
+                run(lambda beyond=beyond: _raise(beyond))
+    book = BookTables(work, extent)
+    last = book.last
+    res_last = max(RESULTS.last_row, last["Samples"])
+    # clear computed cells first (a workbook from LibreOffice carries cached values); every row of the
+    # Results sheet is computed, so rows below the template's are cleared too
+    del work.setdefault("Results", [])[KEY_ROW:]
     for (sheet, row, col) in expected_formulas():
         put(sheet, row, col, "")
-    ins = {name: _block(work, table_ref(SHEET_BY_NAME[name])) for name in
-           ("Samples", "Measured", "Spikes", "Standards", "Constants")}
-    std_t = Table.from_range(STANDARDS, ins["Standards"])
+    std_computed = [j for j, c in enumerate(STANDARDS.columns) if c.computed]
+    for row in range(STANDARDS.last_row + 1, min(last["Standards"], len(work.get("Standards", ()))) + 1):
+        line = work["Standards"][row - 1]
+        for j in std_computed:
+            if j < len(line):
+                line[j] = ""
+    # Standards: one primary per session and ratio (computed once per session, used by every row)
+    std_t = book.standards
+
+    def standard_cell(q: str, i: int) -> float | str:
+        session = std_t.get(i, "session")
+        ses = str(session).strip() if not isinstance(session, float) else f"{session:g}"
+        if not ses:
+            return ""
+        mat, rat = str(std_t.get(i, "material")).strip(), str(std_t.get(i, "ratio")).strip()
+        return _standard_cell(q, book.session_standards(ses, rat), ses, mat, std_t.get(i, "measured"))
+
+    _check_standard_runs(std_t, run)
     for i in range(len(std_t.rows)):
         if not std_t.filled(i):
             continue
         row = FIRST_ROW + i
-        for j, c in enumerate(STANDARDS.columns):
-            if not c.computed:
-                continue
+        for j in std_computed:
+            c = STANDARDS.columns[j]
             if std_t.get(i, "session") == "":
                 v: Any = run(lambda i=i: _raise(std_t.error(i, "session", "is empty but the row has data")))
+            elif isinstance(std_t.get(i, "session"), FormulaCell):
+                v = run(lambda i=i: std_t.text(i, "session"))
             else:
-                v = run(lambda c=c, i=i: standard_value(
-                    c.quantity, std_t.get(i, "session"), std_t.get(i, "material"), std_t.get(i, "ratio"),
-                    std_t.get(i, "measured"), ins["Standards"], ins["Constants"]))
+                v = run(lambda c=c, i=i: standard_cell(c.quantity, i))
             put("Standards", row, j, v)
-    samples = Table.from_range(SAMPLES, ins["Samples"])
+
+    # Samples -> Results: each analysis reduced once, every Results column read from that
+    samples = book.samples
     for i in range(len(samples.rows)):
         row = FIRST_ROW + i
         if not samples.filled(i):
             continue
         analysis = samples.get(i, "analysis")
+        outcome: Any = None
+        if analysis == "":
+            outcome = run(lambda i=i: _raise(samples.error(i, "analysis", "is empty but the row has data")))
+        elif isinstance(analysis, FormulaCell):
+            outcome = run(lambda i=i: samples.text(i, "analysis"))
+        else:
+            a = str(analysis).strip() if not isinstance(analysis, float) else f"{analysis:g}"
+            if a:
+                outcome = run(lambda a=a: book.analysis(a))
         for j, c in enumerate(RESULTS.columns):
             if c.quantity in COPIED_FROM_SAMPLES:
-                put("Results", row, j, samples.get(i, c.quantity))
+                v = samples.get(i, c.quantity)
+                if isinstance(v, FormulaCell):
+                    v = run(lambda i=i, c=c: samples.text(i, c.quantity))
+                put("Results", row, j, v)
                 continue
-            if analysis == "":
-                v = run(lambda i=i: _raise(samples.error(i, "analysis", "is empty but the row has data")))
+            if outcome is None:
+                v = ""
+            elif isinstance(outcome, str):
+                v = outcome
             else:
-                v = run(lambda c=c, a=analysis: analysis_value(c.quantity, a, ins["Samples"], ins["Measured"],
-                                                              ins["Spikes"], ins["Standards"], ins["Constants"]))
+                v = run(lambda c=c, o=outcome: _analysis_cell(c.quantity, o))
             put("Results", row, j, v)
             if c.quantity == "check" and isinstance(v, str) and v.startswith(MARKER) and "poor" in v:
                 warnings.append(f"Results!{col_letter(j)}{row}: {v[len(MARKER):]}")
-    results = _block(work, table_ref(RESULTS))
+    results = sheet_block(work, "Results", KEY_ROW, 0, res_last, len(RESULTS.columns) - 1)
     res_t = Table.from_range(RESULTS, results)
-    for first, last in ISOCHRON_BLOCK.values():
-        for row in range(first, last + 1):
+    if extent == "data":
+        _check_isochron_extent(work, run)
+    for first, last_sel in ISOCHRON_BLOCK.values():
+        for row in range(first, last_sel + 1):
             a = sheet_block(work, "Isochron", row, 0, row, 0)[0][0]
             for j, c in enumerate(ISOCHRON.columns):
                 if not c.computed:
@@ -1607,7 +2009,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         for i in range(ELLIPSE_POINTS + 1):
             for j in (0, 1):
                 if not isinstance(vals, str):
-                    v: Any = vals[i][j]
+                    v = vals[i][j]
                 elif vals == "" or (i == 0 and j == 0):
                     v = vals                  # "" fills the whole range; a message shows in the first cell
                 else:
@@ -1619,10 +2021,52 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         sel = _block(work, isochron_selection_ref(system))
         if not any(r[0] != "" for r in sel[1:]):
             continue
+        if isinstance(treat, SpecialCell):
+            fit: Any = run(lambda t=treat, col=col: _raise(CellError(
+                "Isochron", ISOCHRON_TREATMENT_ROW, col_letter(col), "Scatter treatment", t.problem())))
+        else:
+            fit = run(lambda s=system, t=treat, sel=sel: _isochron(
+                str(s).strip(), str(t or "").strip().lower(), sel, results, book.rows["Constants"]))
         for q_i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES):
-            v = run(lambda q=q, s=system, t=treat, sel=sel: isochron_value(q, s, t, sel, results, ins["Constants"]))
+            v = fit if isinstance(fit, str) else run(lambda q=q, fit=fit: _isochron_cell(q, fit))
             put("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col, v)
     return Evaluation(cells, tuple(errors), tuple(warnings))
+
+
+def _check_standard_runs(std_t: Table, run: Callable[[Callable[[], Any]], Any]) -> None:
+    """A run label given twice for one material, ratio and session is a problem at its second row
+    (the same run would count twice in the session factor or a check's mean)."""
+    seen: Dict[Tuple[str, ...], int] = {}
+    for i in range(len(std_t.rows)):
+        label = std_t.get(i, "run")
+        if not std_t.filled(i) or label == "" or isinstance(label, SpecialCell):
+            continue
+        key = tuple(_norm(std_t.get(i, k)) for k in ("session", "material", "ratio")) + (_norm(label),)
+        if key in seen:
+            run(lambda i=i, first=seen[key], label=label: _raise(std_t.error(
+                i, "run", f"run {shown(label)} of {shown(std_t.get(i, 'material'))} is listed twice in session "
+                          f"{shown(std_t.get(i, 'session'))} (first on row {first}): list each run once")))
+        else:
+            seen[key] = std_t.first_row + i
+
+
+def _check_isochron_extent(work: Mapping[str, Sequence[Sequence[Cell]]],
+                           run: Callable[[Callable[[], Any]], Any]) -> None:
+    """Analysis IDs or Use flags typed below the last selection block are reported, never ignored."""
+    g = work.get("Isochron", ())
+    bottom = max(last for _first, last in ISOCHRON_BLOCK.values())
+    blocks = ", ".join(f"{s} rows {a}-{b}" for s, (a, b) in ISOCHRON_BLOCK.items())
+    per = min(b - a + 1 for a, b in ISOCHRON_BLOCK.values())
+    for r in range(bottom + 1, len(g) + 1):
+        line = g[r - 1]
+        for j in (0, 1):
+            if j < len(line) and line[j] != "":
+                c = ISOCHRON.columns[j]
+                run(lambda r=r, j=j, c=c, v=line[j]: _raise(CellError(
+                    "Isochron", r, col_letter(j), c.header,
+                    f"{shown(v)} is below the selection blocks ({blocks}): the Isochron sheet selects "
+                    f"{per} analyses per system; move it into its system's block")))
+                return
 
 
 # --------------------------------------------------------------------------------------------
@@ -1666,7 +2110,7 @@ def _table_layout(sheet: Sheet, rows: Sequence[Mapping[str, Any]], out: Dict[Tup
     for j, c in enumerate(sheet.columns):
         out[(HEADER_ROW, j)] = CellSpec(c.header, style="header")
         out[(KEY_ROW, j)] = CellSpec(c.key, style="key")
-    for i in range(sheet.capacity):
+    for i in range(max(sheet.capacity, len(rows))):     # every row given: none is dropped
         row = FIRST_ROW + i
         data = rows[i] if i < len(rows) else {}
         for j, c in enumerate(sheet.columns):
@@ -1815,8 +2259,7 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
                     cell.value = text
                 cached.setdefault(name, {})[f"{col_letter(c)}{r}"] = spec.value
             else:
-                v = spec.value
-                cell.value = None if v == "" else v
+                _xlsx_value(cell, spec.value, name)
             if spec.style in fonts:
                 cell.font = fonts[spec.style]
             if spec.style in _FILL:
@@ -1836,8 +2279,9 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
             _xlsx_charts(ws)
     for name, rows in (extra_sheets or {}).items():
         ws = wb.create_sheet(name)
-        for r in rows:
-            ws.append(list(r))
+        for i, r in enumerate(rows, start=1):
+            for j, v in enumerate(r, start=1):
+                _xlsx_value(ws.cell(row=i, column=j), v, name)
         ws.column_dimensions["A"].width = 32
         ws.column_dimensions["B"].width = 60
         for cell in ws[1]:
@@ -1845,6 +2289,62 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
     wb.save(path)
     if cached and not values_only:
         _xlsx_add_cached_values(path, wb.sheetnames, cached)
+
+
+#: Characters XML 1.0 cannot carry (an .xlsx or .ods cell cannot hold them).
+_XML_ILLEGAL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
+#: The longest text an .xlsx cell holds (Excel's limit; openpyxl would cut a longer one).
+XLSX_MAX_TEXT = 32767
+
+
+def check_text(v: str, sheet: str, where: str, limit: Optional[int] = None) -> str:
+    """A text to write into a cell, as plain ``str``; refused (never altered) when a file cannot hold it.
+
+    Raises :class:`InputError` naming the sheet and cell for characters XML cannot carry or, with
+    ``limit``, a text longer than a cell holds.
+    """
+    text = str.__str__(v)
+    bad = _XML_ILLEGAL.search(text)
+    if bad:
+        raise InputError(f"{sheet}!{where}", f"the text {shown(text)} holds the control character "
+                         f"U+{ord(bad.group()):04X}, which a spreadsheet file cannot store: remove it")
+    if limit is not None and len(text) > limit:
+        raise InputError(f"{sheet}!{where}", f"the text {shown(text)} has {len(text):,} characters; a cell of "
+                         f"this file format holds at most {limit:,}: shorten it")
+    return text
+
+
+_XSTRING_ESCAPE = re.compile(r"_x[0-9A-Fa-f]{4}_|\r")
+_XSTRING_CODE = re.compile(r"_x([0-9A-Fa-f]{4})_")
+
+
+def xlsx_escape(text: str) -> str:
+    """A text as an .xlsx string stores it (ECMA-376 part 1, simple type ST_Xstring): a carriage return
+    (which XML would turn into a line feed) as ``_x000D_``, a literal ``_xHHHH_`` with its ``_``
+    escaped as ``_x005F_``, so :func:`xlsx_unescape` gives back the very text."""
+    return _XSTRING_ESCAPE.sub(lambda m: "_x000D_" if m.group() == "\r" else "_x005F_" + m.group()[1:], text)
+
+
+def xlsx_unescape(text: str) -> str:
+    """The text an .xlsx string stands for (``_x000D_`` → carriage return, ``_x005F_`` → ``_``), as a
+    spreadsheet program shows it (ST_Xstring, ECMA-376 part 1)."""
+    if "_x" not in text:
+        return text
+    return _XSTRING_CODE.sub(lambda m: chr(int(m.group(1), 16)), text)
+
+
+def _xlsx_value(cell: Any, v: Any, sheet: str) -> None:
+    """Write one value: text is always stored as text (``t="inlineStr"``), never as a formula or an error
+    code, whatever it starts with (``=``, ``+``, ``-``, ``@``, ``#N/A``)."""
+    if v is None or (isinstance(v, str) and v == ""):
+        cell.value = None
+    elif isinstance(v, LogicalCell):
+        cell.value = str.__str__(v) == "TRUE"
+    elif isinstance(v, str):
+        cell.value = xlsx_escape(check_text(v, sheet, cell.coordinate, XLSX_MAX_TEXT))
+        cell.data_type = "s"
+    else:
+        cell.value = v
 
 
 def _xlsx_charts(ws: Any) -> None:
@@ -1922,30 +2422,142 @@ class WorkbookData:
     path: str
 
 
+def _reads(sheet: str) -> str:
+    """How a reader treats a sheet: ``"table"`` (inputs, row limit) or ``"computed"`` (Results, whose
+    cells are all recomputed, and sheets RatioDesk does not reduce, e.g. a Provenance sheet: read up
+    to the row limit, rows below it are not needed)."""
+    return "table" if sheet in SHEET_BY_NAME and sheet != "Results" else "computed"
+
+
+class _GridBuilder:
+    """Rows of one sheet as a reader finds them: empty rows are held back until a filled row follows (a
+    sheet formatted to its last row costs nothing), and rows beyond :data:`MAX_SHEET_ROW` stop the
+    reading with :func:`too_many_rows` (a table sheet) or end it (the recomputed Results sheet)."""
+
+    def __init__(self, sheet: str, used_to: int = 0) -> None:
+        self.sheet, self.mode, self.used_to = sheet, _reads(sheet), used_to
+        self.rows: List[List[Cell]] = []
+        self.pending = 0          # empty rows not yet appended
+        self.filled = 0           # filled data rows so far
+        self.done = self.mode == "skip"
+
+    @property
+    def next_row(self) -> int:
+        return len(self.rows) + self.pending + 1
+
+    def add(self, cells: List[Cell], repeat: int = 1) -> None:
+        """Rows (``repeat`` copies of ``cells``, trailing empty cells already removed)."""
+        if self.done:
+            return
+        if not cells:
+            self.pending += repeat
+            return
+        first = self.next_row
+        if first + repeat - 1 > MAX_SHEET_ROW:
+            if self.mode == "computed":
+                self.done = True
+                return
+            beyond = max(first, MAX_SHEET_ROW + 1)
+            filled = self.filled + repeat - max(FIRST_ROW - first, 0)
+            more = f" or more (the sheet's used range ends at row {self.used_to:,})" if self.used_to > beyond else \
+                " or more"
+            raise too_many_rows(self.sheet, filled, beyond, more)
+        self.rows.extend([] for _ in range(self.pending))
+        self.pending = 0
+        self.rows.extend(list(cells) for _ in range(repeat))
+        self.filled += max(0, first + repeat - max(first, FIRST_ROW))
+
+
+def _xlsx_cell(cell: Any, formulas: Dict[Tuple[str, int, int], str], sheet: str, r: int, c: int) -> Cell:
+    """One openpyxl cell: a formula (``data_type == "f"``) becomes a :class:`FormulaCell` and its text is
+    kept for :func:`formula_drift`; a text cell is text whatever it starts with (``=``, ``+``, ``@`` …);
+    a logical cell stays logical."""
+    v = cell.value
+    if getattr(cell, "data_type", None) == "f":
+        text = str(v.text) if hasattr(v, "text") else str(v)   # an array formula carries its text
+        if not text.startswith("="):
+            text = "=" + text
+        formulas[(sheet, r, c)] = text
+        return formula_cell(text)
+    if isinstance(v, str):
+        return xlsx_unescape(v)
+    return _clean(v)
+
+
 def read_xlsx(path: Any) -> WorkbookData:
-    """Read a RatioDesk .xlsx (openpyxl): input values and formula text."""
+    """Read a RatioDesk .xlsx (openpyxl, read-only): input values, logical cells and formula text.
+
+    Every row is read (the sheet's stored dimension is not trusted, so no row or column beyond it is
+    lost); a table sheet with more than :data:`MAX_DATA_ROWS` filled data rows is refused.
+    """
+    import warnings
+
     from openpyxl import load_workbook
 
+    with warnings.catch_warnings():
+        # openpyxl warns about workbook features it does not keep (validation, extensions): values are read
+        warnings.simplefilter("ignore")
+        data = _read_xlsx(path, load_workbook)
+        _xlsx_cached_values(path, data, load_workbook)
+    return data
+
+
+def _read_xlsx(path: Any, load_workbook: Callable[..., Any]) -> WorkbookData:
     wb = load_workbook(path, data_only=False, read_only=True)
     grid: Dict[str, List[List[Cell]]] = {}
     formulas: Dict[Tuple[str, int, int], str] = {}
-    for ws in wb.worksheets:
-        g: List[List[Cell]] = []
-        for r, row in enumerate(ws.iter_rows(values_only=True), start=1):
-            out = []
-            for c, v in enumerate(row):
-                if hasattr(v, "ref") and hasattr(v, "text"):      # an array formula
-                    formulas[(ws.title, r, c)] = str(v.text)
-                    out.append("")
-                elif isinstance(v, str) and v.startswith("="):
-                    formulas[(ws.title, r, c)] = v
-                    out.append("")
-                else:
-                    out.append(_clean(v))
-            g.append(out)
-        grid[ws.title] = g
-    wb.close()
+    try:
+        for ws in wb.worksheets:
+            try:
+                used_to = int(ws.max_row or 0)
+            except (TypeError, ValueError):
+                used_to = 0
+            b = _GridBuilder(ws.title, used_to)
+            if not b.done and hasattr(ws, "reset_dimensions"):
+                ws.reset_dimensions()
+            for r, row in enumerate(() if b.done else ws.iter_rows(min_row=1), start=1):
+                out = [_xlsx_cell(cell, formulas, ws.title, r, c) for c, cell in enumerate(row)]
+                while out and out[-1] == "":
+                    out.pop()
+                b.add(out)
+                if b.done:
+                    break
+            grid[ws.title] = b.rows
+    finally:
+        wb.close()
     return WorkbookData(grid, formulas, str(path))
+
+
+def _xlsx_cached_values(path: Any, data: WorkbookData, load_workbook: Callable[..., Any]) -> None:
+    """The stored values of formulas typed into input cells (a second, values-only pass over the sheets
+    that have any; the template's own formula cells need none), so that a formula showing nothing leaves
+    its row empty (:func:`blank`)."""
+    template = set(expected_formulas())
+    where: Dict[str, List[Tuple[int, int]]] = {}
+    for (sheet, r, c) in data.formulas:
+        if (sheet, r, c) not in template and _reads(sheet) == "table" and not (sheet == "Isochron" and
+                                                                                c >= ELLIPSE_COL0):
+            where.setdefault(sheet, []).append((r, c))
+    if not where:
+        return
+    wb = load_workbook(path, data_only=True, read_only=True)
+    try:
+        for sheet, cells in where.items():
+            ws = wb[sheet]
+            ws.reset_dimensions()
+            want = set(cells)
+            last = max(r for r, _c in cells)
+            for r, row in enumerate(ws.iter_rows(min_row=1, max_row=last), start=1):
+                for c, cell in enumerate(row):
+                    if (r, c) in want:
+                        v = cell.value
+                        if v is None:
+                            cached: Any = "" if getattr(cell, "data_type", None) == "str" else None
+                        else:
+                            cached = xlsx_unescape(v) if isinstance(v, str) else _clean(v)
+                        data.grid[sheet][r - 1][c].cached = cached
+    finally:
+        wb.close()
 
 
 # --------------------------------------------------------------------------------------------
@@ -1954,11 +2566,29 @@ def read_xlsx(path: Any) -> WorkbookData:
 _NS = {"office": "urn:oasis:names:tc:opendocument:xmlns:office:1.0",
        "table": "urn:oasis:names:tc:opendocument:xmlns:table:1.0",
        "text": "urn:oasis:names:tc:opendocument:xmlns:text:1.0"}
-_MAX_REPEAT = 2000   # LibreOffice writes "rest of the sheet" as one huge repeated row/column
+#: Columns of a sheet the .ods reader keeps (every table of the template ends far left of it).
+MAX_COLUMNS = 1024
 
 
 def _q(prefix: str, tag: str) -> str:
     return "{" + _NS[prefix] + "}" + tag
+
+
+def _ods_text(p: Any) -> str:
+    """The text of one ``text:p`` as typed: ``text:s`` (spaces), ``text:tab``, ``text:line-break`` and
+    the text of spans and links (ODF 1.2 part 1, paragraph content)."""
+    out = [p.text or ""]
+    for child in p:
+        if child.tag == _q("text", "s"):
+            out.append(" " * int(child.get(_q("text", "c"), "1") or "1"))
+        elif child.tag == _q("text", "tab"):
+            out.append("\t")
+        elif child.tag == _q("text", "line-break"):
+            out.append("\n")
+        else:
+            out.append(_ods_text(child))
+        out.append(child.tail or "")
+    return "".join(out)
 
 
 def _ods_cell_value(el: Any) -> Cell:
@@ -1966,66 +2596,170 @@ def _ods_cell_value(el: Any) -> Cell:
     if vt in ("float", "percentage", "currency"):
         return float(el.get(_q("office", "value")))
     if vt == "boolean":
-        return 1.0 if el.get(_q("office", "boolean-value")) == "true" else 0.0
+        return logical(el.get(_q("office", "boolean-value")) == "true")
     if vt == "date":
         return str(el.get(_q("office", "date-value")))[:10]
     if vt == "time":
         return str(el.get(_q("office", "time-value")))
     if vt == "string" and el.get(_q("office", "string-value")) is not None:
         return str(el.get(_q("office", "string-value")))
-    parts = []
-    for p in el.iter(_q("text", "p")):
-        parts.append("".join(p.itertext()))
+    parts = [_ods_text(p) for p in el if p.tag == _q("text", "p")]
     return "\n".join(parts) if vt is not None or parts else ""
 
 
+def _repeat(el: Any, attr: str) -> int:
+    raw = el.get(_q("table", attr), "1")
+    try:
+        n = int(raw)
+    except ValueError:
+        raise ValueError(f"table:{attr}={raw!r} is not a whole number") from None
+    if n < 1:
+        raise ValueError(f"table:{attr}={raw!r} is not a count")
+    return n
+
+
 def read_ods(path: Any) -> WorkbookData:
-    """Read a RatioDesk .ods: input values and formula text (``of:=...``)."""
+    """Read a RatioDesk .ods: input values, logical cells and formula text (``of:=...``).
+
+    ``content.xml`` is parsed as a stream, row by row, so a sheet with a million rows neither fills
+    the memory nor is cut at some count: repeated rows (``table:number-rows-repeated``) are counted,
+    and a table sheet with more than :data:`MAX_DATA_ROWS` filled data rows is refused.
+    """
     import xml.etree.ElementTree as ET
     import zipfile
 
-    with zipfile.ZipFile(path) as z:
-        root = ET.fromstring(z.read("content.xml"))
     grid: Dict[str, List[List[Cell]]] = {}
     formulas: Dict[Tuple[str, int, int], str] = {}
-    for tab in root.iter(_q("table", "table")):
-        name = tab.get(_q("table", "name"))
-        g: List[List[Cell]] = []
-        rows = [e for e in tab.iter(_q("table", "table-row"))]
-        for row in rows:
-            rrep = min(int(row.get(_q("table", "number-rows-repeated"), "1")), _MAX_REPEAT)
-            cells: List[Cell] = []
-            for cell in row:
-                if cell.tag not in (_q("table", "table-cell"), _q("table", "covered-table-cell")):
-                    continue
-                crep = min(int(cell.get(_q("table", "number-columns-repeated"), "1")), _MAX_REPEAT)
-                f = cell.get(_q("table", "formula"))
-                v = _ods_cell_value(cell)
-                for _ in range(crep):
-                    if f is not None:
-                        formulas[(name, len(g) + 1, len(cells))] = f
-                        cells.append("")
-                    else:
-                        cells.append(v)
-            while cells and cells[-1] == "":
-                cells.pop()
-            for _ in range(rrep):
-                g.append(list(cells))
-        while g and not g[-1]:
-            g.pop()
-        grid[name] = g
+    t_table, t_row = _q("table", "table"), _q("table", "table-row")
+    t_cells = (_q("table", "table-cell"), _q("table", "covered-table-cell"))
+    t_formula = _q("table", "formula")
+    with zipfile.ZipFile(path) as z, z.open("content.xml") as f:
+        stack: List[Any] = []
+        builders: List[_GridBuilder] = []
+        for event, el in ET.iterparse(f, events=("start", "end")):
+            if event == "start":
+                stack.append(el)
+                if el.tag == t_table:
+                    builders.append(_GridBuilder(str(el.get(_q("table", "name")))))
+                continue
+            stack.pop()
+            if el.tag == t_row and builders:
+                b = builders[-1]
+                if not b.done:
+                    r = b.next_row
+                    cells: List[Cell] = []
+                    gap = 0
+                    for cell in el:
+                        if cell.tag not in t_cells:
+                            continue
+                        crep = _repeat(cell, "number-columns-repeated")
+                        f_text = cell.get(t_formula)
+                        v: Cell = _ods_cell_value(cell)
+                        if f_text is not None:
+                            v = formula_cell(f_text, v)
+                        if v == "":
+                            gap += crep
+                            continue
+                        if len(cells) + gap >= MAX_COLUMNS:
+                            continue
+                        cells.extend([""] * gap)
+                        gap = 0
+                        for _ in range(min(crep, MAX_COLUMNS - len(cells))):
+                            if f_text is not None:
+                                formulas[(b.sheet, r, len(cells))] = f_text
+                            cells.append(v)
+                    b.add(cells, _repeat(el, "number-rows-repeated"))
+                if stack:
+                    stack[-1].remove(el)      # rows are done with: keep the memory of one row
+            elif el.tag == t_table and builders:
+                b = builders.pop()
+                grid[b.sheet] = b.rows
+                if stack:
+                    stack[-1].remove(el)
     return WorkbookData(grid, formulas, str(path))
 
 
+#: The first bytes of an OLE compound file (Office 97-2003 documents and encrypted Office files).
+_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
+_ODS_MIME = "application/vnd.oasis.opendocument.spreadsheet"
+
+
+def _sniff(path: str, kind: str) -> None:
+    """Refuse, with a readable reason, a file that is not a workbook of its extension's kind."""
+    import zipfile
+
+    size = os.path.getsize(path)
+    if size == 0:
+        raise WorkbookFileError(path, "the file is empty (0 bytes): it is not a workbook")
+    with open(path, "rb") as fh:
+        head = fh.read(4096)
+    if head.startswith(_OLE_MAGIC):
+        with open(path, "rb") as fh:
+            data = fh.read(min(size, 64 * 1024 * 1024))
+        if "EncryptionInfo".encode("utf-16-le") in data or "EncryptedPackage".encode("utf-16-le") in data:
+            raise WorkbookFileError(path, "the workbook is password-protected (encrypted): save a copy without "
+                                          "a password (File ▸ Save As, no password) and reduce that copy")
+        raise WorkbookFileError(path, "the file is an Office 97-2003 document (OLE compound file, e.g. an .xls), "
+                                      f"not an .{kind}: open it and save it as .xlsx or .ods")
+    if not head.startswith(b"PK"):
+        looks_text = all(b >= 32 or b in (9, 10, 13) for b in head[:512])
+        what = ("a text file (a CSV or similar renamed?)" if looks_text else "not a zip archive (random or "
+                "unknown bytes)")
+        raise WorkbookFileError(path, f"the file is {what}, not an .{kind} workbook: an .xlsx or .ods is a zip "
+                                      "archive; open the data in a spreadsheet program and save it as .xlsx or .ods")
+    try:
+        with zipfile.ZipFile(path) as z:
+            names = set(z.namelist())
+            mime = z.read("mimetype").decode("ascii", "replace").strip() if "mimetype" in names else ""
+    except zipfile.BadZipFile as exc:
+        raise WorkbookFileError(path, f"the file is damaged: its zip archive is incomplete or corrupt ({exc}); "
+                                      "was it copied or downloaded completely?") from None
+    if kind == "xlsx" and "xl/workbook.xml" not in names:
+        other = " (it is an .ods spreadsheet: name it .ods)" if mime == _ODS_MIME else ""
+        raise WorkbookFileError(path, f"the zip archive is not an .xlsx workbook (no xl/workbook.xml){other}")
+    if kind == "ods":
+        if "xl/workbook.xml" in names:
+            raise WorkbookFileError(path, "the file is an .xlsx workbook named .ods: name it .xlsx")
+        if mime and mime != _ODS_MIME:
+            raise WorkbookFileError(path, f"the file is an OpenDocument {mime.rsplit('.', 1)[-1]} document, "
+                                          "not a spreadsheet")
+        if "content.xml" not in names:
+            raise WorkbookFileError(path, "the zip archive is not an .ods spreadsheet (no content.xml)")
+
+
 def read_workbook(path: Any) -> WorkbookData:
-    """Read a RatioDesk workbook, .xlsx or .ods, by its extension."""
+    """Read a RatioDesk workbook, .xlsx or .ods, by its extension.
+
+    Raises
+    ------
+    WorkbookFileError
+        The file is empty, damaged, encrypted, of another format (an .xls, a CSV renamed .xlsx, an
+        .ods without content) or cannot be parsed; one readable line, the file is only read.
+    CellError
+        A sheet has more than :data:`MAX_DATA_ROWS` filled data rows.
+    OSError
+        The file cannot be opened (missing, no permission).
+    """
     p = str(path)
     low = p.lower()
-    if low.endswith(".xlsx"):
-        return read_xlsx(p)
-    if low.endswith(".ods"):
-        return read_ods(p)
-    raise InputError("workbook", f"must be a .xlsx or .ods file, got {p!r}")
+    if low.endswith(".xls") or low.endswith(".xlsm") or low.endswith(".xlsb"):
+        raise WorkbookFileError(p, f"an .{low.rsplit('.', 1)[-1]} workbook cannot be reduced: open it and save it "
+                                   "as .xlsx (or .ods)")
+    if not (low.endswith(".xlsx") or low.endswith(".ods")):
+        raise InputError("workbook", f"must be a .xlsx or .ods file, got {shown(p)}")
+    if os.path.isdir(p):
+        raise WorkbookFileError(p, "is a folder, not a workbook file")
+    kind = "xlsx" if low.endswith(".xlsx") else "ods"
+    _sniff(p, kind)
+    try:
+        return read_xlsx(p) if kind == "xlsx" else read_ods(p)
+    except (RatioDeskError, OSError, KeyboardInterrupt):
+        raise
+    except Exception as exc:  # noqa: BLE001 - whatever a damaged file makes the parser raise: one readable line
+        detail = str(exc).strip().splitlines()[0][:200] if str(exc).strip() else ""
+        raise WorkbookFileError(p, f"the .{kind} file cannot be read ({type(exc).__name__}"
+                                   f"{': ' + detail if detail else ''}); is it damaged? Open and save it again "
+                                   "in a spreadsheet program") from None
 
 
 def check_sheets(data: WorkbookData) -> None:

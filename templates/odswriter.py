@@ -26,6 +26,8 @@ from reduction.workbook import (
     WIDTHS,
     CellSpec,
     Layout,
+    LogicalCell,
+    check_text,
     col_letter,
     ellipse_formulas,
     selection_rows,
@@ -111,7 +113,7 @@ def _display(v: Any) -> str:
     return str(v)
 
 
-def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only: bool) -> str:
+def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only: bool, where: str = "") -> str:
     if spec is None:
         return "<table:table-cell/>"
     attrs = [f'table:style-name="{styles.cell(spec.style, spec.number_format)}"']
@@ -121,8 +123,10 @@ def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only
             attrs.append(f'table:number-matrix-rows-spanned="{spec.array[0]}" '
                          f'table:number-matrix-columns-spanned="{spec.array[1]}"')
     v = spec.value
-    if isinstance(v, bool):
-        v = float(v)
+    if isinstance(v, (bool, LogicalCell)):       # a logical value stays logical (ODF 1.2: office:boolean-value)
+        truth = v if isinstance(v, bool) else str.__str__(v) == "TRUE"
+        attrs.append(f'office:value-type="boolean" office:boolean-value="{"true" if truth else "false"}"')
+        return f"<table:table-cell {' '.join(attrs)}><text:p>{'TRUE' if truth else 'FALSE'}</text:p></table:table-cell>"
     if isinstance(v, int):
         v = float(v)
     if isinstance(v, float) and math.isfinite(v):
@@ -132,10 +136,30 @@ def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only
         if spec.formula is not None and not values_only:
             attrs.append('office:value-type="string" office:string-value=""')
         return f"<table:table-cell {' '.join(attrs)}/>"
-    text = str(v)
+    text = check_text(v, sheet, where) if isinstance(v, str) else str(v)
     attrs.append('office:value-type="string"')
-    paras = "".join(f"<text:p>{escape(line)}</text:p>" for line in text.split("\n"))
-    return f"<table:table-cell {' '.join(attrs)}>{paras}</table:table-cell>"
+    return f"<table:table-cell {' '.join(attrs)}>{_paragraphs(text)}</table:table-cell>"
+
+
+_SPACES = re.compile(r" {2,}|^ | $")
+
+
+def _paragraphs(text: str) -> str:
+    """A cell's text as ``text:p`` elements that read back exactly, in LibreOffice and in
+    :func:`reduction.workbook.read_ods`: one paragraph per line, tabs as ``text:tab``, runs of spaces
+    (and a leading or trailing space) as ``text:s`` (ODF 1.2 part 1 collapses white space
+    otherwise), a carriage return as a character reference. Text is always cell *content*: never a
+    formula, whatever it starts with."""
+    out = []
+    for line in text.split("\n"):
+        parts = []
+        for k, piece in enumerate(line.split("\t")):
+            if k:
+                parts.append("<text:tab/>")
+            esc = escape(piece).replace("\r", "&#13;")
+            parts.append(_SPACES.sub(lambda m: f'<text:s text:c="{len(m.group())}"/>', esc))
+        out.append("<text:p>" + "".join(parts) + "</text:p>")
+    return "".join(out)
 
 
 CHART_NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
@@ -220,7 +244,7 @@ def _table_xml(name: str, cells: Mapping[Tuple[int, int], CellSpec], styles: _St
         out.append(f'<table:table-column table:style-name="{styles.column(widths.get(j, 12.0))}" '
                    f'table:default-cell-style-name="Default"/>')
     for r in range(1, n_rows + 1):
-        row = [_cell_xml(cells.get((r, c)), name, styles, values_only) for c in range(n_cols)]
+        row = [_cell_xml(cells.get((r, c)), name, styles, values_only, f"{col_letter(c)}{r}") for c in range(n_cols)]
         for (ar, ac), frame in anchored.items():
             if ar == r:
                 x = row[ac]
