@@ -47,6 +47,10 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "templates"))
 from odswriter import write_ods  # noqa: E402
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from grid_edit import row_of as _row_of  # noqa: E402
+from grid_edit import set_cell as _set  # noqa: E402
+
 Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
 AGE_SMND = ("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age"], ISOCHRON_SUMMARY_COL + 1)
 
@@ -55,21 +59,6 @@ AGE_SMND = ("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age"], ISOCHRON_SUMMARY_COL + 
 def demo_grid():
     lay = build_layout(demo.demo_tables(), constants=demo.demo_constants(), isochron_selection=demo.demo_selection())
     return layout_grid(lay)
-
-
-def _row_of(grid, sheet, analysis, element=None):
-    for r in range(FIRST_ROW, len(grid[sheet]) + 1):
-        row = grid[sheet][r - 1]
-        if row and row[0] == analysis and (element is None or row[1] == element):
-            return r
-    raise AssertionError(analysis)
-
-
-def _set(grid, sheet, row, col, v):
-    g = grid[sheet]
-    while len(g[row - 1]) <= col:
-        g[row - 1].append("")
-    g[row - 1][col] = v
 
 
 # ------------------------------------------------------------------ definition

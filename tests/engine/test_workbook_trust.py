@@ -5,6 +5,8 @@ Each bad input must give a message naming the sheet, row and column, and leave t
 from __future__ import annotations
 
 import copy
+import sys
+from pathlib import Path
 
 import pytest
 
@@ -26,6 +28,10 @@ from reduction.workbook import (
     layout_grid,
 )
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from grid_edit import row_of as _row  # noqa: E402
+from grid_edit import set_cell as _set  # noqa: E402
+
 Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
 
 
@@ -33,21 +39,6 @@ Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
 def grid():
     lay = build_layout(demo.demo_tables(), constants=demo.demo_constants(), isochron_selection=demo.demo_selection())
     return layout_grid(lay)
-
-
-def _set(g, sheet, row, col, v):
-    r = g[sheet][row - 1]
-    while len(r) <= col:
-        r.append("")
-    r[col] = v
-
-
-def _row(g, sheet, analysis, element=None):
-    for r in range(FIRST_ROW, len(g[sheet]) + 1):
-        row = g[sheet][r - 1]
-        if row and row[0] == analysis and (element is None or row[1] == element):
-            return r
-    raise AssertionError(analysis)
 
 
 def _eval(g):
