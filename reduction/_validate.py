@@ -173,7 +173,9 @@ def finite_result(what: str, **values: Any) -> None:
     for k, v in values.items():
         if v is None:
             continue
-        a = np.asarray(v, dtype=float)
+        a = np.asarray(v)
+        if a.dtype.kind not in "fc":
+            a = a.astype(float)
         if a.size and not np.all(np.isfinite(a)):
             raise UndefinedResultError(
                 f"{what}: the {k} is not a finite number (the inputs are so large, so small or so close "

@@ -403,7 +403,8 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
 
     Notes
     -----
-    Propagation: linear (GUM, JCGM 100:2008) with a central-difference Jacobian of the whole chain;
+    Propagation: linear (GUM, JCGM 100:2008) with a complex-step Jacobian of the whole chain (exact to
+    rounding; Martins, Sturdza & Alonso 2003, ACM TOMS 29, 245-262);
     random = mixture ratios, weighings, blanks (amount and composition), unspiked ratios, external β,
     standard session mean and the external reproducibilities; systematic = spike concentrations and
     the standard's accepted value. The spike's isotopic composition is taken as exact. The decay
@@ -520,7 +521,9 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         return 1e-3 / mass, mass, count
 
     def model(X: np.ndarray) -> np.ndarray:
-        X = np.asarray(X, dtype=float)
+        X = np.asarray(X)
+        if X.dtype.kind != "c":   # complex: the complex-step Jacobian below
+            X = X.astype(float)
         w_s, w_t = X[i_ws], X[i_wt]
         pdil = isotope_dilution({k: X[i] for k, i in i_pm.items()}, parent_spike, w_s, w_t,
                                 reference_isotope=p_ref, norm_ratio=parent_norm_ratio,
@@ -564,13 +567,14 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
         bad = [OUTPUTS[j] for j in range(4) if y0[j] <= 0]
         raise UndefinedResultError(f"blank correction leaves a non-positive {', '.join(bad)}: blank too large")
     groups = {g: [j for j, gg in enumerate(grp) if gg == g] for g in ("random", "systematic")}
-    # absolute steps: 1e-6 of each input (never zero: blanks may be 0), but at least 1 % of its σ, so
-    # that an input of tiny value and weak leverage (a 0.03 ng blank) moves the outputs by far more than
-    # their rounding (its derivative is then good to ~1e-9, not ~1e-5). The model is smooth on the scale
-    # of σ, so the central difference's truncation error stays ~1e-4 of the already small
-    # second-order term (the step-size trade-off: Press et al. 2007, Numerical Recipes, 3rd ed., §5.7).
-    steps = np.maximum(1e-6 * np.where(x0 != 0, np.abs(x0), 1.0), 1e-2 * np.array(sig))
-    prop = propagate_linear(model, x0, cov, groups=groups, names=OUTPUTS, abs_step=steps)
+    # Jacobian by the complex step, Im f(x + ih)/h (Squire & Trapp 1998; Martins, Sturdza & Alonso 2003):
+    # the whole chain is analytic arithmetic (the iteration of the spike stripping included, which
+    # carries the derivative along as it converges), so J is exact to rounding — no step-size trade-off,
+    # and the same numbers whatever numpy or libm computes exp and log. h is tiny against each input
+    # (or its σ, for inputs that are 0) so that h² terms vanish below double precision.
+    steps = 1e-20 * np.maximum(np.abs(x0), np.array(sig))
+    steps[steps == 0] = 1e-20
+    prop = propagate_linear(model, x0, cov, groups=groups, names=OUTPUTS, method="complex", abs_step=steps)
     cov_y = prop.cov
     cr = prop.parts.get("random", np.zeros((4, 4)))
     cs = prop.parts.get("systematic", np.zeros((4, 4)))

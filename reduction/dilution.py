@@ -118,7 +118,7 @@ def sample_composition(element: str, reference_isotope: str,
         if den != reference_isotope or f"{num}/{den}" not in comp:
             raise InputError("sample_ratios", f"{k!r} is not a ratio of {element} to {reference_isotope}")
         a = _pos_array(f"sample_ratios[{k!r}]", v)
-        comp[f"{num}/{den}"] = float(a) if a.ndim == 0 else a
+        comp[f"{num}/{den}"] = _out(a)
     return comp
 
 
@@ -136,8 +136,13 @@ def _pos_array(name: str, x: Any) -> np.ndarray:
 
 
 def _out(a: Any) -> Any:
-    a = np.asarray(a, dtype=float)
-    return float(a) if a.ndim == 0 else a
+    """A float (or complex, on the complex-step path of the chain's Jacobian) for 0-d, else the array."""
+    a = np.asarray(a)
+    if a.dtype.kind != "c":
+        a = a.astype(float, copy=False)
+    if a.ndim:
+        return a
+    return complex(a) if a.dtype.kind == "c" else float(a)
 
 
 # --------------------------------------------------------------------------------------------- spikes
@@ -309,8 +314,8 @@ def magnification(mix_ratio: Any, sample_ratio: Any, spike_ratio: Any) -> Any:
 
 def _magnification_min(sample_ratio: Any, spike_ratio: Any) -> np.ndarray:
     with np.errstate(**_QUIET):
-        rs = np.sqrt(np.asarray(sample_ratio, dtype=float))
-        rt = np.asarray(spike_ratio, dtype=float)
+        rs = np.sqrt(np.real(np.asarray(sample_ratio)).astype(float))
+        rt = np.real(np.asarray(spike_ratio)).astype(float)
         q = np.where(np.isinf(rt), 0.0, rs / np.sqrt(np.where(np.isinf(rt), 1.0, rt)))
         return np.asarray((1 + q) / np.abs(1 - q))
 
@@ -334,12 +339,14 @@ def magnification_min(sample_ratio: Any, spike_ratio: Any) -> Any:
 def _spike_u(rs_k: Any, rm_k: Any, a_k: float, a_r: float) -> np.ndarray:
     """u = N_spike / n_r,sample from the spike-isotope ratio of the mixture (Smith 2000)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        u = (rm_k - rs_k) / (a_k - rm_k * a_r)
-    u = np.asarray(u, dtype=float)
-    if np.any(~np.isfinite(u)) or np.any(u <= 0):
-        i = int(np.flatnonzero(~(np.isfinite(u) & (u > 0)).ravel())[0])
+        u = np.asarray((rm_k - rs_k) / (a_k - rm_k * a_r))
+    if u.dtype.kind != "c":   # complex on the complex-step path (checked on the real part)
+        u = u.astype(float)
+    ok = np.isfinite(u) & (np.real(u) > 0)
+    if not np.all(ok):
+        i = int(np.flatnonzero(~ok.ravel())[0])
         raise UndefinedResultError(
-            f"mix ratio: the mixture's spike ratio {float(np.ravel(rm_k * np.ones_like(u))[i]):.6g} "
+            f"mix ratio: the mixture's spike ratio {float(np.ravel(np.real(rm_k) * np.ones(u.shape))[i]):.6g} "
             f"(element {i + 1}) does not lie strictly between the sample's and the spike's: "
             "no positive amount solves the ID equation")
     return u
@@ -569,7 +576,7 @@ def _isotope_dilution(spike: Spike, element: str, ref: str, k_iso: str, n_iso: O
             rc_k = corr(k_iso, beta)
             u = _spike_u(rs_k, rc_k, a_k, a_r)
             s_n = corr(n_iso, beta) * (1 + a_r * u) - a[n_iso] * u
-            if np.any(s_n <= 0):
+            if np.any(np.real(s_n) <= 0):
                 raise UndefinedResultError(f"{norm_ratio}: the spike-free normalising ratio is <= 0; the spike holds "
                                            f"too much {n_iso} for internal normalisation")
             mis = np.abs(s_n / r_true - 1)
@@ -580,13 +587,13 @@ def _isotope_dilution(spike: Spike, element: str, ref: str, k_iso: str, n_iso: O
                                        f"{max_iter} iterations (worst misfit {float(np.max(mis)):.3g}; rule: {rule})")
             beta = beta + np.asarray(_bias_factor_of(s_n, r_true, mass[n_iso], m_r, law))
     else:
-        beta = np.asarray(bias_factor, dtype=float)
+        beta = np.asarray(bias_factor)
         it = 1
         rc_k = corr(k_iso, beta)
         u = _spike_u(rs_k, rc_k, a_k, a_r)
     for i in free:
         s_i = corr(i, beta) * (1 + a_r * u) - a[i] * u
-        if np.any(s_i <= 0):
+        if np.any(np.real(s_i) <= 0):
             raise UndefinedResultError(f"measured[{i}/{ref}]: spike-free sample ratio is <= 0")
         comp[f"{i}/{ref}"] = _out(s_i)
     n_spike = spike.concentration_umol_g * wt / a_k
@@ -595,6 +602,7 @@ def _isotope_dilution(spike: Spike, element: str, ref: str, k_iso: str, n_iso: O
     sum_r = sum(np.asarray(comp[f"{i}/{ref}"]) for i in isos)
     sum_rm = sum(np.asarray(comp[f"{i}/{ref}"]) * isotope_mass(i).value for i in isos)
     mag = _magnification(rc_k, rs_k, rt_k)
+    mag = np.real(mag)
     poor = np.asarray(mag) > POOR_MIX_FACTOR * np.asarray(m_min)
     out = Dilution(element, ref, _out(ref_umol_g * sum_r), _out(ref_umol_g * sum_rm), _out(ref_umol_g),
                    comp, _out(sum_rm / sum_r), _out(beta), law, _out(u), _out(rc_k), _out(mag), _out(m_min),

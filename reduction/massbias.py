@@ -56,8 +56,14 @@ def _checked(name: str, x: Any, sign: str = "positive") -> np.ndarray:
     """Read ``x`` as a float array (no copy) and check it: ``sign`` is "positive", "nonnegative" or "any".
 
     Shared by the engine's per-step modules. The common, valid case costs two fast passes; the error
-    messages come from :mod:`reduction._validate`.
+    messages come from :mod:`reduction._validate`. A complex array (the complex-step derivative of
+    :func:`reduction.propagate.jacobian`, Martins, Sturdza & Alonso 2003) is checked on its real part
+    and returned unchanged, so the derivative travels through the step.
     """
+    if isinstance(x, (complex, np.complexfloating)) or (isinstance(x, np.ndarray) and x.dtype.kind == "c"):
+        a = np.asarray(x)
+        _checked(name, a.real, sign)
+        return a
     try:
         a = np.asarray(x, dtype=float)
     except (TypeError, ValueError, OverflowError):
@@ -80,7 +86,9 @@ def _finite(name: str, x: Any) -> np.ndarray:
 
 
 def _out(a: np.ndarray) -> Any:
-    return float(a) if a.ndim == 0 else a
+    if a.ndim:
+        return a
+    return complex(a) if np.iscomplexobj(a) else float(a)
 
 
 def ratio_masses(ratio: str) -> Tuple[float, float]:
@@ -118,12 +126,12 @@ def _gain(mi: np.ndarray, mj: np.ndarray, factor: np.ndarray, law: str) -> np.nd
             g = np.exp(factor * np.log(mi / mj))
         elif law == "power":
             base = 1.0 + factor
-            if np.any(base <= 0):
+            if np.any(np.real(base) <= 0):
                 raise UndefinedResultError("factor: power law needs 1 + ε > 0")
             g = base ** (mi - mj)
         else:
             g = 1.0 + factor * (mi - mj)
-            if np.any(g <= 0):
+            if np.any(np.real(g) <= 0):
                 raise UndefinedResultError("factor: linear law gives 1 + ε·Δm <= 0 (bias far too large)")
     if not np.all(np.isfinite(g)) or np.any(g == 0):
         raise UndefinedResultError(f"factor: the {law}-law correction factor overflows or vanishes in double "
@@ -279,7 +287,7 @@ def normalise(measured: Any, ratio: str, measured_norm: Any, norm_ratio: str, *,
             np.multiply(g, c, out=g)
             np.exp(g, out=g)
             out = np.multiply(r, g, out=g) if g.shape == np.broadcast(r, g).shape else r * g
-    if not (np.all(np.isfinite(out)) and np.all(out > 0)):
+    if not (np.all(np.isfinite(out)) and np.all(np.real(out) > 0)):
         raise UndefinedResultError(f"normalise: the {ratio} corrected with {norm_ratio} overflows or vanishes in "
                                    "double precision (measured and true normalising ratios far apart); check them")
     return _out(out)
