@@ -401,7 +401,8 @@ def text(name: str, v: Any, default: Optional[str] = None) -> str:
     if _is_empty(v) or (not isinstance(v, str) and v == 0.0):
         # a reference to one empty cell arrives as 0.0 (LibreOffice 7.4): no text option is a number
         if default is None:
-            raise CellMessage(f"{name} is required (its cell is empty)")
+            # LibreOffice passes a typed 0 the same way: name both, never claim the cell is empty
+            raise CellMessage(f"{name} is required: its cell is empty or holds 0 (type the text it asks for)")
         return default
     if isinstance(v, str):
         if v.startswith(MARKER):

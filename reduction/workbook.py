@@ -1633,6 +1633,45 @@ def capacity_formula() -> Formula:
     return Formula("IF", (Formula("OR", tuple(counts), addin=False), message, ""), addin=False)
 
 
+#: Where the template says that runs on Measured name an analysis that Samples does not list (such runs
+#: are not reduced): the cell below :data:`CAPACITY_CELL`.
+ORPHAN_CELL = ("Results", RESULTS.last_row + 2, 0)
+
+
+def orphan_message(count: Any) -> str:
+    """The text of :data:`ORPHAN_CELL` for ``count`` unmatched runs (shared by Calc and the batch path)."""
+    return (f"{MARKER}Measured: {count} run(s) name an analysis that is not on Samples; they are not "
+            "reduced — add the analysis on Samples or correct the ID")
+
+
+def orphan_formula() -> Formula:
+    """Count of filled Measured analysis IDs that match no Samples ID (trimmed, as the add-in compares
+    them; MATCH ignores case as the add-in does), and :func:`orphan_message` when there are any."""
+    ids = Ref(MEASURED.name, 0, FIRST_ROW, 0, MEASURED.last_row)
+    keys = Ref(SAMPLES.name, 0, FIRST_ROW, 0, SAMPLES.last_row)
+    unmatched = Formula("ISNA", (Formula("MATCH", (Formula("TRIM", (ids,), addin=False),
+                                                  Formula("TRIM", (keys,), addin=False), 0.0), addin=False),),
+                        addin=False)
+    filled = Formula("NOT", (Formula("ISBLANK", (ids,), addin=False),), addin=False)
+    count = Formula("SUMPRODUCT", (unmatched, filled), addin=False)
+    head, _n, tail = orphan_message("\0").partition("\0")
+    return Formula("IF", (count, Formula("CONCATENATE", (head, count, tail), addin=False), ""), addin=False)
+
+
+def unmatched_runs(samples: Table, measured: Table) -> List[str]:
+    """One warning per Measured run whose analysis ID matches no Samples row (never silently skipped)."""
+    known = {_norm(samples.get(i, "analysis")) for i in range(len(samples.rows)) if samples.filled(i)}
+    out = []
+    for i in range(len(measured.rows)):
+        a = measured.get(i, "analysis")
+        if not measured.filled(i) or a == "" or isinstance(a, SpecialCell) or _norm(a) in known:
+            continue
+        out.append(f"Measured!A{measured.first_row + i}: the run of analysis {shown(a)} "
+                   f"(element {shown(measured.get(i, 'element'))}) matches no analysis on Samples and is not reduced — "
+                   "add the analysis on Samples or correct the ID")
+    return out
+
+
 def selection_rows() -> List[Tuple[str, int]]:
     """(system, sheet row) of every isochron selection row, in order."""
     return [(system, row) for system, (first, last) in ISOCHRON_BLOCK.items() for row in range(first, last + 1)]
@@ -1679,6 +1718,7 @@ def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
         for q_i, (q, _label, _unit) in enumerate(ISOCHRON_QUANTITIES):
             out[("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col)] = isochron_summary_formula(q, system, tcell)
     out[CAPACITY_CELL] = capacity_formula()
+    out[ORPHAN_CELL] = orphan_formula()
     return out
 
 
@@ -1986,6 +2026,10 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
             put("Results", row, j, v)
             if c.quantity == "check" and isinstance(v, str) and v.startswith(MARKER) and "poor" in v:
                 warnings.append(f"Results!{col_letter(j)}{row}: {v[len(MARKER):]}")
+    orphans = unmatched_runs(samples, book.measured)
+    warnings.extend(orphans)
+    if orphans and extent == "template":     # the template's own cell says so, as Calc does
+        put(*ORPHAN_CELL, orphan_message(len(orphans)))
     results = sheet_block(work, "Results", KEY_ROW, 0, res_last, len(RESULTS.columns) - 1)
     res_t = Table.from_range(RESULTS, results)
     if extent == "data":

@@ -418,6 +418,9 @@ CASES: List[Case] = [
     Case("msg-unknown-treatment", "rdIsochronMswd", FIT + (OMIT, L("robust")), Msg(("unknown treatment",))),
     Case("msg-unknown-system", "rdAgeIsochron", FIT + (L("u-pb"),), Msg(("unknown isotope system",)), array=True),
     Case("msg-system-empty", "rdAgeIsochron", FIT + (R(((None,),)),), Msg(("system is required",)), array=True),
+    # a typed 0 reaches the add-in as an empty cell does (LibreOffice 7.4): the message names both
+    Case("msg-system-zero", "rdAgeIsochron", FIT + (R(((0.0,),)),), Msg(("system is required", "empty or holds 0")),
+         array=True),
     Case("msg-quantity", "rdIsochronValue", (L("age"),) + FIT, Msg(("quantity 'age' is not one of",))),
     Case("msg-two-columns", "rdMeanWeighted", (R(((1.0, 2.0), (3.0, 4.0))), col(SV[:2])),
          Msg(("values must be one column or one row",)), array=True),

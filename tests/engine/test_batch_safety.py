@@ -27,6 +27,7 @@ from reduction.workbook import (
     MAX_DATA_ROWS,
     MAX_SHEET_ROW,
     MEASURED,
+    ORPHAN_CELL,
     RESULTS,
     SAMPLES,
     SPIKES,
@@ -38,6 +39,7 @@ from reduction.workbook import (
     evaluate,
     expected_formulas,
     layout_grid,
+    orphan_message,
     read_workbook,
     write_xlsx,
 )
@@ -257,6 +259,29 @@ def test_the_template_tells_a_calc_user_about_rows_below_its_formula_rows(tmp_pa
         rng = f"{sh.name}!$A${sh.last_row + 1}:${col_letter(sh.input_width - 1)}$1048576"
         assert f"COUNTA({rng})" in text
     assert expected_formulas()[CAPACITY_CELL].addin is False
+
+
+@pytest.mark.parametrize("fmt", FORMATS)
+def test_runs_of_an_analysis_missing_on_samples_are_named_not_skipped(tmp_path, capsys, fmt):
+    tables = copy.deepcopy(demo.demo_tables())
+    extra = copy.deepcopy(tables["Measured"][0])
+    extra["analysis"] = "XX-404"        # a typo'd ID: matches no Samples row
+    tables["Measured"].append(extra)
+    path = _write(tables, tmp_path / f"b.{fmt}")
+    rc, out, _err = _reduce(path, tmp_path / "o", capsys)
+    assert rc == 0
+    row = FIRST_ROW + len(tables["Measured"]) - 1
+    assert f"warning: Measured!A{row}: the run of analysis 'XX-404' (element '{extra['element']}') matches " \
+           "no analysis on Samples and is not reduced" in out
+    # the template's own cell (what Calc shows) and its native formula
+    ev = evaluate(layout_grid(build_layout(tables, constants=demo.demo_constants(),
+                                           isochron_selection=demo.demo_selection())), extent="template")
+    assert ev.cells[ORPHAN_CELL] == orphan_message(1)
+    text = expected_formulas()[ORPHAN_CELL].render("Results", "xlsx")
+    assert f"MATCH(TRIM(Measured!$A${FIRST_ROW}:$A${MEASURED.last_row}),TRIM(Samples!$A${FIRST_ROW}:" \
+           f"$A${SAMPLES.last_row}),0)" in text
+    # the demo itself has none
+    assert evaluate(layout_grid(demo.demo_layout()), extent="template").cells[ORPHAN_CELL] == ""
 
 
 # --------------------------------------------------------------------------------------------

