@@ -21,8 +21,9 @@ from functools import lru_cache
 from typing import Any, List, Optional, Tuple
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
+from . import minimise
 from ._validate import (
     as_array,
     as_count,
@@ -804,6 +805,18 @@ def _excess_nll(p: np.ndarray, xc: np.ndarray, vx: np.ndarray, yc: np.ndarray, v
     return float(np.sum(res * res / var + np.log(var)))
 
 
+def _excess_grad(p: np.ndarray, xc: np.ndarray, vx: np.ndarray, yc: np.ndarray, vy: np.ndarray,
+                 cxy: np.ndarray) -> np.ndarray:
+    """Gradient of :func:`_excess_nll` in (a, b, s), analytic."""
+    a, b, s = p
+    var = vy + s * s + b * (b * vx - 2.0 * cxy)
+    res = yc - a - b * xc
+    q = 1.0 / var - res * res / (var * var)          # ∂(r²/V + ln V)/∂V
+    return np.array([float(np.sum(-2.0 * res / var)),
+                     float(np.sum(-2.0 * res * xc / var + q * (2.0 * b * vx - 2.0 * cxy))),
+                     float(np.sum(q * 2.0 * s))])
+
+
 def _num_hessian(f: Any, p: np.ndarray, h: np.ndarray) -> np.ndarray:
     k = p.size
     hess = np.empty((k, k))
@@ -834,15 +847,18 @@ def _excess_variance(xa: np.ndarray, sxa: np.ndarray, ya: np.ndarray, sya: np.nd
     a0 = (york.intercept + york.slope * xm - ym) / sc_y
     s0 = math.sqrt(max(york.mswd or 1.0, 1.0) - 1.0 + 0.1)
     args = (xc, vx, yc, vy, cxy)
+
+    def nll(q: np.ndarray) -> float:
+        return _excess_nll(q, *args)
+
     best = None
     for start in (s0, 3.0 * s0, 0.3 * s0):
-        r = optimize.minimize(_excess_nll, np.array([a0, b0, start]), args=args, method="Nelder-Mead",
-                              options={"xatol": 1e-12, "fatol": 1e-14, "maxiter": 20000, "maxfev": 40000})
+        r = minimise.nelder_mead(nll, np.array([a0, b0, start]), xatol=1e-10, fatol=1e-13, max_fev=6000)
         if best is None or r.fun < best.fun:
             best = r
-    r = optimize.minimize(_excess_nll, best.x, args=args, method="BFGS", options={"gtol": 1e-10})
-    p = r.x if r.fun <= best.fun else best.x
-    if not np.all(np.isfinite(p)):
+    r = minimise.newton_polish(nll, lambda q: _excess_grad(q, *args), best.x)
+    p = r.x.copy()
+    if not (np.all(np.isfinite(p)) and math.isfinite(r.fun)):
         raise ConvergenceError("maximum-likelihood fit with excess variance did not converge")
     p[2] = abs(p[2])
     h = np.maximum(1e-4 * np.abs(p), 1e-5)
@@ -991,9 +1007,10 @@ def _ml_excess_1d(v: np.ndarray, s: np.ndarray, m0: float) -> Tuple[float, float
     Works in scaled units ``u = (v − m0)/S``, ``σ' = σ/S`` with ``S = max|v − m0|``. With the mean
     profiled out, −2 ln L(τ²) = Σ (u − m)²/(σ'² + τ²) + Σ ln(1 + τ²/σ'²) + const, and its derivative
     Σ (σ'² + τ² − r²)/(σ'² + τ²)² is positive once τ² ≥ max r², so the maximum lies in
-    0 ≤ τ² ≤ (max u − min u)² ≤ 4: a bounded search (Brent, scipy ``minimize_scalar``). A σ' too
-    large for its square (σ ≫ the spread) has weight 0; one too small is floored at
-    :data:`_VAR_FLOOR`, which moves the likelihood only where τ' < 1e-140.
+    0 ≤ τ² ≤ (max u − min u)² ≤ 4: a bounded search (Brent 1973,
+    :func:`reduction.minimise.bounded_scalar_min`). A σ' too large for its square (σ ≫ the spread) has
+    weight 0; one too small is floored at :data:`_VAR_FLOOR`, which moves the likelihood only where
+    τ' < 1e-140.
     """
     with np.errstate(under="ignore", over="ignore", invalid="ignore", divide="ignore"):
         big = float(np.max(np.abs(v - m0)))
@@ -1021,7 +1038,7 @@ def _ml_excess_1d(v: np.ndarray, s: np.ndarray, m0: float) -> Tuple[float, float
         with np.errstate(under="ignore"):
             return float((w @ (r * r)) / dmin + np.sum(np.log1p(t2 / var)))
 
-    r = optimize.minimize_scalar(nll, bounds=(0.0, 4.0), method="bounded", options={"xatol": 1e-14})
+    r = minimise.bounded_scalar_min(nll, 0.0, 4.0, xatol=1e-14)
     t2 = float(r.x)
     if not (math.isfinite(t2) and math.isfinite(float(r.fun))):
         raise ConvergenceError("weighted mean: the search for the external scatter did not converge")
