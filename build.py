@@ -79,7 +79,57 @@ def cmd_test(args: list) -> int:
     if rc == 5:
         print("pytest collected no tests: that is a failure here, not a pass", flush=True)
         return 1
-    return rc
+    if rc or args:
+        return rc
+    # the engine on the oldest and newest supported Python (issue 11); needs pyenv's Pythons
+    pythons = compat_pythons()
+    if not pythons:
+        print(f"no pyenv Python {COMPAT_RANGE[0]}-{COMPAT_RANGE[1]} found: the compatibility runs are missing",
+              flush=True)
+        return 1 if os.environ.get("CI") else 0
+    for ver, exe in pythons:
+        rc = compat_run(ver, exe)
+        if rc:
+            print(f"engine tests failed on Python {ver[0]}.{ver[1]}", flush=True)
+            return rc
+    return 0
+
+
+#: Python versions the engine supports (issue 11: LibreOffice bundles 3.8 in its 7.x builds, 3.13 is current)
+COMPAT_RANGE = ((3, 8), (3, 13))
+
+
+def compat_pythons() -> list:
+    """The oldest and the newest supported CPython that pyenv holds on this machine (PYENV_ROOT or ~/.pyenv)."""
+    root = Path(os.environ.get("PYENV_ROOT", Path.home() / ".pyenv")) / "versions"
+    found = {}
+    for d in sorted(root.glob("3.*")) if root.is_dir() else []:
+        parts = d.name.split(".")
+        if len(parts) < 2 or not (parts[0].isdigit() and parts[1].isdigit()):
+            continue
+        ver = (int(parts[0]), int(parts[1]))
+        exe = d / "bin" / "python3"
+        if COMPAT_RANGE[0] <= ver <= COMPAT_RANGE[1] and exe.exists():
+            found[ver] = exe
+    if not found:
+        return []
+    return [(v, found[v]) for v in sorted({min(found), max(found)})]
+
+
+def compat_run(ver: tuple, exe: Path) -> int:
+    """The engine tests (tests/engine, no LibreOffice) in a venv of another Python."""
+    env_dir = ROOT / f".venv-py{ver[0]}{ver[1]}"
+    py = env_dir / "bin" / "python"
+    stamp = env_dir / ".ratiodesk-installed"
+    want = hashlib.sha256((ROOT / "pyproject.toml").read_bytes()).hexdigest()
+    if not (py.exists() and stamp.exists() and stamp.read_text().strip() == want):
+        if not py.exists():
+            run(exe, "-m", "venv", env_dir)
+        run(py, "-m", "pip", "install", "--quiet", "--disable-pip-version-check", "-e", ".[dev]")
+        stamp.write_text(want)
+    print(f"engine tests on Python {ver[0]}.{ver[1]} ({exe})", flush=True)
+    rc = run(py, "-m", "pytest", "-q", "-p", "no:cacheprovider", "tests/engine", check=False)
+    return 1 if rc == 5 else rc
 
 
 def cmd_bench(args: list) -> int:

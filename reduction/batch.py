@@ -125,7 +125,6 @@ def _shown_value(v: Any) -> Any:
 def _provenance(data: WorkbookData, constants: Sequence[Mapping[str, Any]], spikes: Sequence[Mapping[str, Any]],
                 now: str, drift: Sequence[str]) -> List[Tuple[Any, ...]]:
     import numpy
-    import scipy
 
     digest = hashlib.sha256(Path(data.path).read_bytes()).hexdigest()
     rows: List[Tuple[Any, ...]] = [
@@ -133,8 +132,7 @@ def _provenance(data: WorkbookData, constants: Sequence[Mapping[str, Any]], spik
         ("Input workbook", os.path.basename(data.path), "", "", "", ""),
         ("Input SHA-256", digest, "", "", "", ""),
         ("Software", f"RatioDesk {__version__} (batch path, engine evaluated without LibreOffice)", "", "", "", ""),
-        ("Python / numpy / scipy", f"{platform.python_version()} / {numpy.__version__} / {scipy.__version__}",
-         "", "", "", ""),
+        ("Python / numpy", f"{platform.python_version()} / {numpy.__version__}", "", "", "", ""),
         ("Date (UTC)", now, "", "", "", ""),
         ("Formulas edited by hand", f"{len(drift)} cell(s)" if drift else "none", "", "", "", ""),
         ("", "", "", "", "", ""),
