@@ -51,6 +51,12 @@ def cmd_demo(args: list) -> int:
 
 
 def cmd_oxt(args: list) -> int:
+    """Build the extension: ``oxt [--target system|PLATFORM-cpXY|all] [--update-lock] [--out DIR]``.
+
+    Without ``--target`` the system build ``dist/ratiodesk-<version>.oxt`` (no numpy inside);
+    ``--target win_amd64-cp310`` etc. bundles the numpy wheel pinned in macros/numpy-wheels.lock
+    (see macros/package.py; ``--help`` lists every option). The arguments are macros/package.py's.
+    """
     return run(PY, ROOT / "macros" / "package.py", *args, check=False)
 
 

@@ -21,15 +21,22 @@ Cells never lie:
   (``"⚠ points must be a whole number from 3 to 10000, got 1e+09"``); the caches below hold at most
   :data:`CACHE_MAX_CELLS` input cells each.
 
-The engine is imported lazily, on the first call that needs it, so a LibreOffice without numpy or
-scipy shows :data:`NEEDS_NUMPY` in every cell instead of Err:504; problems are logged to
-:data:`LOG_PATH`. Inside LibreOffice the engine is shipped as the package ``ratiodesk_engine``
-(a copy of ``reduction``; see macros/package.py); outside it, ``reduction`` is used.
+The engine is imported lazily, on the first call that needs it (:func:`_load_engine`), so a
+LibreOffice without numpy shows a readable message in every cell instead of Err:504, and any
+failure to import the engine becomes a logged cell message, never a traceback. numpy is taken from
+LibreOffice's own Python when it has one; only when ``import numpy`` fails does a bundled build
+(``python3 build.py oxt --target PLATFORM-cpXY``) put its ``pythonpath/ratiodesk_vendor/`` on
+``sys.path`` and retry, after checking that it was built for this Python and platform (else the
+message names the .oxt that is). Which numpy was loaded (version, path) goes to the log
+:data:`LOG_PATH`; RD.DIAGNOSTICS shows it in the sheet. Inside LibreOffice the engine is shipped
+as the package ``ratiodesk_engine`` (a copy of ``reduction``; see macros/package.py); outside it,
+``reduction`` is used.
 """
 from __future__ import annotations
 
 import importlib
 import os
+import platform
 import re
 import sys
 import tempfile
@@ -41,8 +48,10 @@ from typing import Any, Callable, Dict, Iterable, List, Optional, Sequence, Tupl
 
 if __package__:
     from . import functions as _table
+    from . import targets as _targets
 else:  # imported as a top-level module (tests put macros/ on sys.path)
     import functions as _table
+    import targets as _targets
 
 MARKER = _table.MESSAGE_MARKER
 MAX_RANGE_CELLS = _table.MAX_RANGE_CELLS
@@ -56,8 +65,6 @@ MAX_TABLE_CELLS = _table.MAX_TABLE_CELLS
 CACHE_MAX_CELLS = 1_000_000
 YEARS_PER_MA = 1.0e6
 ENGINE_PACKAGES = ("ratiodesk_engine", "reduction")
-NEEDS_NUMPY = (MARKER + "RatioDesk needs numpy and scipy in LibreOffice's Python; install them with: "
-               "sudo apt-get install python3-numpy python3-scipy  (then restart LibreOffice)")
 
 
 def _log_path() -> Path:
@@ -86,19 +93,40 @@ def log(text: str) -> None:
             continue
 
 
-def _read_version() -> str:
+def _read_build() -> Dict[str, Any]:
+    """What macros/package.py wrote into ``_build.py`` (the .oxt), or the same for a source checkout.
+
+    A source checkout (macros/ on sys.path, ``reduction`` importable) counts as the system build;
+    its target list is read from the lock file beside this module.
+    """
+    info: Dict[str, Any] = {"VERSION": None, "TARGET": _targets.SYSTEM, "PYTHON": None, "PLATFORM": None,
+                            "NUMPY": None, "VENDOR": None, "TARGETS": ()}
     try:
         if __package__:
-            from ._build import VERSION  # written by macros/package.py into the .oxt
-            return str(VERSION)
-    except ImportError:
-        pass
-    init = Path(__file__).resolve().parent.parent / "reduction" / "__init__.py"
-    m = re.search(r'^__version__\s*=\s*"([^"]+)"', init.read_text(encoding="utf-8"), re.M)
-    return m.group(1) if m else "unknown"
+            from . import _build  # written by macros/package.py into the .oxt
+            info.update({k: getattr(_build, k) for k in info if hasattr(_build, k)})
+    except Exception as exc:  # a damaged install: say so in the log, keep going with the defaults
+        log(f"_build.py unreadable: {exc!r}")
+    here = Path(__file__).resolve().parent
+    if info["VERSION"] is None:
+        try:
+            init = (here.parent / "reduction" / "__init__.py").read_text(encoding="utf-8")
+            m = re.search(r'^__version__\s*=\s*"([^"]+)"', init, re.M)
+            info["VERSION"] = m.group(1) if m else "unknown"
+        except OSError:
+            info["VERSION"] = "unknown"
+    if not info["TARGETS"]:
+        try:
+            import json
+            lock = json.loads((here / "numpy-wheels.lock").read_text(encoding="utf-8"))
+            info["TARGETS"] = tuple(lock.get("targets", ()))
+        except (OSError, ValueError):
+            pass
+    return info
 
 
-VERSION = _read_version()
+BUILD = _read_build()
+VERSION = str(BUILD["VERSION"])
 
 
 class CellMessage(Exception):
@@ -109,47 +137,193 @@ class CellMessage(Exception):
 # the engine, imported lazily
 # --------------------------------------------------------------------------------------------
 _engine_modules: Dict[str, Any] = {}
-_engine_state: Dict[str, Any] = {"package": None, "failure": None}
+_engine_state: Dict[str, Any] = {"package": None, "failure": None, "numpy": None, "numpy_source": None,
+                                 "numpy_problem": None, "module_failures": {}}
 
 
 def engine(module: str) -> Any:
-    """The engine submodule ``module`` (e.g. ``"regression"``), importing the engine on first use."""
+    """The engine submodule ``module`` (e.g. ``"regression"``), importing the engine on first use.
+
+    Raises :class:`_EngineMissing` (a readable message, already logged) when it cannot be imported.
+    """
     mod = _engine_modules.get(module)
     if mod is not None:
         return mod
     pkg = _engine_state["package"] or _load_engine()
-    mod = importlib.import_module(f"{pkg}.{module}")
+    failed = _engine_state["module_failures"].get(module)
+    if failed:
+        raise _EngineMissing(failed)
+    try:
+        mod = importlib.import_module(f"{pkg}.{module}")
+    except Exception as exc:
+        msg = _engine_failed(exc, f"{pkg}.{module}")
+        _engine_state["module_failures"][module] = msg
+        raise _EngineMissing(msg) from None
     _engine_modules[module] = mod
     return mod
 
 
 class _EngineMissing(Exception):
-    pass
+    """The engine (or numpy) cannot be imported; the text is the cell message."""
+
+
+def _python_words() -> str:
+    return f"Python {platform.python_version()}"
+
+
+def _distribution_python() -> bool:
+    """True for a Linux distribution's own Python (its packages come from the package manager)."""
+    return sys.platform.startswith("linux") and os.path.realpath(sys.prefix) in ("/usr", "/usr/local")
+
+
+def _apt_hint() -> str:
+    return ("install it with: sudo apt-get install python3-numpy (Debian, Ubuntu; elsewhere your "
+            "distribution's python3-numpy package), then restart LibreOffice")
+
+
+def _oxt_for_here(python: Optional[str] = None, plat: Optional[str] = None) -> Optional[str]:
+    """File name of the bundled build for this (or the given) Python ``"311"`` and platform, or None."""
+    target = _targets.target_name(plat or _targets.running_platform(), python or _targets.running_python())
+    return _targets.oxt_name(VERSION, target) if target in BUILD["TARGETS"] else None
+
+
+def _install_oxt_words() -> str:
+    oxt = _oxt_for_here()
+    if oxt:
+        return f"install {oxt}, which brings its own numpy (Tools > Extension Manager), then restart LibreOffice"
+    return (f"no RatioDesk package brings numpy for {_python_words()} on "
+            f"{_targets.platform_label(_targets.running_platform())}: numpy must be installed into LibreOffice's "
+            "Python")
+
+
+def needs_numpy_text() -> str:
+    """The cell message of a build without numpy inside when LibreOffice's Python has no numpy."""
+    head = f"RatioDesk needs numpy, which LibreOffice's Python ({_python_words()}) does not have: "
+    if _distribution_python():
+        oxt = _oxt_for_here()
+        tail = _apt_hint() + (f"; or install {oxt}, which brings its own numpy" if oxt else "")
+    else:
+        tail = _install_oxt_words()
+    return MARKER + head + tail
+
+
+def target_mismatch_text(python: Optional[str] = None, plat: Optional[str] = None) -> Optional[str]:
+    """None when this bundled build fits the running (or the given) Python and platform, else the cell message.
+
+    ``python`` as in a wheel tag (``"310"``), ``plat`` a :mod:`targets` platform key.
+    """
+    if not BUILD["VENDOR"]:
+        return None
+    have = python or _targets.running_python()
+    want_py, want_plat = str(BUILD["PYTHON"]), str(BUILD["PLATFORM"])
+    have_py, have_plat = _targets.python_label(have), plat or _targets.running_platform()
+    if (want_py, want_plat) == (have_py, have_plat):
+        return None
+    runs = f"Python {have_py}" + ("" if have_plat == want_plat else f" on {_targets.platform_label(have_plat)}")
+    oxt = _oxt_for_here(have, have_plat)
+    if oxt:
+        fix = f"install {oxt} (Tools > Extension Manager), then restart LibreOffice"
+    elif _distribution_python():
+        fix = f"no RatioDesk package brings numpy for it; numpy is missing too: {_apt_hint()}"
+    else:
+        fix = "no RatioDesk package brings numpy for it: numpy must be installed into LibreOffice's Python"
+    return (MARKER + f"this package is built for Python {want_py} on {_targets.platform_label(want_plat)}; "
+            f"this LibreOffice runs {runs} \u2014 {fix}")
+
+
+def _vendor_dir() -> Optional[Path]:
+    """``pythonpath/ratiodesk_vendor`` of a bundled build (None for the system build)."""
+    if not BUILD["VENDOR"]:
+        return None
+    return Path(__file__).resolve().parent.parent / str(BUILD["VENDOR"])
+
+
+def _forget_numpy() -> None:
+    for name in [m for m in sys.modules if m == "numpy" or m.startswith("numpy.")]:
+        del sys.modules[name]
+
+
+def _import_numpy() -> Any:
+    """numpy: LibreOffice's own when its Python has one, else the bundled copy; _EngineMissing when neither."""
+    try:
+        import numpy
+        if not isinstance(getattr(numpy, "__version__", None), str) or not getattr(numpy, "__file__", None):
+            # e.g. a stray folder named numpy somewhere on sys.path, imported as an empty namespace package
+            raise ImportError(f"the 'numpy' found at {list(getattr(numpy, '__path__', []))} is not a numpy "
+                              "installation (no __version__)")
+        source = "LibreOffice's Python"
+    except Exception as first:  # ImportError, or a broken installation raising anything else
+        log(f"import numpy failed in {sys.executable or '(embedded)'} ({_python_words()}, prefix {sys.prefix}): "
+            f"{first!r}")
+        vendor = _vendor_dir()
+        if vendor is None:
+            raise _EngineMissing(needs_numpy_text()) from None
+        mismatch = target_mismatch_text()
+        if mismatch:
+            log(f"bundled numpy not used: {mismatch[len(MARKER):]}")
+            raise _EngineMissing(mismatch) from None
+        if not (vendor / "numpy" / "__init__.py").exists():
+            msg = (MARKER + f"the numpy bundled with RatioDesk is missing from {vendor}: reinstall "
+                   f"{_targets.oxt_name(VERSION, str(BUILD['TARGET']))}; details in {LOG_PATH}")
+            log(msg[len(MARKER):])
+            raise _EngineMissing(msg) from None
+        _forget_numpy()
+        sys.path.insert(0, str(vendor))
+        try:
+            import numpy
+        except Exception as exc:
+            log(f"bundled numpy failed to load from {vendor}:\n{traceback.format_exc()}")
+            _forget_numpy()
+            sys.path.remove(str(vendor))
+            raise _EngineMissing(
+                MARKER + f"the numpy {BUILD['NUMPY']} bundled with RatioDesk failed to load ({type(exc).__name__}: "
+                f"{exc}); reinstall {_targets.oxt_name(VERSION, str(BUILD['TARGET']))}; details in {LOG_PATH}"
+            ) from None
+        source = "bundled with RatioDesk"
+    _engine_state["numpy"], _engine_state["numpy_source"] = numpy, source
+    log(f"numpy {getattr(numpy, '__version__', '?')} loaded from {getattr(numpy, '__file__', '?')} ({source}; "
+        f"{_python_words()}, RatioDesk {VERSION}, build {BUILD['TARGET']})")
+    return numpy
+
+
+def _engine_failed(exc: BaseException, what: str) -> str:
+    """Log why the engine did not import; return the cell message."""
+    log(f"RatioDesk engine ({what}) failed to import in {_python_words()}:\n{traceback.format_exc()}")
+    return (MARKER + f"RatioDesk's engine could not be loaded in LibreOffice's {_python_words()} "
+            f"({type(exc).__name__}: {exc}); details in {LOG_PATH}")
 
 
 def _load_engine() -> str:
+    """Import numpy and the engine package once; return the package name or raise _EngineMissing."""
     if _engine_state["failure"]:
         raise _EngineMissing(_engine_state["failure"])
     try:
-        import numpy  # noqa: F401
-        import scipy  # noqa: F401
-    except ImportError as exc:
-        log(f"numpy/scipy missing in {sys.executable} (Python {sys.version.split()[0]}): {exc!r}")
-        _engine_state["failure"] = NEEDS_NUMPY
-        raise _EngineMissing(NEEDS_NUMPY) from None
+        _import_numpy()
+    except _EngineMissing as exc:
+        _engine_state["failure"] = _engine_state["numpy_problem"] = str(exc)
+        raise
     for name in ENGINE_PACKAGES:
         try:
             importlib.import_module(name)
         except ModuleNotFoundError as exc:
-            if exc.name != name:
-                raise
-            continue
+            if exc.name == name:
+                continue
+            _engine_state["failure"] = _engine_failed(exc, name)
+            raise _EngineMissing(_engine_state["failure"]) from None
+        except Exception as exc:  # SyntaxError on an old Python, a failing module-level statement, ...
+            _engine_state["failure"] = _engine_failed(exc, name)
+            raise _EngineMissing(_engine_state["failure"]) from None
         _engine_state["package"] = name
         return name
     msg = MARKER + "RatioDesk engine not found (reinstall the extension); see the log " + str(LOG_PATH)
     log(f"engine package not found among {ENGINE_PACKAGES}; sys.path={sys.path}")
     _engine_state["failure"] = msg
     raise _EngineMissing(msg)
+
+
+#: What every cell shows when numpy is missing and this build brings none (kept for callers and tests;
+#: the bundled builds' messages come from :func:`target_mismatch_text`).
+NEEDS_NUMPY = needs_numpy_text()
 
 
 # --------------------------------------------------------------------------------------------
@@ -176,7 +350,11 @@ def cell_function(array: bool = False, rename: Optional[Dict[str, str]] = None) 
             except _EngineMissing as exc:
                 return _message(str(exc), array)
             except Exception as exc:  # the engine's own errors and anything unexpected
-                return _message(_engine_error_text(exc, names, fn.__name__), array)
+                try:
+                    return _message(_engine_error_text(exc, names, fn.__name__), array)
+                except Exception as again:  # never a second exception out of a cell
+                    return _message(f"internal error in {fn.__name__} ({type(exc).__name__}: {exc}; then "
+                                    f"{type(again).__name__}); details in {LOG_PATH}", array)
 
         run.__name__ = fn.__name__
         run.__doc__ = fn.__doc__
@@ -187,7 +365,16 @@ def cell_function(array: bool = False, rename: Optional[Dict[str, str]] = None) 
 
 
 def _engine_error_text(exc: Exception, names: Dict[str, str], where: str) -> str:
-    errors = engine("errors")
+    """The cell message of an exception out of an adapter (never imports the engine itself)."""
+    errors = _engine_modules.get("errors")
+    if errors is None and _engine_state["package"]:
+        try:
+            errors = engine("errors")
+        except Exception:
+            errors = None
+    if errors is None:
+        log(f"unexpected error in {where} (engine not loaded):\n{traceback.format_exc()}")
+        return f"internal error in {where} ({type(exc).__name__}: {exc}); details in {LOG_PATH}"
     if isinstance(exc, errors.InputError):
         arg = names.get(exc.argument, exc.argument)
         rowmap = getattr(exc, "rowmap", None)
@@ -541,6 +728,64 @@ def rdEcho(value: Any = None) -> Any:
     if isinstance(value, tuple):
         return value[0][0] if value and value[0] else ""
     return value
+
+
+def _built_for() -> str:
+    if not BUILD["VENDOR"]:
+        return "any platform; uses the numpy of LibreOffice's Python"
+    return (f"Python {BUILD['PYTHON']} on {_targets.platform_label(str(BUILD['PLATFORM']))}, with numpy "
+            f"{BUILD['NUMPY']} inside (used only when LibreOffice's Python has none)")
+
+
+def diagnostics() -> Tuple[Tuple[str, str], ...]:
+    """(label, value) rows describing this Python, its numpy, the engine and this build.
+
+    Tries to load the engine (as the first real cell would), but never raises: a missing numpy or
+    engine is reported in its row, and the last row says what to do (``ok`` when nothing).
+    """
+    rows: List[Tuple[str, str]] = []
+
+    def add(label: str, value: Callable[[], Any]) -> None:
+        try:
+            v = value()
+            rows.append((label, "" if v is None else str(v)))
+        except Exception as exc:  # a diagnostics row never breaks the others
+            rows.append((label, MARKER + f"unknown ({type(exc).__name__}: {exc})"))
+
+    problem: Optional[str] = None
+    try:
+        _load_engine()
+    except _EngineMissing as exc:
+        problem = str(exc)
+    except Exception as exc:  # pragma: no cover - _load_engine turns everything into _EngineMissing
+        problem = MARKER + f"{type(exc).__name__}: {exc}"
+    np_mod = _engine_state["numpy"]
+    add("ratiodesk", lambda: VERSION)
+    add("build_target", lambda: BUILD["TARGET"])
+    add("built_for", _built_for)
+    add("python", platform.python_version)
+    add("python_executable", lambda: sys.executable or "(none: Python embedded in LibreOffice)")
+    add("python_prefix", lambda: sys.prefix)
+    add("platform", lambda: f"{_targets.running_platform()} ({platform.platform()})")
+    if np_mod is not None:
+        add("numpy", lambda: np_mod.__version__)
+        add("numpy_path", lambda: os.path.dirname(np_mod.__file__))
+        add("numpy_source", lambda: _engine_state["numpy_source"])
+    else:
+        add("numpy", lambda: MARKER + "not loaded: " + (_engine_state["numpy_problem"] or problem or "")[len(MARKER):])
+        add("numpy_path", lambda: "")
+        add("numpy_source", lambda: "")
+    add("engine", lambda: (VERSION + f" ({_engine_state['package']})") if _engine_state["package"] else problem)
+    add("oxt_for_this_python", lambda: _oxt_for_here() or "none: no RatioDesk package brings numpy for it")
+    add("log", lambda: str(LOG_PATH))
+    add("status", lambda: problem or "ok")
+    return tuple(rows)
+
+
+@cell_function(array=True)
+def rdDiagnostics() -> Any:
+    """What RatioDesk runs on (works without numpy): label and value rows."""
+    return diagnostics()
 
 
 # --------------------------------------------------------------------------------------------

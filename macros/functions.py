@@ -21,7 +21,8 @@ A workbook stores every add-in call as ``<SERVICE_NAME>.<method>``; in .ods for 
 Display names (free to change, shown in the grid and the Function Wizard) follow one scheme:
 ``RD.<STEP>[.<QUANTITY>]`` where STEP is the reduction step in the trade's words — ``CYCLES``,
 ``INTERFERENCE``, ``MASSBIAS``, ``DILUTION``, ``BLANK``, ``STANDARD``, ``PROPAGATE``, ``ISOCHRON``,
-``AGE``, ``INITIAL``, ``EPSILON``, ``MEAN``, ``ELLIPSE`` — plus ``RD.VERSION`` and ``RD.ECHO``.
+``AGE``, ``INITIAL``, ``EPSILON``, ``MEAN``, ``ELLIPSE`` — plus ``RD.VERSION``, ``RD.ECHO`` and
+``RD.DIAGNOSTICS``.
 
 Argument kinds
 --------------
@@ -412,6 +413,13 @@ FUNCTIONS: Tuple[Function, ...] = (
                            "(default 48)."),
               _v("confidence", "Optional: confidence level of the region (default 0.95).")),
              "regression.ellipse_points", "array"),
+    # -- meta, added later (appended: the interface's existing methods keep their places) ---------
+    Function("rdDiagnostics", "RD.DIAGNOSTICS", "meta",
+             "What RatioDesk runs on, as label and value rows (enter as an array formula over 14 x 2 cells): its "
+             "version and build target, LibreOffice's Python (version, executable, platform), the numpy in use "
+             "(version, folder, whether LibreOffice's own or the one bundled with RatioDesk) or why it is "
+             "missing, the engine, the RatioDesk package that fits this LibreOffice, the log file, and what to "
+             "do. Works without numpy.", (), "(none)", "array"),
 )
 
 BY_METHOD: Dict[str, Function] = {f.method: f for f in FUNCTIONS}

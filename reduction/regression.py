@@ -21,9 +21,8 @@ from functools import lru_cache
 from typing import Any, List, Optional, Tuple
 
 import numpy as np
-from scipy import special
 
-from . import minimise
+from . import minimise, special
 from ._validate import (
     as_array,
     as_count,
@@ -159,15 +158,15 @@ class WeightedMean:
 
 
 # --------------------------------------------------------------------------------------------
-# small statistics helpers (scipy.special keeps these fast; scipy.stats objects are slow)
+# small statistics helpers (reduction.special: no scipy at run time)
 # --------------------------------------------------------------------------------------------
 def _chi2_sf(s: float, dof: int) -> float:
-    return float(special.chdtrc(dof, s))
+    return special.chi2_sf(s, dof)
 
 
 @lru_cache(maxsize=256)
 def _t975(dof: int) -> float:
-    return float(special.stdtrit(dof, 0.975))
+    return special.t_ppf(0.975, dof)
 
 
 @lru_cache(maxsize=256)
@@ -211,7 +210,7 @@ def wendt_carl_limits(dof: int, level: float = 0.95, *, approximate: bool = Fals
     if approximate:
         half = 2.0 * math.sqrt(2.0 / f)
         return max(0.0, 1.0 - half), 1.0 + half
-    return float(special.chdtri(f, level)) / f, float(special.chdtri(f, 1.0 - level)) / f
+    return special.chi2_isf(level, f) / f, special.chi2_isf(1.0 - level, f) / f
 
 
 # --------------------------------------------------------------------------------------------
@@ -1207,7 +1206,7 @@ def ellipse_points(x: float, sx: float, y: float, sy: float, rho: float = 0.0, *
     confidence = as_scalar("confidence", confidence)
     if not 0 < confidence < 1:
         raise InputError("confidence", f"must lie strictly between 0 and 1, got {confidence!r}")
-    k = math.sqrt(float(special.chdtri(2, 1.0 - confidence)))
+    k = math.sqrt(special.chi2_isf(1.0 - confidence, 2))
     theta = np.linspace(0.0, 2.0 * math.pi, n_points + 1)
     c, sn = np.cos(theta) * k, np.sin(theta) * k
     # the Cholesky factor of [[sx², ρ sx sy], [ρ sx sy, sy²]] written out, [[sx, 0], [ρ sy, sy √(1 − ρ²)]]:

@@ -344,6 +344,21 @@ PART2: List[Case] = [
          array=True),
 ]
 
+def _diagnostics() -> Any:
+    """RD.DIAGNOSTICS of the system build: every label, and the values known here without the adapter.
+
+    Rows of one cell compare the label only (paths and executables differ between the venv and
+    LibreOffice); the Python and numpy versions are those of the Python the engine runs in.
+    """
+    import platform
+
+    import numpy
+    return (("ratiodesk", reduction.__version__), ("build_target", "system"), ("built_for",),
+            ("python", platform.python_version()), ("python_executable",), ("python_prefix",), ("platform",),
+            ("numpy", numpy.__version__), ("numpy_path",), ("numpy_source", "LibreOffice's Python"), ("engine",),
+            ("oxt_for_this_python",), ("log",), ("status", "ok"))
+
+
 _P1 = R(((X[0], SX[0], Y[0], SY[0], RHO[0]),))
 _P2 = R(((X[4], SX[4], Y[4], SY[4], RHO[4]),))
 _GAP = [None]
@@ -351,6 +366,7 @@ CASES: List[Case] = [
     Case("version", "rdVersion", (), lambda: reduction.__version__),
     Case("echo-number", "rdEcho", (L(2.5),), lambda: 2.5),
     Case("echo-text", "rdEcho", (L("garnet"),), lambda: "garnet"),
+    Case("diagnostics", "rdDiagnostics", (), _diagnostics, array=True),
     Case("isochron-block", "rdIsochronBlock", FIT + (col(RHO),), lambda: block(_fit()), array=True),
     Case("isochron-block-no-rho", "rdIsochronBlock", FIT, lambda: block(_fit(rho=None)), array=True),
     Case("isochron-block-expanded", "rdIsochronBlock", FIT + (col(RHO), L("expanded")),
