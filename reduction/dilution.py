@@ -36,6 +36,7 @@ from .composition import NaturalComposition, natural_composition
 from .constants import isotope_mass, normalising_ratio
 from .errors import ConvergenceError, InputError, UndefinedResultError
 from .massbias import _checked, bias_correct
+from .massbias import _out as _bias_out
 from .massbias import bias_factor as _bias_factor_of
 
 __all__ = [
@@ -138,11 +139,7 @@ def _pos_array(name: str, x: Any) -> np.ndarray:
 def _out(a: Any) -> Any:
     """A float (or complex, on the complex-step path of the chain's Jacobian) for 0-d, else the array."""
     a = np.asarray(a)
-    if a.dtype.kind != "c":
-        a = a.astype(float, copy=False)
-    if a.ndim:
-        return a
-    return complex(a) if a.dtype.kind == "c" else float(a)
+    return _bias_out(a if a.dtype.kind == "c" else a.astype(float, copy=False))
 
 
 # --------------------------------------------------------------------------------------------- spikes

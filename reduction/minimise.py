@@ -254,8 +254,8 @@ def newton_polish(f: Callable[[np.ndarray], float], grad: Callable[[np.ndarray],
             xn = x + t * d
             fn = fs(xn)
             n += 1
-            if fn < fx or (fn == fx and t == 1.0 and np.all(xn == x)):
-                moved = fn < fx
+            if fn < fx:
+                moved = True
                 break
             t *= 0.5
         if not moved:

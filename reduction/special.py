@@ -241,6 +241,18 @@ def _p_series(a: float, y: float) -> float:
     raise ConvergenceError(f"incomplete gamma series did not converge (a={a!r}, y={y!r})")
 
 
+def _lentz_step(an: float, bn: float, c: float, d: float) -> Tuple[float, float]:
+    """One step of the modified Lentz method (Numerical Recipes §5.2): the new C_n and 1/D_n for the
+    fraction's terms a_n, b_n, each guarded against a zero denominator."""
+    d = an * d + bn
+    if abs(d) < _FPMIN:
+        d = _FPMIN
+    c = bn + an / c
+    if abs(c) < _FPMIN:
+        c = _FPMIN
+    return c, 1.0 / d
+
+
 def _q_continued_fraction(a: float, y: float) -> float:
     """Q(a, y) from the continued fraction of Γ(a, y) (Numerical Recipes §6.2) evaluated by
     the modified Lentz method (Lentz 1976; Thompson & Barnett 1986; Numerical Recipes §5.2), y > 1."""
@@ -255,13 +267,7 @@ def _q_continued_fraction(a: float, y: float) -> float:
     for _ in range(_MAXIT):
         an = -i * (i - a)
         b += 2.0
-        d = an * d + b
-        if abs(d) < _FPMIN:
-            d = _FPMIN
-        c = b + an / c
-        if abs(c) < _FPMIN:
-            c = _FPMIN
-        d = 1.0 / d
+        c, d = _lentz_step(an, b, c, d)
         delta = d * c
         h *= delta
         if abs(delta - 1.0) <= _EPS:
@@ -792,22 +798,10 @@ def _betacf(a: float, b: float, x: float) -> float:
     for _ in range(_MAXIT):
         m2 = m + m
         aa = m * ((b - m) * x) / ((qam + m2) * (a + m2))
-        d = 1.0 + aa * d
-        if abs(d) < _FPMIN:
-            d = _FPMIN
-        c = 1.0 + aa / c
-        if abs(c) < _FPMIN:
-            c = _FPMIN
-        d = 1.0 / d
+        c, d = _lentz_step(aa, 1.0, c, d)
         h *= d * c
         aa = -(a + m) * ((qab + m) * x) / ((a + m2) * (qap + m2))
-        d = 1.0 + aa * d
-        if abs(d) < _FPMIN:
-            d = _FPMIN
-        c = 1.0 + aa / c
-        if abs(c) < _FPMIN:
-            c = _FPMIN
-        d = 1.0 / d
+        c, d = _lentz_step(aa, 1.0, c, d)
         delta = d * c
         h *= delta
         if abs(delta - 1.0) <= _EPS:

@@ -59,23 +59,24 @@ def test_unsupported_targets_of_the_lock_are_not_offered(bundled):
     assert "win_amd64-cp38" not in msg and "no RatioDesk package brings numpy for it" in msg
 
 
-def test_system_build_on_windows_or_macos_names_the_bundled_build(monkeypatch):
+def _system_build_text(monkeypatch, platform, python, distribution):
+    """The message of the system build (every target known) on a given platform and Python."""
     monkeypatch.setitem(cells.BUILD, "TARGETS", ALL)
-    monkeypatch.setattr(cells, "_distribution_python", lambda: False)
-    monkeypatch.setattr(cells._targets, "running_platform", lambda: "win_amd64")
-    monkeypatch.setattr(cells._targets, "running_python", lambda: "38")
-    msg = cells.needs_numpy_text()
+    monkeypatch.setattr(cells, "_distribution_python", lambda: distribution)
+    monkeypatch.setattr(cells._targets, "running_platform", lambda: platform)
+    monkeypatch.setattr(cells._targets, "running_python", lambda: python)
+    return cells.needs_numpy_text()
+
+
+def test_system_build_on_windows_or_macos_names_the_bundled_build(monkeypatch):
+    msg = _system_build_text(monkeypatch, "win_amd64", "38", distribution=False)
     assert msg.startswith(MARK + "RatioDesk needs numpy, which LibreOffice's Python (Python ")
     assert f"install ratiodesk-{V}-win_amd64-cp38.oxt, which brings its own numpy" in msg
     assert "apt-get" not in msg and "scipy" not in msg
 
 
 def test_system_build_on_a_linux_distribution_python_gives_the_apt_hint(monkeypatch):
-    monkeypatch.setitem(cells.BUILD, "TARGETS", ALL)
-    monkeypatch.setattr(cells, "_distribution_python", lambda: True)
-    monkeypatch.setattr(cells._targets, "running_platform", lambda: "linux_x86_64")
-    monkeypatch.setattr(cells._targets, "running_python", lambda: "311")
-    msg = cells.needs_numpy_text()
+    msg = _system_build_text(monkeypatch, "linux_x86_64", "311", distribution=True)
     assert "sudo apt-get install python3-numpy" in msg and "scipy" not in msg
     assert f"or install ratiodesk-{V}-linux_x86_64-cp311.oxt" in msg
 
