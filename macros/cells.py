@@ -251,7 +251,6 @@ def _import_numpy() -> Any:
             # e.g. a stray folder named numpy somewhere on sys.path, imported as an empty namespace package
             raise ImportError(f"the 'numpy' found at {list(getattr(numpy, '__path__', []))} is not a numpy "
                               "installation (no __version__)")
-        source = "LibreOffice's Python"
     except Exception as first:  # ImportError, or a broken installation raising anything else
         log(f"import numpy failed in {sys.executable or '(embedded)'} ({_python_words()}, prefix {sys.prefix}): "
             f"{first!r}")
@@ -279,7 +278,11 @@ def _import_numpy() -> Any:
                 MARKER + f"the numpy {BUILD['NUMPY']} bundled with RatioDesk failed to load ({type(exc).__name__}: "
                 f"{exc}); reinstall {_targets.oxt_name(VERSION, str(BUILD['TARGET']))}; details in {LOG_PATH}"
             ) from None
-        source = "bundled with RatioDesk"
+    # where it came from, by its location: a later import finds the bundled copy already on sys.path
+    vendor = _vendor_dir()
+    here = str(Path(str(numpy.__file__)).resolve())
+    bundled = vendor is not None and here.startswith(str(vendor.resolve()) + os.sep)
+    source = "bundled with RatioDesk" if bundled else "LibreOffice's Python"
     _engine_state["numpy"], _engine_state["numpy_source"] = numpy, source
     log(f"numpy {getattr(numpy, '__version__', '?')} loaded from {getattr(numpy, '__file__', '?')} ({source}; "
         f"{_python_words()}, RatioDesk {VERSION}, build {BUILD['TARGET']})")

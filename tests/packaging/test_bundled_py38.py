@@ -73,7 +73,7 @@ def test_the_bundled_numpy_is_loaded(runs):
     vendor = str(runs["root"] / "pythonpath" / "ratiodesk_vendor")
     assert d["python"].startswith("3.8.") and d["build_target"] == TARGET
     assert d["numpy"] == pinned, d
-    assert d["numpy_path"] == os.path.join(vendor, "numpy")
+    assert d["numpy_path"] == os.path.join(vendor, "numpy") and d["numpy_source"] == "bundled with RatioDesk"
     assert f"numpy {pinned} loaded from {vendor}" in runs["bundled"]["log"]
     assert os.path.getsize(runs["oxt"]) <= package.MAX_OXT_BYTES
 
