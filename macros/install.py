@@ -17,6 +17,7 @@ from __future__ import annotations
 import argparse
 import glob
 import os
+import re
 import shutil
 import signal
 import socket
@@ -194,9 +195,12 @@ def default_profile() -> Path:
 
 
 def newest_oxt() -> Path:
-    found = sorted(glob.glob(str(ROOT / "dist" / "ratiodesk-*.oxt")), key=os.path.getmtime)
+    # Only the system build (ratiodesk-<version>.oxt): a per-platform build (ratiodesk-<version>-<TARGET>.oxt)
+    # or the demo workbook's neighbours are never picked by accident.
+    found = sorted((p for p in glob.glob(str(ROOT / "dist" / "ratiodesk-*.oxt"))
+                    if re.fullmatch(r"ratiodesk-\d+(\.\d+)*\.oxt", os.path.basename(p))), key=os.path.getmtime)
     if not found:
-        raise SystemExit("no dist/ratiodesk-*.oxt: run `python3 build.py oxt` first")
+        raise SystemExit("no dist/ratiodesk-<version>.oxt: run `python3 build.py oxt` first")
     return Path(found[-1])
 
 

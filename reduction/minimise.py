@@ -207,12 +207,19 @@ def nelder_mead(f: Callable[[np.ndarray], float], x0: np.ndarray, *, xatol: floa
 
 
 def newton_polish(f: Callable[[np.ndarray], float], grad: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, *,
-                  max_iter: int = 50, gtol: float = 1e-12) -> Minimum:
-    """Polish a minimum with Newton steps (Hessian by central differences of ``grad``).
+                  hess: Optional[Callable[[np.ndarray], np.ndarray]] = None, max_iter: int = 50,
+                  gtol: float = 0.0) -> Minimum:
+    """Polish a minimum with Newton steps until the gradient vanishes to rounding.
 
-    Each step solves H·d = −g; a Hessian that is not positive definite, or a step that does not lower
-    ``f``, is replaced by a steepest-descent step with backtracking (halving up to 40 times). Stops
-    when ‖g‖∞ ≤ ``gtol``·max(1, |f|) or no step lowers ``f``; never returns a point worse than ``x0``.
+    Each step solves H·d = −g (``hess`` if given, else central differences of ``grad``); a Hessian
+    that is not positive definite, or a step that does not lower ``f``, is replaced by a
+    steepest-descent step with backtracking (halving up to 40 times). Near the optimum ``f`` is
+    flat to rounding, so a step is also taken when ``f`` does not rise beyond rounding and the
+    gradient shrinks: the stopping point is fixed by ∇f = 0, not by which rounded value of ``f``
+    happens to be lower, and so does not depend on the numpy build. Stops when
+    ‖g‖∞ ≤ ``gtol``·max(1, |f|) (default 0: to rounding), when the step is below rounding of ``x``,
+    or when neither ``f`` nor ‖g‖ can be lowered; never returns a point worse than ``x0`` beyond
+    rounding of ``f``.
 
     Notes
     -----
@@ -223,31 +230,30 @@ def newton_polish(f: Callable[[np.ndarray], float], grad: Callable[[np.ndarray],
     x = np.asarray(x0, dtype=float).ravel().copy()
     fx = fs(x)
     n = 1
-    k = x.size
     converged = False
+    g = np.asarray(grad(x), dtype=float)
     for _ in range(max_iter):
-        g = np.asarray(grad(x), dtype=float)
         if not np.all(np.isfinite(g)):
             break
-        if float(np.max(np.abs(g))) <= gtol * max(1.0, abs(fx)):
+        gnorm = float(np.max(np.abs(g)))
+        if gnorm <= gtol * max(1.0, abs(fx)):
             converged = True
             break
-        h = math.sqrt(_EPS) * np.maximum(np.abs(x), 1.0)
-        hess = np.empty((k, k))
-        for i in range(k):
-            e = np.zeros(k)
-            e[i] = h[i]
-            hess[:, i] = (np.asarray(grad(x + e)) - np.asarray(grad(x - e))) / (2.0 * h[i])
-        hess = 0.5 * (hess + hess.T)
+        hm = _hessian(grad, hess, x)
         d = None
-        if np.all(np.isfinite(hess)):
+        if np.all(np.isfinite(hm)):
             try:
-                np.linalg.cholesky(hess)
-                d = np.linalg.solve(hess, -g)
+                np.linalg.cholesky(hm)
+                d = np.linalg.solve(hm, -g)
             except np.linalg.LinAlgError:
                 d = None
         if d is None:
-            d = -g / max(float(np.max(np.abs(g))), 1e-300) * float(np.max(h)) * 1e3
+            h = math.sqrt(_EPS) * np.maximum(np.abs(x), 1.0)
+            d = -g / max(gnorm, 1e-300) * float(np.max(h)) * 1e3
+        if np.all(np.abs(d) <= 4.0 * _EPS * np.maximum(np.abs(x), _EPS)):
+            converged = True        # the Newton step is below the rounding of x: ∇f = 0 to rounding
+            break
+        flat = 8.0 * _EPS * max(abs(fx), 1e-300)
         t = 1.0
         moved = False
         for _ in range(40):
@@ -257,9 +263,29 @@ def newton_polish(f: Callable[[np.ndarray], float], grad: Callable[[np.ndarray],
             if fn < fx:
                 moved = True
                 break
+            if fn <= fx + flat:
+                gn = np.asarray(grad(xn), dtype=float)
+                if np.all(np.isfinite(gn)) and float(np.max(np.abs(gn))) < gnorm:
+                    moved = True
+                    break
             t *= 0.5
         if not moved:
-            converged = float(np.max(np.abs(g))) <= 1e-6 * max(1.0, abs(fx))
+            converged = gnorm <= 1e-6 * max(1.0, abs(fx))
             break
         x, fx = xn, fn
+        g = np.asarray(grad(x), dtype=float)
     return Minimum(x, fx, n, converged)
+
+
+def _hessian(grad: Callable[[np.ndarray], np.ndarray], hess: Optional[Callable[[np.ndarray], np.ndarray]],
+             x: np.ndarray) -> np.ndarray:
+    if hess is not None:
+        return np.asarray(hess(x), dtype=float)
+    k = x.size
+    h = math.sqrt(_EPS) * np.maximum(np.abs(x), 1.0)
+    hm = np.empty((k, k))
+    for i in range(k):
+        e = np.zeros(k)
+        e[i] = h[i]
+        hm[:, i] = (np.asarray(grad(x + e)) - np.asarray(grad(x - e))) / (2.0 * h[i])
+    return 0.5 * (hm + hm.T)

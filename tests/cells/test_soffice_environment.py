@@ -7,6 +7,7 @@ failed with "std::bad_alloc" in the UNO bridge.
 import os
 
 import install
+import pytest
 
 
 def test_foreign_python_folders_and_variables_are_removed(tmp_path):
@@ -30,3 +31,19 @@ def test_foreign_python_folders_and_variables_are_removed(tmp_path):
 def test_system_python_folder_is_kept():
     out = install.soffice_environment({"PATH": "/usr/bin:/bin"})
     assert out["PATH"] == "/usr/bin:/bin"
+
+
+def test_install_picks_only_the_system_build(tmp_path, monkeypatch):
+    """`build.py install` installs ratiodesk-<version>.oxt, never a newer per-platform build beside it."""
+    dist = tmp_path / "dist"
+    dist.mkdir()
+    system = dist / "ratiodesk-0.1.0.oxt"
+    system.write_bytes(b"x")
+    platform_build = dist / "ratiodesk-0.1.0-win_amd64-cp311.oxt"
+    platform_build.write_bytes(b"x")
+    os.utime(system, (1_000_000, 1_000_000))  # the per-platform build is the newer file
+    monkeypatch.setattr(install, "ROOT", tmp_path)
+    assert install.newest_oxt() == system
+    system.unlink()
+    with pytest.raises(SystemExit, match="ratiodesk-<version>.oxt"):
+        install.newest_oxt()

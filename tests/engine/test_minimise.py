@@ -88,3 +88,78 @@ def test_weighted_mean_external_scatter_is_scipys_optimum(seed):
 
     r = optimize.minimize_scalar(nll, bounds=(0.0, 100.0), method="bounded", options={"xatol": 1e-12})
     assert wm.external_sigma_1s == pytest.approx(np.sqrt(r.x), rel=1e-6)
+
+
+# ---- to rounding: the optimum as a root of the gradient, in 40-digit arithmetic (mpmath) ----
+# The likelihoods are written again here in mpmath from their definitions (not the engine's code).
+
+def test_weighted_mean_external_scatter_to_rounding_vs_mpmath():
+    mp = pytest.importorskip("mpmath")
+    mp.mp.dps = 40
+    rng = np.random.default_rng(11)
+    s = rng.uniform(0.5, 2.0, 12)
+    v = 10 + rng.normal(0, 3.0, 12) + rng.normal(0, 1, 12) * s
+    wm = weighted_mean(v, s, external_scatter=True)
+    V = [mp.mpf(float(a)) for a in v]
+    S2 = [mp.mpf(float(a)) ** 2 for a in s]
+
+    def mean(t2):
+        w = [1 / (q + t2) for q in S2]
+        return mp.fsum(a * b for a, b in zip(w, V)) / mp.fsum(w)
+
+    def dnll(t2):       # d/dτ² of Σ (v − μ)²/(σ² + τ²) + ln(σ² + τ²), μ profiled out (envelope theorem)
+        mu = mean(t2)
+        return mp.fsum((q + t2 - (a - mu) ** 2) / (q + t2) ** 2 for q, a in zip(S2, V))
+
+    t2 = mp.findroot(dnll, mp.mpf(float(wm.external_sigma_1s)) ** 2)
+    assert wm.external_sigma_1s == pytest.approx(float(mp.sqrt(t2)), rel=1e-12)
+    assert wm.mean == pytest.approx(float(mean(t2)), rel=1e-14)
+    # σ(τ) from the Fisher information of τ²: I = ½ Σ 1/(σ² + τ²)² (random-effects model)
+    sig_t2 = mp.sqrt(2 / mp.fsum(1 / (q + t2) ** 2 for q in S2))
+    assert wm.external_sigma_sigma_1s == pytest.approx(float(sig_t2 / (2 * mp.sqrt(t2))), rel=1e-12)
+
+
+def test_excess_variance_line_to_rounding_vs_mpmath():
+    mp = pytest.importorskip("mpmath")
+    mp.mp.dps = 40
+    x, sx, y, sy, rho = _line_data(2, 15, 0.01)
+    fit = fit_isochron(x, sx, y, sy, rho, treatment="excess-variance")
+    X, SX, Y, SY, R = ([mp.mpf(float(t)) for t in arr] for arr in (x, sx, y, sy, rho))
+
+    def nll(a, b, s):
+        tot = mp.mpf(0)
+        for xi, sxi, yi, syi, ri in zip(X, SX, Y, SY, R):
+            var = syi ** 2 + s * s + b * b * sxi ** 2 - 2 * b * ri * sxi * syi
+            tot += (yi - a - b * xi) ** 2 / var + mp.log(var)
+        return tot
+
+    p0 = [mp.mpf(fit.intercept), mp.mpf(fit.slope), mp.mpf(fit.excess_sigma_y_1s)]
+    grad = [lambda a, b, s, i=i: mp.diff(nll, (a, b, s), tuple(int(j == i) for j in range(3))) for i in range(3)]
+    root = mp.findroot(grad, p0)
+    assert fit.intercept == pytest.approx(float(root[0]), rel=1e-14)
+    assert fit.slope == pytest.approx(float(root[1]), rel=1e-12)
+    assert fit.excess_sigma_y_1s == pytest.approx(float(root[2]), rel=1e-12)
+    # errors: inverse of half the Hessian of −2 ln L (observed Fisher information)
+    hess = mp.matrix(3, 3)
+    for i in range(3):
+        for j in range(3):
+            hess[i, j] = mp.diff(nll, tuple(root), tuple(int(k == i) + int(k == j) for k in range(3)))
+    cov = (hess / 2) ** -1
+    assert fit.slope_sigma_1s == pytest.approx(float(mp.sqrt(cov[1, 1])), rel=1e-11)
+    assert fit.intercept_sigma_1s == pytest.approx(float(mp.sqrt(cov[0, 0])), rel=1e-11)
+    assert fit.excess_sigma_y_sigma_1s == pytest.approx(float(mp.sqrt(cov[2, 2])), rel=1e-11)
+
+
+def test_newton_polish_with_a_given_hessian_stops_at_the_root_of_the_gradient():
+    # a flat-bottomed quartic plus a quadratic: f = (x−1)⁴ + (x−1)² + (y+2)², minimum at (1, −2)
+    def f(p):
+        return (p[0] - 1) ** 4 + (p[0] - 1) ** 2 + (p[1] + 2) ** 2
+
+    def g(p):
+        return np.array([4 * (p[0] - 1) ** 3 + 2 * (p[0] - 1), 2 * (p[1] + 2)])
+
+    def h(p):
+        return np.array([[12 * (p[0] - 1) ** 2 + 2, 0.0], [0.0, 2.0]])
+
+    r = newton_polish(f, g, np.array([1.3, -1.7]), hess=h)
+    assert r.converged and abs(r.x[0] - 1) < 1e-15 and abs(r.x[1] + 2) < 4e-16

@@ -33,7 +33,7 @@ def pytest_terminal_summary(terminalreporter):
         terminalreporter.write_sep("!", "LibreOffice integration tests NOT RUN", red=True, bold=True)
         terminalreporter.write_line(f"reason: {_MISSING}", red=True, bold=True)
         terminalreporter.write_line("install: apt-get install libreoffice-calc-nogui python3-uno "
-                                    "libreoffice-script-provider-python python3-numpy python3-scipy", red=True)
+                                    "libreoffice-script-provider-python python3-numpy", red=True)
 
 
 @pytest.fixture(scope="session")

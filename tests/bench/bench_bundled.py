@@ -1,15 +1,21 @@
 #!/usr/bin/env python3
-"""Benchmark figure (not a test): the first cell call of a bundled-numpy build in a bare Python.
+"""Benchmarks (not tests): the first cell call of a bundled-numpy build, and York with our special functions.
 
-    python macros/bench_bundled.py [--python PYTHON] [--target PLATFORM-cpXY] [--runs N]
+    python tests/bench/bench_bundled.py [--python PYTHON] [--target PLATFORM-cpXY] [--runs N]
 
+1. First cell call.
 Builds the target (default: 64-bit Linux for the given Python, whose version it reads), unpacks it,
 and in N fresh ``PYTHON -I -S`` processes (no site-packages: numpy can only come from the
 extension) appends the extension's ``pythonpath/`` to sys.path, imports ``ratiodesk_calc.cells``
 and times its first RD.ISOCHRON.MSWD call, which loads numpy (bundled) and the engine. That first
 call is what a user waits for after opening a workbook; the target is :data:`TARGET_SECONDS`. The
 figure is the best of the N runs (the machine is shared); the worst is printed beside it.
-Standard library only; :func:`first_call` is what ``build.py bench`` can call.
+
+2. York n = 10 with reduction.special against the same fit with scipy.special's chdtrc/stdtrit in
+   their place (what the engine called before it became scipy-free), interleaved rounds, best of
+   each. Target: the own special functions cost at most :data:`YORK_SLOWDOWN_MAX` (10 %) more.
+
+Exits 1 when a target is missed (or a cell is a message), 0 otherwise.
 """
 from __future__ import annotations
 
@@ -18,17 +24,22 @@ import json
 import subprocess
 import sys
 import tempfile
+import time
 import zipfile
+from functools import lru_cache
 from pathlib import Path
 from typing import Any, Dict, List, Optional
 
-HERE = Path(__file__).resolve().parent
-sys.path.insert(0, str(HERE))
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT / "macros"))
+sys.path.insert(0, str(ROOT))
 import package  # noqa: E402
 import targets  # noqa: E402
 
 #: The first cell call after import, numpy and engine loading included, in seconds.
 TARGET_SECONDS = 1.5
+#: York n = 10 with reduction.special may take at most this factor of the scipy.special time.
+YORK_SLOWDOWN_MAX = 1.10
 
 # Five invented points on a 1000 Ma Sm-Nd line (the shared cell cases' x and y, rounded).
 _CHILD = r"""
@@ -85,6 +96,51 @@ def first_call(python: str = sys.executable, target: Optional[str] = None, runs:
             "ok": isinstance(best["result"], float)}
 
 
+def _best(fn, rounds: int = 200) -> float:
+    fn()
+    best = float("inf")
+    for _ in range(rounds):
+        t0 = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def york_own_vs_scipy(cycles: int = 15) -> Dict[str, float]:
+    """Best York n = 10 time with reduction.special and with scipy.special patched in (interleaved)."""
+    import numpy as np
+    import scipy.special as sps
+
+    from reduction import regression
+    d = np.loadtxt(ROOT / "tests" / "engine" / "data" / "pearson_york.csv", delimiter=",", skiprows=1)
+    x, sx, y, sy = d[:, 0], d[:, 1], d[:, 2], d[:, 3]
+    own_sf, own_t = regression._chi2_sf, regression._t975
+
+    def scipy_sf(s, dof):
+        return float(sps.chdtrc(dof, s))
+
+    @lru_cache(maxsize=256)  # as the engine had it
+    def scipy_t(dof):
+        return float(sps.stdtrit(dof, 0.975))
+
+    def fit():
+        return regression.york_fit(x, sx, y, sy)
+
+    t_own = t_sp = float("inf")
+    try:
+        for _ in range(cycles):
+            regression._chi2_sf, regression._t975 = own_sf, own_t
+            t_own = min(t_own, _best(fit))
+            regression._chi2_sf, regression._t975 = scipy_sf, scipy_t
+            t_sp = min(t_sp, _best(fit))
+        regression._chi2_sf, regression._t975 = scipy_sf, scipy_t
+        f_sp = fit()
+    finally:
+        regression._chi2_sf, regression._t975 = own_sf, own_t
+    f_own = fit()
+    return {"own_s": t_own, "scipy_s": t_sp, "p_own": f_own.p_value, "p_scipy": f_sp.p_value}
+
+
 def main(argv: Optional[List[str]] = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[1])
     ap.add_argument("--python", default=sys.executable, help="the bare interpreter (default: this one)")
@@ -99,7 +155,18 @@ def main(argv: Optional[List[str]] = None) -> int:
     print(f"  numpy {r['numpy']} from {r['numpy_path'] or '-'} ({r['numpy_source'] or '-'})")
     if not r["ok"]:
         print(f"  the cell is a message, not a number: {r['result']}")
-    return 0 if verdict == "PASS" else 1
+    ok = verdict == "PASS"
+    try:
+        y = york_own_vs_scipy()
+    except ImportError as exc:
+        print(f"York own vs scipy special functions: skipped ({exc}; scipy is a development dependency)")
+        return 0 if ok else 1
+    slow = y["own_s"] / y["scipy_s"]
+    v2 = "PASS" if slow <= YORK_SLOWDOWN_MAX else "FAIL"
+    print(f"York n = 10 (Pearson-York data): {y['own_s'] * 1e6:.1f} us with reduction.special, "
+          f"{y['scipy_s'] * 1e6:.1f} us with scipy.special: {slow:.3f}x (target <= {YORK_SLOWDOWN_MAX:g}x): {v2}")
+    print(f"  p(MSWD) own {y['p_own']:.15g}, scipy {y['p_scipy']:.15g}")
+    return 0 if ok and v2 == "PASS" else 1
 
 
 if __name__ == "__main__":
