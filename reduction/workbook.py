@@ -314,12 +314,13 @@ STANDARDS = Sheet(
     capacity=120)
 
 FRACTION_TYPES = ("whole rock", "garnet", "garnet leachate", "leachate", "residue", "omphacite",
-                  "clinopyroxene", "amphibole", "plagioclase", "apatite", "other")
+                  "clinopyroxene", "amphibole", "plagioclase", "apatite", "biotite", "muscovite", "K-feldspar",
+                  "other")
 
 SAMPLES = Sheet(
     "Samples", "Samples: what was weighed and spiked",
     "One row per analysis. Masses in g; blanks in ng of element (procedural blank, subtracted; natural "
-    "composition from Constants unless a blank daughter ratio is typed). System: Sm-Nd or Lu-Hf. The spike "
+    "composition from Constants unless a blank daughter ratio is typed). System: Sm-Nd, Lu-Hf or Rb-Sr. The spike "
     "label must appear on the Spikes sheet. Empty σ columns take the lab defaults of the Constants sheet "
     "(lab.*); a σ of 0 is named in Check.",
     (_c("analysis", "Analysis", "text", width=10), _c("sample", "Sample", "text", width=10),
@@ -344,8 +345,9 @@ MEASURED = Sheet(
     "Measured", "Measured ratios of the spiked mixtures (run means)",
     "One row per element run: mixture ratios to the reference isotope, interference-stripped, NOT corrected "
     "for mass bias; 1σ absolute standard error of the run mean. Elements with a normalising pair are "
-    "internally normalised; give a bias factor β (exponential law) with its 1σ only for two-isotope elements "
-    "(Lu). Ratio names: <isotope>/<reference isotope> of the row's element (144Nd, 152Sm, 177Hf, 175Lu).",
+    "internally normalised (146Nd/144Nd, 147Sm/152Sm, 179Hf/177Hf, 86Sr/88Sr); a two-isotope element (Lu, Rb) "
+    "needs a bias factor β (exponential law) with its 1σ, e.g. from a reference-material run. Ratio names: "
+    "<isotope>/<reference isotope> of the row's element (144Nd, 152Sm, 177Hf, 175Lu, 86Sr, 85Rb).",
     (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
      _c("run_date", "Run date", "text", required=False, width=11), *_RATIO_COLS,
      _c("bias_factor", "β external (exp. law)", required=False, width=12, number_format="0.0000"),
@@ -378,7 +380,8 @@ _RESULT_SPEC = (
 )
 RESULTS = Sheet(
     "Results", "Results — one formula row per analysis (do not type here)",
-    "Parent/daughter ratio = 147Sm/144Nd or 176Lu/177Hf; daughter ratio = 143Nd/144Nd or 176Hf/177Hf, "
+    "Parent/daughter ratio = 147Sm/144Nd, 176Lu/177Hf or 87Rb/86Sr; daughter ratio = 143Nd/144Nd, 176Hf/177Hf "
+    "or 87Sr/86Sr, "
     "mass-bias, spike, blank and reference-material corrected. Random σ (measurement) feed the isochron; "
     "total σ add the spike calibration and the accepted value. ε relative to CHUR (Constants). "
     "Every uncertainty states its level (1σ/2σ) and form (abs/%/ppm).",
@@ -390,12 +393,13 @@ ANALYSIS_QUANTITIES = tuple(q for _k, _h, q, _f in _RESULT_SPEC if q)
 #: Results columns copied from the Samples sheet (no engine call).
 COPIED_FROM_SAMPLES = tuple(k for k, _h, q, _f in _RESULT_SPEC if not q)
 
-ISOCHRON_SYSTEMS = ("Sm-Nd", "Lu-Hf")
+ISOCHRON_SYSTEMS = ("Sm-Nd", "Lu-Hf", "Rb-Sr")
 ISOCHRON = Sheet(
     "Isochron", "Isochrons — choose the rows, read the ages",
     "Type analysis IDs in column A and 1 (use) or 0 (leave out) in column B; choose the scatter treatment. "
     "Ages in Ma. The fit is the York regression (York et al. 2004); ages use the decay constants of the "
-    "Constants sheet. The spike calibration scales every P/D ratio alike: it enters only the total age error.",
+    "Constants sheet. The spike calibration scales every P/D ratio alike: it enters only the total age error. "
+    "ε: εNd and εHf relative to CHUR, εSr relative to the uniform reservoir (Constants).",
     (_c("analysis", "Analysis", "text", width=10), _c("use", "Use (1/0)", "flag", width=9),
      _c("x", "P/D ratio", "computed", quantity="x", number_format="0.000000"),
      _c("x_1s", "P/D 1σ (abs, random)", "computed", quantity="x_1s", number_format="0.0E+00"),
@@ -426,7 +430,7 @@ ISOCHRON_QUANTITIES: Tuple[Tuple[str, str, str], ...] = (
     ("message", "Check", ""),
 )
 ISOCHRON_BLOCK_ROWS = 3 + len(ISOCHRON_QUANTITIES)  # title, system, treatment, quantities
-ISOCHRON_SUMMARY_COL = 8                            # column I (0-based 8): labels; J: Sm-Nd; K: Lu-Hf
+ISOCHRON_SUMMARY_COL = 8                            # column I (0-based 8): labels; J, K, L: the systems
 ISOCHRON_TREATMENT_ROW = FIRST_ROW + 1              # row with the treatment inputs
 ISOCHRON_FIRST_Q_ROW = FIRST_ROW + 3
 
@@ -441,7 +445,8 @@ SHEET_BY_NAME = {s.name: s for s in SHEETS}
 INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured")
 
 #: Isochron selection: one block of rows per system, Sm-Nd first.
-ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10, FIRST_ROW + 17)}
+ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10, FIRST_ROW + 17),
+                  "Rb-Sr": (FIRST_ROW + 20, FIRST_ROW + 27)}
 #: Each block has a header row and a key row right above it (rows 3-4 and 13-14).
 
 
@@ -819,8 +824,16 @@ def _system_of(text: str) -> str:
     return get_system(text).key
 
 
-_NORM_RATIO = {"Nd": "146Nd/144Nd", "Sm": "147Sm/152Sm", "Hf": "179Hf/177Hf"}
-_REFERENCE_ISOTOPE = {"Nd": "144Nd", "Sm": "152Sm", "Hf": "177Hf", "Lu": "175Lu"}
+_NORM_RATIO = {"Nd": "146Nd/144Nd", "Sm": "147Sm/152Sm", "Hf": "179Hf/177Hf", "Sr": "86Sr/88Sr"}
+_REFERENCE_ISOTOPE = {"Nd": "144Nd", "Sm": "152Sm", "Hf": "177Hf", "Lu": "175Lu", "Sr": "86Sr", "Rb": "85Rb"}
+
+
+def axis_titles(system: str) -> Tuple[str, str]:
+    """(x, y) axis titles of a system's isochron: its parent/daughter and daughter ratios."""
+    from .systems import get_system
+
+    s = get_system(system)
+    return f"{s.parent}/{s.reference}", s.daughter_ratio
 
 
 def _spike(spikes: Table, label: str, element: str, where: Callable[[str], CellError]) -> Any:
@@ -1141,7 +1154,7 @@ AnalysisOutcome = Tuple[Any, Any, float, Tuple[str, ...]]
 StandardLookup = Callable[[str, str, Callable[[str], CellError]], Any]
 
 #: The systems the template's sheets reduce (Samples column System).
-WORKBOOK_SYSTEMS = {"sm-nd": "Sm-Nd", "lu-hf": "Lu-Hf"}
+WORKBOOK_SYSTEMS = {"sm-nd": "Sm-Nd", "lu-hf": "Lu-Hf", "rb-sr": "Rb-Sr"}
 
 
 @lru_cache(maxsize=256)
@@ -1219,11 +1232,18 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
     p_spike = _spike(sp, label, p_el, at("spike"))
     d_spike = _spike(sp, label, d_el, at("spike"))
     p_mix, p_sig, p_bf, p_bf_s, _pi = _run(mt, analysis, p_el, at("analysis"))
-    d_mix, d_sig, _d_bf, _d_bf_s, _di = _run(mt, analysis, d_el, at("analysis"))
+    d_mix, d_sig, d_bf, _d_bf_s, d_i = _run(mt, analysis, d_el, at("analysis"))
+    if d_bf is not None:
+        raise mt.error(d_i, "bias_factor", f"{d_el} is normalised to {_NORM_RATIO[d_el]} within its own run, so a "
+                       "typed β would not be used: leave β and its 1σ empty on this row")
     std = standard(session, system.daughter_ratio, at("session"))
     ref = _refset(constants)
     naturals = _naturals(constants)
     kw: Dict[str, Any] = {}
+    if p_bf is None and p_el not in _NORM_RATIO:
+        raise mt.error(_pi, "bias_factor", f"{p_el} has two isotopes, so its run cannot normalise itself: type its "
+                       "mass-bias factor β (exponential law) and β 1σ, e.g. from a reference-material run of the "
+                       "same session")
     if p_bf is None:
         kw["parent_norm_ratio"] = _NORM_RATIO.get(p_el)
     else:
@@ -2132,7 +2152,7 @@ Layout = Dict[str, Dict[Tuple[int, int], CellSpec]]   # sheet -> (row, 0-based c
 ABOUT_SHEET = "About"
 ABOUT_LINES = (
     ("RatioDesk workbook", "title"),
-    ("Isotope dilution and isochron ages (Sm-Nd, Lu-Hf). Every result recalculates when an input or a "
+    ("Isotope dilution and isochron ages (Sm-Nd, Lu-Hf, Rb-Sr). Every result recalculates when an input or a "
      "reference value changes.", "note"),
     ("", "plain"),
     ("Yellow cells are inputs: type here. Blue cells are computed: they are protected against accidental "
@@ -2203,11 +2223,12 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
     iso[(FIRST_ROW, col0)] = CellSpec("Quantity", style="header")
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         iso[(FIRST_ROW, col0 + 1 + k)] = CellSpec(system, style="header")
-    iso[(FIRST_ROW, col0 + 3)] = CellSpec("Unit / level", style="header")
+    unit_col = col0 + 1 + len(ISOCHRON_SYSTEMS)
+    iso[(FIRST_ROW, unit_col)] = CellSpec("Unit / level", style="header")
     iso[(ISOCHRON_TREATMENT_ROW, col0)] = CellSpec("Scatter treatment", style="label")
     for k in range(len(ISOCHRON_SYSTEMS)):
         iso[(ISOCHRON_TREATMENT_ROW, col0 + 1 + k)] = CellSpec("analytical", style="input")
-    iso[(ISOCHRON_TREATMENT_ROW, col0 + 3)] = CellSpec("analytical, expanded, equal-weights, excess-variance",
+    iso[(ISOCHRON_TREATMENT_ROW, unit_col)] = CellSpec("analytical, expanded, equal-weights, excess-variance",
                                                         style="note")
     fmt = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_2s_total": "0.00", "x_scale_1s_pct": "0.0000",
            "age_95": "0.00", "initial": "0.0000000",
@@ -2215,7 +2236,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
            "slope": "0.0000000", "slope_1s": "0.0E+00", "n": "0", "mswd_low": "0.00", "mswd_high": "0.00"}
     for q_i, (q, label, unit) in enumerate(ISOCHRON_QUANTITIES):
         iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0)] = CellSpec(label, style="label")
-        iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 3)] = CellSpec(unit, style="note")
+        iso[(ISOCHRON_FIRST_Q_ROW + q_i, unit_col)] = CellSpec(unit, style="note")
         for k in range(len(ISOCHRON_SYSTEMS)):
             iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 1 + k)] = CellSpec(style="computed",
                                                                        number_format=fmt.get(q, "General"))
@@ -2400,8 +2421,7 @@ def _xlsx_charts(ws: Any) -> None:
         ch = ScatterChart()
         ch.title = f"{system} isochron — 95 % error ellipses"
         ch.style = 13
-        ch.x_axis.title = "147Sm/144Nd" if system == "Sm-Nd" else "176Lu/177Hf"
-        ch.y_axis.title = "143Nd/144Nd" if system == "Sm-Nd" else "176Hf/177Hf"
+        ch.x_axis.title, ch.y_axis.title = axis_titles(system)
         ch.legend = None
         ch.height, ch.width = 9.5, 16
         for i, (s_name, row) in enumerate(sel):

@@ -27,6 +27,7 @@ from reduction.workbook import (
     CellSpec,
     Layout,
     LogicalCell,
+    axis_titles,
     check_text,
     col_letter,
     ellipse_formulas,
@@ -172,7 +173,6 @@ CHART_NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
             'xmlns:fo="urn:oasis:names:tc:opendocument:xmlns:xsl-fo-compatible:1.0" '
             'xmlns:number="urn:oasis:names:tc:opendocument:xmlns:datastyle:1.0" '
             'xmlns:xlink="http://www.w3.org/1999/xlink"')
-_AXES = {"Sm-Nd": ("147Sm/144Nd", "143Nd/144Nd"), "Lu-Hf": ("176Lu/177Hf", "176Hf/177Hf")}
 
 
 def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
@@ -196,7 +196,7 @@ def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
             series.append(f'<chart:series chart:style-name="ser" chart:class="chart:scatter" '
                           f'chart:values-cell-range-address="{yr}"><chart:domain table:cell-range-address="{xr}"/>'
                           f"</chart:series>")
-        xl, yl = _AXES[system]
+        xl, yl = axis_titles(system)
         title = escape(f"{system} isochron — 95 % error ellipses")
         content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {CHART_NS} office:version="1.2">'
                    "<office:automatic-styles>"

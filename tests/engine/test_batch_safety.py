@@ -572,8 +572,9 @@ def test_a_10000_character_id_is_shortened_in_every_message(tmp_path, capsys):
     assert max(len(x) for x in err.splitlines()) < 600
 
 
-@pytest.mark.parametrize("system,problem", [("U-Pb", "unknown isotope system 'U-Pb': type one of Sm-Nd, Lu-Hf"),
-                                            ("Rb-Sr", "'Rb-Sr': the workbook reduces Sm-Nd and Lu-Hf only")])
+@pytest.mark.parametrize("system,problem", [("U-Pb", "unknown isotope system 'U-Pb': type one of Sm-Nd, Lu-Hf, "
+                                                     "Rb-Sr"),
+                                            ("K-Ar", "unknown isotope system 'K-Ar': type one of Sm-Nd, Lu-Hf, Rb-Sr")])
 def test_an_unknown_system_is_named_at_its_cell(tmp_path, capsys, system, problem):
     def edit(t):
         t["Samples"][4]["system"] = system

@@ -47,10 +47,21 @@ def test_scenario_has_the_fractions_the_study_needs():
         assert "whole rock" in k
         n_mineral = sum(1 for f in k if "garnet" in f or "leachate" in f)
         assert 3 <= n_mineral <= 5
+    # Rb-Sr: mica - feldspar - whole rock (issue 12)
+    assert {"whole rock", "biotite", "muscovite", "plagioclase", "K-feldspar"} <= set(kinds["rb-sr"])
     assert "fictional" in demo.SCENARIO["terrane"] and "fictional" in demo.SCENARIO["lab"]
 
 
-@pytest.mark.parametrize("system,key", [("Sm-Nd", "sm-nd"), ("Lu-Hf", "lu-hf")])
+SYSTEMS = [("Sm-Nd", "sm-nd"), ("Lu-Hf", "lu-hf"), ("Rb-Sr", "rb-sr")]
+
+
+def test_demo_checks_are_clean():
+    """No Check warning in the demo (no poor spike-sample mix, no σ = 0): a clean example for a newcomer."""
+    ev = _evaluate()
+    assert not ev.errors and not ev.warnings, ev.warnings
+
+
+@pytest.mark.parametrize("system,key", SYSTEMS)
 def test_demo_recovers_the_true_age_within_2_sigma(system, key):
     ev = _evaluate()
     age, a2 = _iso(ev, system, "age"), _iso(ev, system, "age_2s")
@@ -79,7 +90,7 @@ def test_noise_free_round_trip_is_exact(monkeypatch):
             got = ev.cells[("Results", row, RESULTS.col_index(key))]
             # the demo rounds measured ratios to 9 significant figures and β to 5 decimals
             assert got == pytest.approx(true, rel=1e-7), (fr.analysis, key)
-    for system, key in (("Sm-Nd", "sm-nd"), ("Lu-Hf", "lu-hf")):
+    for system, key in SYSTEMS:
         assert _iso(ev, system, "age") == pytest.approx(demo.TRUE_AGES_MA[key], abs=0.01)
 
 
@@ -88,7 +99,7 @@ def test_other_seeds_scatter_like_their_errors():
     z = []
     for seed in range(11, 17):
         ev = _evaluate(seed)
-        for system, key in (("Sm-Nd", "sm-nd"), ("Lu-Hf", "lu-hf")):
+        for system, key in SYSTEMS:
             z.append((_iso(ev, system, "age") - demo.TRUE_AGES_MA[key]) / (_iso(ev, system, "age_2s") / 2))
     rms = math.sqrt(sum(v * v for v in z) / len(z))
     assert 0.3 < rms < 2.0, z

@@ -34,12 +34,22 @@ from reduction.workbook import (  # noqa: E402
     ISOCHRON_SUMMARY_COL,
     ISOCHRON_SYSTEMS,
     KEY_ROW,
+    MEASURED,
     build_layout,
     write_xlsx,
 )
 
-LAMBDA = {"sm-nd": 6.54e-12, "lu-hf": 1.867e-11}
-ACCEPTED = {"JNdi-1": 0.512115, "JMC-475": 0.282161}
+LAMBDA = {"sm-nd": 6.54e-12, "lu-hf": 1.867e-11, "rb-sr": 1.42e-11}
+# NIST SRM 987 87Sr/86Sr = 0.710248 (Thirlwall 1991, Chem. Geol. 94, 85; recalled from memory)
+ACCEPTED = {"JNdi-1": 0.512115, "JMC-475": 0.282161, "NIST SRM 987": 0.710248}
+#: Per system: parent and daughter element, their reference isotopes, the radiogenic pair, the ratios each run
+#: reports, and the Samples System text (the template's conventions, written out here on their own).
+RUNS = {"sm-nd": ("Sm", "Nd", "152Sm", "144Nd", "147Sm", "143Nd", ("147Sm/152Sm", "149Sm/152Sm"),
+                  ("143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd"), "Sm-Nd"),
+        "lu-hf": ("Lu", "Hf", "175Lu", "177Hf", "176Lu", "176Hf", ("176Lu/175Lu",),
+                  ("176Hf/177Hf", "179Hf/177Hf", "180Hf/177Hf"), "Lu-Hf"),
+        "rb-sr": ("Rb", "Sr", "85Rb", "86Sr", "87Rb", "87Sr", ("87Rb/85Rb",), ("84Sr/86Sr", "87Sr/86Sr", "88Sr/86Sr"),
+                  "Rb-Sr")}
 SPIKES = json.loads((ind.DATA / "spikes.json").read_text())
 YEAR_MA = 1e6
 
@@ -100,12 +110,7 @@ def reduce_and_read(tmp_path, tables, selection, name="book"):
 def forward_analysis(system, analysis, x, y, d_ug_g, w_s, w_t, label, beta, blanks=(0.0, 0.0),
                      session="S1", beta_ext=None):
     """Samples and Measured rows of one noise-free analysis (independent arithmetic)."""
-    if system == "sm-nd":
-        p_el, d_el, p_ref, d_ref, p_iso, d_iso = "Sm", "Nd", "152Sm", "144Nd", "147Sm", "143Nd"
-        p_ratios, d_ratios = ("147Sm/152Sm", "149Sm/152Sm"), ("143Nd/144Nd", "146Nd/144Nd", "150Nd/144Nd")
-    else:
-        p_el, d_el, p_ref, d_ref, p_iso, d_iso = "Lu", "Hf", "175Lu", "177Hf", "176Lu", "176Hf"
-        p_ratios, d_ratios = ("176Lu/175Lu",), ("176Hf/177Hf", "179Hf/177Hf", "180Hf/177Hf")
+    p_el, d_el, p_ref, d_ref, p_iso, d_iso, p_ratios, d_ratios, system_text = RUNS[system]
     d_fr = ind.sample_fractions(d_el, {f"{d_iso}/{d_ref}": y})
     p_fr = ind.sample_fractions(p_el)
     d_umol_g = mp.mpf(d_ug_g) / ind.molar_mass(d_fr)           # µmol of Nd per g
@@ -126,8 +131,7 @@ def forward_analysis(system, analysis, x, y, d_ug_g, w_s, w_t, label, beta, blan
         if el == p_el and beta_ext is not None:
             row["bias_factor"], row["bias_factor_1s"] = b, 0.005
         rows.append(row)
-    sample = {"analysis": analysis, "sample": analysis, "fraction": "garnet", "system": "Sm-Nd" if system == "sm-nd"
-              else "Lu-Hf", "session": session, "sample_mass_g": w_s, "spike": label, "spike_mass_g": w_t,
+    sample = {"analysis": analysis, "sample": analysis, "fraction": "garnet", "system": system_text, "session": session, "sample_mass_g": w_s, "spike": label, "spike_mass_g": w_t,
               "parent_blank_ng": pb_ng, "daughter_blank_ng": db_ng,
               "sample_mass_1s_g": 2e-5, "spike_mass_1s_g": 2e-5}
     truth = {"x": x, "y": y, "daughter_conc": d_ug_g, "parent_conc": float(p_umol_g * ind.molar_mass(p_fr))}
@@ -142,14 +146,14 @@ def standard_rows(session, material, ratio, n=4, extra=()):
     return rows
 
 
-def isochron_set(system, t_ma, y0, xs, d_concs, masses, label, betas, blanks):
+def isochron_set(system, t_ma, y0, xs, d_concs, masses, label, betas, blanks, session="S1"):
     lam = LAMBDA[system]
     g = math.expm1(lam * t_ma * YEAR_MA)
     samples, measured, truths = [], [], {}
     for k, (x, c, (w_s, w_t)) in enumerate(zip(xs, d_concs, masses)):
         a = f"{system[:2].upper()}-{k + 1:02d}"
         s, m, tr = forward_analysis(system, a, x, y0 + x * g, c, w_s, w_t, label, betas[k], blanks,
-                                    beta_ext=True if system == "lu-hf" else None)
+                                    beta_ext=True if system in ("lu-hf", "rb-sr") else None, session=session)
         samples.append(s)
         measured += m
         truths[a] = tr
@@ -174,7 +178,7 @@ def _tables(sets, standards):
         samples += s
         measured += m
         truths.update(t)
-        els = ("Sm", "Nd") if spec["system"] == "sm-nd" else ("Lu", "Hf")
+        els = RUNS[spec["system"]][:2]
         spikes += spike_rows(spec["label"], els)
     return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured}, truths
 
@@ -284,3 +288,50 @@ def test_rb_sr_isochron_through_the_library():
     age = isochron_age(fit, "rb-sr")
     assert age.age_ma == pytest.approx(t_ma, rel=1e-6)
     assert age.initial == pytest.approx(y0, rel=1e-8)
+
+
+# Rb-Sr: a mica - feldspar - whole-rock line. Spike masses chosen per sample so the 84Sr/86Sr mix is near
+# its optimum (the invented demo-RbSr-87-84 mixed spike); β of Rb typed (two isotopes), Sr normalised.
+RBSR = dict(system="rb-sr", t_ma=385.0, y0=0.70480, xs=(0.058, 1.74, 4.3, 27.5, 96.0),
+            d_concs=(560.0, 215.0, 150.0, 21.0, 6.2),
+            masses=((0.030, 0.60), (0.050, 0.50), (0.040, 0.30), (0.030, 0.030), (0.025, 0.008)),
+            label="demo-RbSr-87-84", betas=[(1.10, -0.90), (1.05, -0.85), (1.12, -0.95), (1.08, -0.88), (1.0, -0.8)],
+            blanks=(0.005, 0.05), session="S2")
+
+
+def test_rb_sr_comes_back_through_the_template(tmp_path):
+    """Rb-Sr through the template: 87Rb/86Sr, 87Sr/86Sr (normalised to 86Sr/88Sr = 0.1194, Steiger & Jäger
+    1977), concentrations, the age with λ(87Rb) = 1.42e-11 /a (Steiger & Jäger 1977) and the initial ratio."""
+    tables, truths = _tables((RBSR,), standard_rows("S2", "NIST SRM 987", "87Sr/86Sr"))
+    results, ages, wb = reduce_and_read(tmp_path, tables, {"Rb-Sr": list(truths)})
+    assert set(results) == set(truths)
+    for a, tr in truths.items():
+        r = results[a]
+        assert r["x"] == pytest.approx(tr["x"], rel=1e-8), a
+        assert r["y"] == pytest.approx(tr["y"], rel=1e-8), a
+        assert r["daughter_conc"] == pytest.approx(tr["daughter_conc"], rel=1e-7), a
+        assert r["parent_conc"] == pytest.approx(tr["parent_conc"], rel=1e-7), a
+        assert r["x_1s"] > 0 and r["y_1s"] > 0
+    assert ages["Rb-Sr"]["age"] == pytest.approx(RBSR["t_ma"], rel=1e-6)
+    assert ages["Rb-Sr"]["initial"] == pytest.approx(RBSR["y0"], rel=1e-8)
+    assert ages["Rb-Sr"]["n"] == 5
+    # εSr at the age relative to the uniform reservoir of the Constants sheet: a finite number, typed units
+    assert isinstance(ages["Rb-Sr"]["eps_t"], float)
+    ws = wb["Isochron"]
+    assert ws.cell(FIRST_ROW, ISOCHRON_SUMMARY_COL + 2 + ISOCHRON_SYSTEMS.index("Rb-Sr")).value == "Rb-Sr"
+
+
+def test_rb_without_a_bias_factor_is_named_at_its_cell(tmp_path, capsys):
+    """Rb has two isotopes: without a typed β the Results row names the Measured cell, nothing is guessed."""
+    tables, truths = _tables((dict(RBSR, xs=RBSR["xs"][:2], d_concs=RBSR["d_concs"][:2], masses=RBSR["masses"][:2]),),
+                             standard_rows("S2", "NIST SRM 987", "87Sr/86Sr"))
+    rb_row = next(i for i, m in enumerate(tables["Measured"]) if m["element"] == "Rb")
+    del tables["Measured"][rb_row]["bias_factor"]
+    del tables["Measured"][rb_row]["bias_factor_1s"]
+    path = tmp_path / "b.xlsx"
+    fill_template(path, tables, {"Rb-Sr": list(truths)})
+    rc = main(["reduce", str(path), "-o", str(tmp_path / "out")])
+    err = capsys.readouterr().err
+    assert rc != 0
+    cell = f"Measured, row {FIRST_ROW + rb_row}, column {MEASURED.letter('bias_factor')} (β external (exp. law))"
+    assert f"{cell}: Rb has two isotopes" in err, err

@@ -433,13 +433,14 @@ def test_ods_isochron_sheet_embeds_one_scatter_chart_per_system_reading_the_elli
     with zipfile.ZipFile(tmp_path / "d.ods") as z:
         content = ET.fromstring(z.read("content.xml"))
         manifest = ET.fromstring(z.read("META-INF/manifest.xml"))
-        charts = {n: ET.fromstring(z.read(f"{n}/content.xml")) for n in ("Object 1", "Object 2")}
+        names = [f"Object {k + 1}" for k in range(len(ISOCHRON_SYSTEMS))]
+        charts = {n: ET.fromstring(z.read(f"{n}/content.xml")) for n in names}
     media = {e.get(f"{{{ns['manifest']}}}full-path"): e.get(f"{{{ns['manifest']}}}media-type")
              for e in manifest}
-    assert media["Object 1/"] == media["Object 2/"] == "application/vnd.oasis.opendocument.chart"
+    assert {media[f"{n}/"] for n in names} == {"application/vnd.oasis.opendocument.chart"}
     iso = next(t for t in content.iter(f"{{{ns['table']}}}table") if t.get(f"{{{ns['table']}}}name") == "Isochron")
     hrefs = [o.get(f"{{{ns['xlink']}}}href") for o in iso.iter(f"{{{ns['draw']}}}object")]
-    assert hrefs == ["./Object 1", "./Object 2"]
+    assert hrefs == [f"./{n}" for n in names] and len(names) == 3   # Sm-Nd, Lu-Hf, Rb-Sr
     tops = {srow: left for (_t, left), (_f, srow) in ellipse_formulas().items()}
     last = FIRST_ROW + ELLIPSE_POINTS
     for k, system in enumerate(ISOCHRON_SYSTEMS):
