@@ -131,7 +131,8 @@ def forward_analysis(system, analysis, x, y, d_ug_g, w_s, w_t, label, beta, blan
         if el == p_el and beta_ext is not None:
             row["bias_factor"], row["bias_factor_1s"] = b, 0.005
         rows.append(row)
-    sample = {"analysis": analysis, "sample": analysis, "fraction": "garnet", "system": system_text, "session": session, "sample_mass_g": w_s, "spike": label, "spike_mass_g": w_t,
+    sample = {"analysis": analysis, "sample": analysis, "fraction": "garnet", "system": system_text, "session": session,
+              "sample_mass_g": w_s, "spike": label, "spike_mass_g": w_t,
               "parent_blank_ng": pb_ng, "daughter_blank_ng": db_ng,
               "sample_mass_1s_g": 2e-5, "spike_mass_1s_g": 2e-5}
     truth = {"x": x, "y": y, "daughter_conc": d_ug_g, "parent_conc": float(p_umol_g * ind.molar_mass(p_fr))}
