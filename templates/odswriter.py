@@ -29,6 +29,8 @@ from reduction.workbook import (
     LogicalCell,
     axis_titles,
     check_text,
+    choice_cells,
+    choices,
     col_letter,
     ellipse_formulas,
     selection_rows,
@@ -114,10 +116,13 @@ def _display(v: Any) -> str:
     return str(v)
 
 
-def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only: bool, where: str = "") -> str:
+def _cell_xml(spec: Optional[CellSpec], sheet: str, styles: _Styles, values_only: bool, where: str = "",
+              validation: Optional[str] = None) -> str:
     if spec is None:
         return "<table:table-cell/>"
     attrs = [f'table:style-name="{styles.cell(spec.style, spec.number_format)}"']
+    if validation:
+        attrs.append(f'table:content-validation-name="{validation}"')
     if spec.formula is not None and not values_only:
         attrs.append("table:formula=" + quoteattr(spec.formula.render(sheet, "ods")))
         if spec.array:
@@ -243,8 +248,10 @@ def _table_xml(name: str, cells: Mapping[Tuple[int, int], CellSpec], styles: _St
     for j in range(n_cols):
         out.append(f'<table:table-column table:style-name="{styles.column(widths.get(j, 12.0))}" '
                    f'table:default-cell-style-name="Default"/>')
+    dv = {} if values_only else {(r, c): ch.name for (s, r, c), ch in choice_cells().items() if s == name}
     for r in range(1, n_rows + 1):
-        row = [_cell_xml(cells.get((r, c)), name, styles, values_only, f"{col_letter(c)}{r}") for c in range(n_cols)]
+        row = [_cell_xml(cells.get((r, c)), name, styles, values_only, f"{col_letter(c)}{r}", dv.get((r, c)))
+               for c in range(n_cols)]
         for (ar, ac), frame in anchored.items():
             if ar == r:
                 x = row[ac]
@@ -264,6 +271,32 @@ def _rows_as_cells(rows: Sequence[Sequence[Any]]) -> Dict[Tuple[int, int], CellS
     return out
 
 
+def _validations_xml() -> str:
+    """ODF 1.2 table:content-validations for the template's drop-down lists (reduction.workbook.choices)."""
+    out = ["<table:content-validations>"]
+    for c in choices():
+        if c.whole_0_1:
+            cond = "of:cell-content-is-whole-number() and of:cell-content-is-between(0;1)"
+        elif c.source is not None:
+            sheet, letter, r1, r2 = c.source_range()
+            cond = f"of:cell-content-is-in-list([${sheet}.${letter}${r1}:.${letter}${r2}])"
+        else:
+            cond = "of:cell-content-is-in-list(" + ";".join('"' + v.replace('"', '""') + '"' for v in c.values) + ")"
+        base = f"{c.sheet}.{col_letter(c.col)}{min(c.rows)}"
+        kind = "stop" if c.strict else "warning"
+        msg = (f"{c.title}: choose a value from the list" if c.strict else
+               f"{c.title}: not one of the usual values; keep it?")
+        listing = "" if c.whole_0_1 else ' table:display-list="unsorted"'
+        out.append(f"<table:content-validation table:name={quoteattr(c.name)} table:condition={quoteattr(cond)} "
+                   f'table:allow-empty-cell="true"{listing} table:base-cell-address={quoteattr(base)}>'
+                   f'<table:help-message table:title={quoteattr(c.title)} table:display="true">'
+                   f"<text:p>{escape(c.help)}</text:p></table:help-message>"
+                   f'<table:error-message table:title="RatioDesk" table:message-type="{kind}" table:display="true">'
+                   f"<text:p>{escape(msg)}</text:p></table:error-message></table:content-validation>")
+    out.append("</table:content-validations>")
+    return "".join(out)
+
+
 def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: bool = True,
               extra_sheets: Optional[Mapping[str, Sequence[Sequence[Any]]]] = None) -> None:
     """Write a layout as an .ods file (formulas with cached values unless ``values_only``)."""
@@ -277,9 +310,10 @@ def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: boo
                                  anchored={a: f for _n, _c, f, a in charts} if name == "Isochron" else None))
     for name, rows in (extra_sheets or {}).items():
         tables.append(_table_xml(name, _rows_as_cells(rows), styles, True, False))
+    validations = "" if values_only else _validations_xml()
     content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {NS} office:version="1.2">'
                f"<office:automatic-styles>{styles.xml()}</office:automatic-styles>"
-               f"<office:body><office:spreadsheet>{''.join(tables)}</office:spreadsheet></office:body>"
+               f"<office:body><office:spreadsheet>{validations}{''.join(tables)}</office:spreadsheet></office:body>"
                f"</office:document-content>")
     styles_xml = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-styles {NS} office:version="1.2">'
                   '<office:styles><style:style style:name="Default" style:family="table-cell"/></office:styles>'

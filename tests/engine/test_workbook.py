@@ -452,3 +452,45 @@ def test_ods_isochron_sheet_embeds_one_scatter_chart_per_system_reading_the_elli
                  f"Isochron.{col_letter(tops[r] + 1)}{FIRST_ROW}:Isochron.{col_letter(tops[r] + 1)}{last}")
                 for s_name, r in selection_rows() if s_name == system]
         assert got == want
+
+
+def test_drop_down_lists_are_written_into_xlsx_and_ods(tmp_path):
+    """Issue 12: system, element, fraction, spike label, material, ratio names, role, Use and treatment cells carry
+    a drop-down list (data validity) in both formats; the spike list reads the Spikes sheet's labels live."""
+    import xml.etree.ElementTree as ET
+    import zipfile
+
+    from openpyxl import load_workbook
+
+    from reduction.workbook import SAMPLES, choices, write_xlsx
+
+    cs = {c.name: c for c in choices()}
+    assert cs["rd_system"].values == ("Sm-Nd", "Lu-Hf", "Rb-Sr")
+    assert "143Nd/144Nd" in cs["rd_ratio_name1"].values and "87Rb/85Rb" in cs["rd_ratio_name1"].values
+    assert "144Nd/144Nd" not in cs["rd_ratio_name1"].values
+    lay = build_layout()
+    write_xlsx(lay, tmp_path / "t.xlsx")
+    ws = load_workbook(tmp_path / "t.xlsx")["Samples"]
+    by_formula = {dv.formula1: dv for dv in ws.data_validations.dataValidation}
+    system = by_formula['"Sm-Nd,Lu-Hf,Rb-Sr"']
+    col = SAMPLES.letter("system")
+    assert str(system.sqref) == f"{col}{FIRST_ROW}:{col}{SAMPLES.last_row}" and system.errorStyle == "stop"
+    spike = by_formula[f"'Spikes'!$A${FIRST_ROW}:$A$24"]
+    assert spike.type == "list"
+    fraction = next(dv for f, dv in by_formula.items() if f.startswith('"whole rock'))
+    assert fraction.errorStyle == "warning"           # another fraction word is kept after a question
+    write_ods(lay, tmp_path / "t.ods")
+    ns = {"table": "urn:oasis:names:tc:opendocument:xmlns:table:1.0"}
+    root = ET.fromstring(zipfile.ZipFile(tmp_path / "t.ods").read("content.xml"))
+    vals = {v.get(f"{{{ns['table']}}}name"): v.get(f"{{{ns['table']}}}condition")
+            for v in root.iter(f"{{{ns['table']}}}content-validation")}
+    assert set(vals) == set(cs)
+    assert vals["rd_spike"] == f"of:cell-content-is-in-list([$Spikes.$A${FIRST_ROW}:.$A$24])"
+    assert vals["rd_system"] == 'of:cell-content-is-in-list("Sm-Nd";"Lu-Hf";"Rb-Sr")'
+    samples = next(t for t in root.iter(f"{{{ns['table']}}}table") if t.get(f"{{{ns['table']}}}name") == "Samples")
+    row5 = list(samples.iter(f"{{{ns['table']}}}table-row"))[FIRST_ROW - 1]
+    cell = list(row5)[SAMPLES.col_index("system")]
+    assert cell.get(f"{{{ns['table']}}}content-validation-name") == "rd_system"
+    # the collaborator copy (values only) carries no validity rules
+    write_ods(lay, tmp_path / "v.ods", values_only=True)
+    assert b"content-validation" not in zipfile.ZipFile(tmp_path / "v.ods").read("content.xml")
