@@ -1314,6 +1314,11 @@ def rdWorkbookStandard(quantity: Any, session: Any, material: Any, ratio: Any, m
 
 
 @cell_function()
+def rdWorkbookRunRatios(element: Any, spikeIsotope: Any = None) -> Any:
+    return cell(engine("workbook").run_ratios(text("element", element), text("spikeIsotope", spikeIsotope, "")))
+
+
+@cell_function()
 def rdWorkbookIsochron(quantity: Any, system: Any, treatment: Any, selection: Any, results: Any,
                        refValues: Any) -> Any:
     return cell(engine("workbook").isochron_value(text("quantity", quantity), _isotope_text("system", system),

@@ -420,6 +420,13 @@ FUNCTIONS: Tuple[Function, ...] = (
              "(version, folder, whether LibreOffice's own or the one bundled with RatioDesk) or why it is "
              "missing, the engine, the RatioDesk package that fits this LibreOffice, the log file, and what to "
              "do. Works without numpy.", (), "(none)", "array"),
+    Function("rdWorkbookRunRatios", "RD.WORKBOOK.RUNRATIOS", "workbook",
+             "The ratios a Measured run of an element must give with a spike enriched in the given isotope (the "
+             "Spikes sheet's last column): radiogenic or parent, normalising and spike isotope, each to the "
+             "element's reference isotope; for Lu and Rb also the typed bias factor.",
+             (_c("element", "Element of the spike row: Sm, Nd, Lu, Hf, Rb or Sr."),
+              _v("spikeIsotope", "Optional: the spike's enriched isotope, e.g. 150Nd.")),
+             "workbook.run_ratios"),
 )
 
 BY_METHOD: Dict[str, Function] = {f.method: f for f in FUNCTIONS}

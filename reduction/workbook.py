@@ -284,7 +284,8 @@ SPIKES = Sheet(
     (_c("spike", "Spike", "text", width=14), _c("element", "Element", "text", width=8),
      _c("calibrated", "Calibrated on", "text", width=12), _c("spike_isotope", "Spike isotope", "text", width=10),
      _c("conc_umol_g", "Spike isotope (µmol/g)", width=14, number_format="0.000000"),
-     _c("conc_sigma_1s", "1σ (abs, µmol/g)", width=14, number_format="0.00E+00"), *_ISO_COLS),
+     _c("conc_sigma_1s", "1σ (abs, µmol/g)", width=14, number_format="0.00E+00"), *_ISO_COLS,
+     _c("run_ratios", "A run of this element on Measured must give", "computed", quantity="run_ratios", width=44)),
     capacity=20)
 
 #: The reference material a session normalises to when no row of the session says "primary".
@@ -834,6 +835,39 @@ def axis_titles(system: str) -> Tuple[str, str]:
 
     s = get_system(system)
     return f"{s.parent}/{s.reference}", s.daughter_ratio
+
+
+#: Per element: the isotopes (besides the spike isotope) whose ratio to the reference isotope every run must
+#: give — the radiogenic or parent isotope and the normalising isotope (the template's conventions).
+_RUN_ISOTOPES = {"Sm": ("147Sm",), "Nd": ("143Nd", "146Nd"), "Lu": ("176Lu",), "Hf": ("176Hf", "179Hf"),
+                 "Rb": ("87Rb",), "Sr": ("87Sr", "88Sr")}
+
+
+def run_ratios(element: str, spike_isotope: str = "") -> str:
+    """The ratios a Measured run of ``element`` must give with a spike enriched in ``spike_isotope``.
+
+    The radiogenic (daughter) or parent isotope, the normalising isotope (146Nd, 147Sm, 179Hf; 88Sr for
+    86Sr/88Sr) and the spike isotope, each to the element's reference isotope, in mass order; a two-isotope
+    element (Lu, Rb) also needs its typed β. Raises :class:`InputError` naming ``element`` or
+    ``spike_isotope``.
+    """
+    from .dilution import element_isotopes
+
+    el = str(element).strip().capitalize()          # typed in any case: "nd", "ND" -> "Nd"
+    if el not in _RUN_ISOTOPES:
+        raise InputError("element", f"{shown(el)} is not an element the template reduces: one of {', '.join(ELEMENTS)}")
+    iso = str(spike_isotope).strip()
+    digits = iso[:len(iso) - len(iso.lstrip("0123456789"))]
+    iso = digits + iso[len(digits):].capitalize()
+    isos = element_isotopes(el)
+    if iso and iso not in isos:
+        raise InputError("spike_isotope", f"{shown(iso)} is not an isotope of {el} (one of {', '.join(isos)})")
+    ref = _REFERENCE_ISOTOPE[el]
+    need = set(_RUN_ISOTOPES[el]) | ({iso} if iso and iso != ref else set())
+    text = ", ".join(f"{i}/{ref}" for i in isos if i in need)
+    if el not in _NORM_RATIO:
+        text += f"; and β with its 1σ ({el} has two isotopes)"
+    return text
 
 
 def _spike(spikes: Table, label: str, element: str, where: Callable[[str], CellError]) -> Any:
@@ -1611,6 +1645,14 @@ def standards_formula(column: Column, row: int) -> Formula:
     return Formula("rdWorkbookStandard", args, guard=here("session"))
 
 
+def spikes_formula(row: int) -> Formula:
+    """The Spikes sheet's computed cell: the ratios a run of the row's element must give."""
+    def here(key: str) -> Ref:
+        return Ref("Spikes", SPIKES.col_index(key), row, absolute=False, abs_col_only=True)
+
+    return Formula("rdWorkbookRunRatios", (here("element"), here("spike_isotope")), guard=here("element"))
+
+
 def isochron_point_formula(column: Column, row: int) -> Formula:
     """x, sx, y, sy, ρ of a selected row: looked up on the Results sheet by analysis ID."""
     here = Ref("Isochron", 0, row, absolute=False, abs_col_only=True)
@@ -1724,6 +1766,8 @@ def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
         for j, c in enumerate(STANDARDS.columns):
             if c.computed:
                 out[("Standards", row, j)] = standards_formula(c, row)
+    for row in range(FIRST_ROW, SPIKES.last_row + 1):
+        out[("Spikes", row, SPIKES.col_index("run_ratios"))] = spikes_formula(row)
     for row in range(FIRST_ROW, RESULTS.last_row + 1):
         for j, c in enumerate(RESULTS.columns):
             out[("Results", row, j)] = results_formula(c, row)
@@ -2014,6 +2058,21 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
                 v = run(lambda c=c, i=i: standard_cell(c.quantity, i))
             put("Standards", row, j, v)
 
+    # Spikes: what a run of each row's element must give
+    spk_t = book.spikes
+    j_rr = SPIKES.col_index("run_ratios")
+    for i in range(min(len(spk_t.rows), SPIKES.capacity if extent == "template" else len(spk_t.rows))):
+        if spk_t.get(i, "element") == "":
+            continue
+
+        def rr(i: int = i) -> str:
+            try:
+                return run_ratios(spk_t.text(i, "element"), spk_t.text(i, "spike_isotope", required=False))
+            except InputError as exc:
+                raise spk_t.error(i, "spike_isotope" if exc.argument == "spike_isotope" else "element",
+                                  exc.problem) from None
+        put("Spikes", FIRST_ROW + i, j_rr, run(rr))
+
     # Samples -> Results: each analysis reduced once, every Results column read from that
     samples = book.samples
     for i in range(len(samples.rows)):
@@ -2240,7 +2299,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         for k in range(len(ISOCHRON_SYSTEMS)):
             iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 1 + k)] = CellSpec(style="computed",
                                                                        number_format=fmt.get(q, "General"))
-    targets = {"Results": res, "Isochron": iso, "Standards": lay["Standards"]}
+    targets = {"Results": res, "Isochron": iso, "Standards": lay["Standards"], "Spikes": lay["Spikes"]}
     for (sheet, row, col), f in formulas.items():
         target = targets[sheet]
         spec = target.get((row, col)) or CellSpec(style="computed")

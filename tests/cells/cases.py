@@ -328,6 +328,12 @@ PART2: List[Case] = [
     Case("msg-workbook-isochron", "rdWorkbookIsochron",
          (L("age"), L("Sm-Nd"), OMIT, R((("analysis", "use"), ("QM-1", 1.0))), R((("analysis",), (None,))),
           R((("a",),))), Msg(("Isochron, row 5", "'QM-1' is not on the Results sheet"))),
+    Case("workbook-run-ratios", "rdWorkbookRunRatios", (L("Nd"), L("150Nd")),
+         lambda: "143Nd/144Nd, 146Nd/144Nd, 150Nd/144Nd"),     # hand-written: what the demo's Nd runs give
+    Case("workbook-run-ratios-rb", "rdWorkbookRunRatios", (L("rb"), L("87rb")),
+         lambda: "87Rb/85Rb; and β with its 1σ (Rb has two isotopes)"),
+    Case("msg-workbook-run-ratios", "rdWorkbookRunRatios", (L("Nd"), L("150Sm")),
+         Msg(("'150Sm' is not an isotope of Nd",))),
     Case("analysis-row", "rdAnalysisRow",
          (L("sm-nd"), _SM_NAMES, _SM_VALUES, _ND_NAMES, _ND_VALUES, L(0.30), L(0.08), spike_block(SM_SPIKE),
           spike_block(ND_SPIKE), R((tuple(SM_MIX_1S[k] for k in SM_KEYS),)),
