@@ -390,6 +390,31 @@ RESULTS = Sheet(
           for k, h, q, f in _RESULT_SPEC),
     capacity=60)
 
+# Steps: the chain's intermediate values of every analysis, one row per Results row (issue 12)
+_STEP_SPEC = (
+    ("analysis", "Analysis", "", "General"), ("system", "System", "", "General"),
+    ("beta_parent", "β parent (exp. law)", "beta_parent", "0.00000"),
+    ("beta_daughter", "β daughter (exp. law)", "beta_daughter", "0.00000"),
+    ("mag_parent", "Error magnification, parent mix", "mag_parent", "0.000"),
+    ("mag_daughter", "Error magnification, daughter mix", "mag_daughter", "0.000"),
+    ("iterations", "Spike-stripping iterations (daughter)", "iterations", "0"),
+    ("blank_share_parent_pct", "Parent blank share (%)", "blank_share_parent_pct", "0.0000"),
+    ("blank_share_daughter_pct", "Daughter blank share (%)", "blank_share_pct", "0.0000"),
+    ("std_factor", "Session factor (accepted / mean of primary)", "std_factor", "0.0000000"),
+    ("std_factor_1s", "Session factor 1σ (abs, random)", "std_factor_1s", "0.0E+00"),
+    ("std_runs", "Primary runs in the session", "std_runs", "0"),
+    ("y_before_factor", "Daughter ratio before the session factor", "y_before_factor", "0.0000000"),
+)
+STEPS = Sheet(
+    "Steps", "Steps — what each stage of the chain did, one row per analysis (do not type here)",
+    "Mass-bias factors β (exponential law; internal normalisation, or the typed value for Lu and Rb), the error "
+    "magnification of each spike-sample mix (1 = no loss; Check warns at twice the optimum), spike-stripping "
+    "iterations, blank shares (blank / total atoms of the element's reference isotope: 152Sm, 144Nd, 175Lu, "
+    "177Hf, 85Rb, 86Sr), and the session factor that normalises the daughter ratio to the primary reference "
+    "material. Read with the Results row of the same analysis.",
+    tuple(_c(k, h, "computed", quantity=q or k, number_format=f, width=13 if q else 11) for k, h, q, f in _STEP_SPEC),
+    capacity=60)
+
 ANALYSIS_QUANTITIES = tuple(q for _k, _h, q, _f in _RESULT_SPEC if q)
 #: Results columns copied from the Samples sheet (no engine call).
 COPIED_FROM_SAMPLES = tuple(k for k, _h, q, _f in _RESULT_SPEC if not q)
@@ -441,7 +466,9 @@ ELLIPSE_COL0 = 13
 ELLIPSE_POINTS = 32
 ELLIPSE_CONFIDENCE = 0.95
 
-SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, RESULTS, ISOCHRON)
+SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, RESULTS, STEPS, ISOCHRON)
+#: The computed sheets with one formula row per Samples row.
+ROW_SHEETS: Tuple[Sheet, ...] = (RESULTS, STEPS)
 SHEET_BY_NAME = {s.name: s for s in SHEETS}
 INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured")
 
@@ -1184,7 +1211,7 @@ def _plausibility(res: Any, system: Any, sample_mass: float, spike_mass: float) 
     return out
 
 
-AnalysisOutcome = Tuple[Any, Any, float, Tuple[str, ...]]
+AnalysisOutcome = Tuple[Any, Any, float, Tuple[str, ...], Any]   # result, ε, spike x scale, warnings, session factor
 StandardLookup = Callable[[str, str, Callable[[str], CellError]], Any]
 
 #: The systems the template's sheets reduce (Samples column System).
@@ -1303,7 +1330,7 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
         zero.append("measured ratio")
     if zero:
         warn.append("σ = 0 (nothing typed, no lab default) for: " + ", ".join(dict.fromkeys(zero)))
-    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike), tuple(warn)
+    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike), tuple(warn), std
 
 
 def analysis_checks(analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any
@@ -1354,7 +1381,7 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
 
 def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
     """:func:`analysis_value` once the analysis is reduced."""
-    res, eps, x_scale, warnings = outcome
+    res, eps, x_scale, warnings, std = outcome
     rnd = res.sigma_1s_random
     q = quantity.strip().lower()
     table: Dict[str, Callable[[], Any]] = {
@@ -1369,6 +1396,11 @@ def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
         "rho": lambda: res.rho_random, "eps0": lambda: eps.value, "eps0_2s": lambda: 2 * eps.sigma_1s,
         "blank_share_pct": lambda: 100 * res.blank_share_daughter,
         "check": lambda: ("ok" if not warnings else MARKER + "; ".join(warnings)),
+        "beta_parent": lambda: res.parent_bias_factor, "beta_daughter": lambda: res.daughter_bias_factor,
+        "mag_parent": lambda: res.parent_magnification, "mag_daughter": lambda: res.daughter_magnification,
+        "iterations": lambda: res.iterations, "blank_share_parent_pct": lambda: 100 * res.blank_share_parent,
+        "std_factor": lambda: std.factor, "std_factor_1s": lambda: std.factor_sigma_1s_random,
+        "std_runs": lambda: std.n, "y_before_factor": lambda: res.daughter_ratio / std.factor,
     }
     if q not in table:
         raise InputError("quantity", f"unknown quantity {quantity!r}; use one of {', '.join(table)}")
@@ -1624,9 +1656,9 @@ def isochron_selection_ref(system: str) -> Ref:
     return Ref("Isochron", 0, first - 1, len(ISOCHRON.columns) - 1, last)
 
 
-def results_formula(column: Column, row: int) -> Formula:
-    """The formula of one Results cell (row is the sheet row)."""
-    here = Ref("Results", 0, row, absolute=False, abs_col_only=True)
+def results_formula(column: Column, row: int, sheet: str = "Results") -> Formula:
+    """The formula of one Results (or Steps) cell (row is the sheet row)."""
+    here = Ref(sheet, 0, row, absolute=False, abs_col_only=True)
     if column.quantity in COPIED_FROM_SAMPLES:
         src = Ref("Samples", SAMPLES.col_index(column.quantity), row, absolute=False)
         return Formula("IF", (Formula("ISBLANK", (src,), addin=False), "", src), addin=False)
@@ -1768,9 +1800,10 @@ def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
                 out[("Standards", row, j)] = standards_formula(c, row)
     for row in range(FIRST_ROW, SPIKES.last_row + 1):
         out[("Spikes", row, SPIKES.col_index("run_ratios"))] = spikes_formula(row)
-    for row in range(FIRST_ROW, RESULTS.last_row + 1):
-        for j, c in enumerate(RESULTS.columns):
-            out[("Results", row, j)] = results_formula(c, row)
+    for sh in ROW_SHEETS:
+        for row in range(FIRST_ROW, sh.last_row + 1):
+            for j, c in enumerate(sh.columns):
+                out[(sh.name, row, j)] = results_formula(c, row, sh.name)
     for first, last in ISOCHRON_BLOCK.values():
         for row in range(first, last + 1):
             for j, c in enumerate(ISOCHRON.columns):
@@ -2023,7 +2056,8 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
     res_last = max(RESULTS.last_row, last["Samples"])
     # clear computed cells first (a workbook from LibreOffice carries cached values); every row of the
     # Results sheet is computed, so rows below the template's are cleared too
-    del work.setdefault("Results", [])[KEY_ROW:]
+    for sh in ROW_SHEETS:
+        del work.setdefault(sh.name, [])[KEY_ROW:]
     for (sheet, row, col) in expected_formulas():
         put(sheet, row, col, "")
     std_computed = [j for j, c in enumerate(STANDARDS.columns) if c.computed]
@@ -2089,22 +2123,23 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
             a = str(analysis).strip() if not isinstance(analysis, float) else f"{analysis:g}"
             if a:
                 outcome = run(lambda a=a: book.analysis(a))
-        for j, c in enumerate(RESULTS.columns):
-            if c.quantity in COPIED_FROM_SAMPLES:
-                v = samples.get(i, c.quantity)
-                if isinstance(v, FormulaCell):
-                    v = run(lambda i=i, c=c: samples.text(i, c.quantity))
-                put("Results", row, j, v)
-                continue
-            if outcome is None:
-                v = ""
-            elif isinstance(outcome, str):
-                v = outcome
-            else:
-                v = run(lambda c=c, o=outcome: _analysis_cell(c.quantity, o))
-            put("Results", row, j, v)
-            if c.quantity == "check" and isinstance(v, str) and v.startswith(MARKER) and "poor" in v:
-                warnings.append(f"Results!{col_letter(j)}{row}: {v[len(MARKER):]}")
+        for sh in ROW_SHEETS:
+            for j, c in enumerate(sh.columns):
+                if c.quantity in COPIED_FROM_SAMPLES:
+                    v = samples.get(i, c.quantity)
+                    if isinstance(v, FormulaCell):
+                        v = run(lambda i=i, c=c: samples.text(i, c.quantity))
+                    put(sh.name, row, j, v)
+                    continue
+                if outcome is None:
+                    v = ""
+                elif isinstance(outcome, str):
+                    v = outcome
+                else:
+                    v = run(lambda c=c, o=outcome: _analysis_cell(c.quantity, o))
+                put(sh.name, row, j, v)
+                if c.quantity == "check" and isinstance(v, str) and v.startswith(MARKER) and "poor" in v:
+                    warnings.append(f"Results!{col_letter(j)}{row}: {v[len(MARKER):]}")
     orphans = unmatched_runs(samples, book.measured)
     warnings.extend(orphans)
     if orphans and extent == "template":     # the template's own cell says so, as Calc does
@@ -2258,12 +2293,14 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         _table_layout(sheet, list(rows or (constants_rows() if sheet is CONSTANTS else ())), cells)
         lay[sheet.name] = cells
     formulas = expected_formulas()
-    res: Dict[Tuple[int, int], CellSpec] = {}
-    res[(TITLE_ROW, 0)] = CellSpec(RESULTS.title, style="title")
-    res[(NOTE_ROW, 0)] = CellSpec(RESULTS.note, style="note")
-    for j, c in enumerate(RESULTS.columns):
-        res[(HEADER_ROW, j)] = CellSpec(c.header, style="header")
-        res[(KEY_ROW, j)] = CellSpec(c.key, style="key")
+    row_sheets: Dict[str, Dict[Tuple[int, int], CellSpec]] = {}
+    for sh in ROW_SHEETS:
+        cells_ = row_sheets[sh.name] = {}
+        cells_[(TITLE_ROW, 0)] = CellSpec(sh.title, style="title")
+        cells_[(NOTE_ROW, 0)] = CellSpec(sh.note, style="note")
+        for j, c in enumerate(sh.columns):
+            cells_[(HEADER_ROW, j)] = CellSpec(c.header, style="header")
+            cells_[(KEY_ROW, j)] = CellSpec(c.key, style="key")
     iso: Dict[Tuple[int, int], CellSpec] = {(TITLE_ROW, 0): CellSpec(ISOCHRON.title, style="title"),
                                            (NOTE_ROW, 0): CellSpec(ISOCHRON.note, style="note")}
     sel = isochron_selection or {}
@@ -2299,7 +2336,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         for k in range(len(ISOCHRON_SYSTEMS)):
             iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 1 + k)] = CellSpec(style="computed",
                                                                        number_format=fmt.get(q, "General"))
-    targets = {"Results": res, "Isochron": iso, "Standards": lay["Standards"], "Spikes": lay["Spikes"]}
+    targets = {**row_sheets, "Isochron": iso, "Standards": lay["Standards"], "Spikes": lay["Spikes"]}
     for (sheet, row, col), f in formulas.items():
         target = targets[sheet]
         spec = target.get((row, col)) or CellSpec(style="computed")
@@ -2316,7 +2353,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
                 iso[(top + i, left + j)] = CellSpec(style="computed", number_format="0.000000E+00")
         iso[(top, left)] = CellSpec(formula=f, style="computed", number_format="0.000000E+00",
                                     array=(ELLIPSE_POINTS + 1, 2))
-    lay["Results"] = res
+    lay.update(row_sheets)
     lay["Isochron"] = iso
     return lay
 
@@ -2346,11 +2383,12 @@ def fill_values(lay: Layout, ev: Evaluation) -> None:
         spec.value = v
 
 
-SHEET_ORDER = (ABOUT_SHEET, "Constants", "Spikes", "Standards", "Samples", "Measured", "Results", "Isochron")
+SHEET_ORDER = (ABOUT_SHEET, "Constants", "Spikes", "Standards", "Samples", "Measured", "Results", "Steps",
+               "Isochron")
 _FILL = {"input": "FFF6D5", "computed": "E2ECF8", "header": "D9D9D9"}
 WIDTHS: Dict[str, Dict[int, float]] = {s.name: {j: c.width for j, c in enumerate(s.columns)} for s in SHEETS}
 WIDTHS[ABOUT_SHEET] = {0: 110}
-WIDTHS["Isochron"].update({7: 3, 8: 34, 9: 15, 10: 15, 11: 30})
+WIDTHS["Isochron"].update({7: 3, 8: 34, 9: 15, 10: 15, 11: 15, 12: 30})
 
 
 # --------------------------------------------------------------------------------------------

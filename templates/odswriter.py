@@ -276,7 +276,7 @@ def _validations_xml() -> str:
     out = ["<table:content-validations>"]
     for c in choices():
         if c.whole_0_1:
-            cond = "of:cell-content-is-whole-number() and cell-content-is-between(0;1)"
+            cond = "of:cell-content-is-whole-number() and cell-content-is-between(0,1)"  # as LibreOffice writes it
         elif c.source is not None:
             sheet, letter, r1, r2 = c.source_range()
             cond = f"of:cell-content-is-in-list([${sheet}.${letter}${r1}:.${letter}${r2}])"

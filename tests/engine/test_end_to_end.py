@@ -336,3 +336,37 @@ def test_rb_without_a_bias_factor_is_named_at_its_cell(tmp_path, capsys):
     assert rc != 0
     cell = f"Measured, row {FIRST_ROW + rb_row}, column {MEASURED.letter('bias_factor')} (β external (exp. law))"
     assert f"{cell}: Rb has two isotopes" in err, err
+
+
+def test_steps_sheet_shows_the_chain_stages(tmp_path):
+    """The Steps sheet of results.xlsx: β of both runs as forward-modelled (Sm and Nd normalised internally, Lu
+    typed), session factor 1 (standards typed at their accepted values), blank shares as put in (independent
+    arithmetic: blank / (sample + blank) amount of the element)."""
+    standards = standard_rows("S1", "JNdi-1", "143Nd/144Nd") + standard_rows("S1", "JMC-475", "176Hf/177Hf")
+    tables, truths = _tables((SMND, LUHF), standards)
+    _results, _ages, wb = reduce_and_read(tmp_path, tables, {"Sm-Nd": [a for a in truths if a.startswith("SM")],
+                                                             "Lu-Hf": [a for a in truths if a.startswith("LU")]})
+    ws = wb["Steps"]
+    keys = [ws.cell(KEY_ROW, c).value for c in range(1, ws.max_column + 1)]
+    steps = {ws.cell(r, 1).value: {k: ws.cell(r, c + 1).value for c, k in enumerate(keys)}
+             for r in range(FIRST_ROW, ws.max_row + 1) if ws.cell(r, 1).value}
+    assert set(steps) == set(truths)
+    for spec in (SMND, LUHF):
+        p_el, d_el = RUNS[spec["system"]][:2]
+        for k, (bp, bd) in enumerate(spec["betas"]):
+            a = f"{spec['system'][:2].upper()}-{k + 1:02d}"
+            st = steps[a]
+            assert st["beta_daughter"] == pytest.approx(bd, rel=1e-9), a
+            assert st["beta_parent"] == pytest.approx(bp, rel=1e-9), a
+            assert st["std_factor"] == pytest.approx(1.0, abs=1e-15) and st["std_runs"] == 4
+            assert st["y_before_factor"] == pytest.approx(truths[a]["y"], rel=1e-8)
+            assert st["mag_parent"] >= 1 and st["mag_daughter"] >= 1
+            # blank share of the daughter's reference isotope (144Nd, 177Hf): blank / (sample + blank) atoms of it,
+            # mpmath, from the forward model's numbers
+            d_ref = RUNS[spec["system"]][3]
+            d_fr = ind.sample_fractions(d_el, {RUNS[spec["system"]][5] + "/" + d_ref: truths[a]["y"]})
+            nat = ind.natural_fractions(d_el)
+            w_s = spec["masses"][k][0]
+            d_umol = mp.mpf(spec["d_concs"][k]) / ind.molar_mass(d_fr) * mp.mpf(repr(w_s)) * d_fr[d_ref]
+            b_umol = mp.mpf(spec["blanks"][1]) * mp.mpf("1e-3") / ind.molar_mass(nat) * nat[d_ref]
+            assert st["blank_share_daughter_pct"] == pytest.approx(float(100 * b_umol / (d_umol + b_umol)), rel=1e-9)
