@@ -120,6 +120,8 @@ def _axis_labels(system: str) -> Tuple[str, str]:
         return "$^{147}$Sm/$^{144}$Nd", "$^{143}$Nd/$^{144}$Nd"
     if system.lower().startswith("lu"):
         return "$^{176}$Lu/$^{177}$Hf", "$^{176}$Hf/$^{177}$Hf"
+    if system.lower().startswith("rb"):
+        return "$^{87}$Rb/$^{86}$Sr", "$^{87}$Sr/$^{86}$Sr"
     return "parent/daughter", "daughter ratio"
 
 
@@ -327,9 +329,10 @@ def write_report(data: ReportData, path: Any) -> None:
     with PdfPages(str(path), metadata=meta) as pdf:
         for p in data.isochrons:
             _isochron_page(pdf, p, data)
-        legend = ("Parent/daughter (P/D) ratio: 147Sm/144Nd or 176Lu/177Hf; daughter (D) ratio: 143Nd/144Nd or "
-                  "176Hf/177Hf. 1σ abs = one standard deviation, absolute; 2σ % / ppm = two standard deviations, "
-                  "relative. Random = measurement (isochron input); total adds spike calibration and accepted value.",
+        legend = ("Parent/daughter (P/D) ratio: 147Sm/144Nd, 176Lu/177Hf or 87Rb/86Sr; daughter (D) ratio: "
+                  "143Nd/144Nd, 176Hf/177Hf or 87Sr/86Sr. 1σ abs = one standard deviation, absolute; 2σ % / ppm = "
+                  "two standard deviations, relative. Random = measurement (isochron input); total adds spike "
+                  "calibration and accepted value.",
                   CAUTION)
         long_labels = any(len(str(r.get(k, ""))) > LABEL_CHARS for r in data.results
                           for k in ("analysis", "sample", "fraction", "system"))

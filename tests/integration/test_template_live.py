@@ -206,8 +206,10 @@ if __name__ != "__main__":
         from reduction.workbook import ELLIPSE_COL0, ISOCHRON
 
         sheet, row, col = key
-        if sheet == "Results":
-            name = RESULTS.columns[col].key
+        if sheet in ("Results", "Steps", "Spikes"):
+            from reduction.workbook import SHEET_BY_NAME
+
+            name = SHEET_BY_NAME[sheet].columns[col].key
         elif sheet == "Standards":
             from reduction.workbook import STANDARDS
 
