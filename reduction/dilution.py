@@ -53,6 +53,7 @@ __all__ = [
     "magnification",
     "magnification_min",
     "make_spike",
+    "mixture_fractions",
     "sample_composition",
 ]
 
@@ -811,3 +812,35 @@ def forward_mixture(element: str, reference_isotope: str, sample_conc_umol_g: An
                                            "measurement gives; give a sample or spike that contains it")
             out[f"{i}/{reference_isotope}"] = _out(bias_apply(r, isotope_mass(i).value, m_r, beta, law))
     return out
+
+
+
+def mixture_fractions(natural: Any, spike: Spike, reference: str, mix_ratio_true: float) -> Dict[str, float]:
+    """Atom fractions of a sample–spike mixture of one element, from its true spike-isotope ratio.
+
+    ``mix_ratio_true`` is the mixture's bias-corrected ratio s/r (s = ``spike.spike_isotope``, r =
+    ``reference``). With the sample of natural composition (fractions a) and the spike (fractions b),
+    two-component mixing gives the sample/spike proportion x = (b_s − R·b_r)/(R·a_r − a_s) and the
+    mixture n_k = x·a_k + b_k, normalised (the isotope-dilution mixing equation, e.g. Faure & Mensing
+    2005, Isotopes: Principles and Applications, 3rd ed., ch. 4; recalled from memory). A blank of natural
+    composition is part of x.
+
+    ``natural`` is a :class:`reduction.composition.NaturalComposition` of ``spike.element``.
+    """
+    s_iso, r_iso = spike.spike_isotope, as_name("reference", reference, "152Sm")
+    a = {i: float(natural.fraction(i)) for i in natural.isotopes}
+    b = dict(zip(spike.isotopes, (float(v) for v in spike.abundances)))
+    if r_iso not in a or s_iso not in a:
+        raise InputError("reference", f"{r_iso!r} and {s_iso!r} must both be isotopes of {spike.element}")
+    R = as_scalar("mix_ratio_true", mix_ratio_true)
+    den = R * a[r_iso] - a[s_iso]
+    if not den > 0:
+        raise UndefinedResultError(f"the mixture's {s_iso}/{r_iso} = {R:.6g} is not above the natural value: "
+                                   "no sample in the mixture")
+    x = (b.get(s_iso, 0.0) - R * b.get(r_iso, 0.0)) / den
+    if not x > 0:
+        raise UndefinedResultError(f"the mixture's {s_iso}/{r_iso} = {R:.6g} is not below the spike's: no spike "
+                                   "in the mixture")
+    n = {k: x * a[k] + b.get(k, 0.0) for k in a}
+    tot = sum(n.values())
+    return {k: v / tot for k, v in n.items()}

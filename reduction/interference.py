@@ -32,6 +32,7 @@ ratio, measured in the parent-element run of the same aliquot, as ``interferent_
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any, Dict, Mapping, Optional, Tuple, Union
 
@@ -45,11 +46,14 @@ from .systems import get_system
 
 __all__ = [
     "INTERFERENCES",
+    "RUN_MONITORS",
     "BeamStrip",
+    "RunStrip",
     "Stripped",
     "interferent_ratio",
     "strip_beams",
     "strip_isobar",
+    "strip_run_ratios",
 ]
 
 #: system key -> (target isotope, interfering isotope, monitor isotope) for each isobar stripped.
@@ -306,3 +310,110 @@ def _row_mean(a: np.ndarray) -> Any:
         n = finite.sum(axis=-1)
         m = np.where(finite, a, 0.0).sum(axis=-1) / np.maximum(n, 1)
     return float(m) if np.ndim(m) == 0 else m
+
+
+# --------------------------------------------------------------------------------------------
+# ratio level: a run's mean ratios to its reference isotope, with monitor ratios (the workbook)
+# --------------------------------------------------------------------------------------------
+#: Monitor ratios a run of an element may carry, to its reference isotope: element -> ((monitor ratio,
+#: interfering element), ...). Every isotope of the interfering element whose mass number is that of an isotope
+#: of the run's element is stripped (e.g. 144Sm, 148Sm, 150Sm on a Nd run; 142Ce; 174Yb and 176Yb on Hf;
+#: 176Lu on Hf; 87Rb on Sr; 176Yb on a Lu run).
+RUN_MONITORS: Dict[str, Tuple[Tuple[str, str], ...]] = {
+    "Nd": (("147Sm/144Nd", "Sm"), ("140Ce/144Nd", "Ce")),
+    "Hf": (("173Yb/177Hf", "Yb"), ("175Lu/177Hf", "Lu")),
+    "Sr": (("85Rb/86Sr", "Rb"),),
+    "Lu": (("173Yb/175Lu", "Yb"),),
+}
+
+
+@dataclass(frozen=True)
+class RunStrip:
+    """A run's ratios after ratio-level stripping.
+
+    Attributes
+    ----------
+    ratios, sigma_1s : dict of str to float
+        Stripped ratios to the reference isotope and their 1σ (measured σ and monitor σ, propagated).
+    correction_rel : dict of str to float
+        ``1 − stripped / measured`` per ratio (the share the interferences took).
+    """
+
+    ratios: Dict[str, float]
+    sigma_1s: Dict[str, float]
+    correction_rel: Dict[str, float]
+
+
+def _mass_number(iso: str) -> int:
+    return int(iso[:len(iso) - len(iso.lstrip("0123456789"))])
+
+
+def strip_run_ratios(element: str, reference: str, ratios: Mapping[str, float], sigma_1s: Mapping[str, float],
+                     monitors: Mapping[str, Tuple[float, float]], interferents: Mapping[str, Mapping[str, float]],
+                     beta: float, law: str = "exponential") -> RunStrip:
+    """Strip isobars from a run's mean ratios ``i/D`` (D = ``reference``) with monitor ratios ``mon/D``.
+
+    With M the measured monitor ratio mon/D and ρ_k = (k/mon)_true fractionated by ``beta`` (the analyte's
+    bias, common practice) for each isotope k of the interfering element, the isobars at mass i and at D
+    are M·ρ_i and M·ρ_D, so
+
+        (i/D)_stripped = (R_i − Σ M·ρ_i) / (1 − Σ M·ρ_D)
+
+    (sums over the monitors). ``interferents`` maps the interfering element to its true composition as
+    atom fractions (natural, or a spike–sample mixture); ``monitors`` maps each monitor ratio name to
+    (value, 1σ). The 1σ adds the monitor's σ by first-order propagation (the monitors' and ratios' errors
+    taken as independent).
+
+    Notes
+    -----
+    Isobaric correction with an interference-free monitor isotope and the interferent's true ratio
+    fractionated by the exponential law (Russell, Papanastassiou & Tombrello 1978); common practice in TIMS
+    and MC-ICP-MS reduction.
+    """
+    from .dilution import element_isotopes
+
+    el = as_name("element", element, "Nd")
+    ref = as_name("reference", reference, "144Nd")
+    own = {_mass_number(i): i for i in element_isotopes(el)}
+    beta = as_scalar("beta", beta)
+    terms = []          # (M, σM, {mass: ρ})
+    for name, (m_val, m_sig) in monitors.items():
+        num, _sep, den = str(name).partition("/")
+        if den != ref:
+            raise InputError("monitors", f"{name!r} is not a ratio to {ref}")
+        iel = _element(num)
+        comp = interferents.get(iel)
+        if comp is None:
+            raise InputError("interferents", f"no composition of {iel} for the monitor {name!r}")
+        m_val, m_sig = as_scalar(f"monitors[{name!r}]", m_val), as_scalar(f"monitors[{name!r}] 1σ", m_sig)
+        if m_val < 0 or m_sig < 0:
+            raise InputError("monitors", f"{name!r}: a monitor ratio and its 1σ must be >= 0")
+        rho = {}
+        f_mon = float(comp[num])
+        if not f_mon > 0:
+            raise InputError("interferents", f"{iel} has no {num} to monitor with")
+        for k, f_k in comp.items():
+            mk = _mass_number(k)
+            if mk in own and k != num and float(f_k) > 0:
+                rho[mk] = float(bias_apply(float(f_k) / f_mon, isotope_mass(k).value, isotope_mass(num).value,
+                                           beta, law))
+        terms.append((m_val, m_sig, rho))
+    md = _mass_number(ref)
+    c_d = sum(m * rho.get(md, 0.0) for m, _s, rho in terms)
+    if not c_d < 1.0:
+        raise UndefinedResultError(f"the interferences on {ref} reach its whole beam: check the monitor ratios")
+    out, sig, rel = {}, {}, {}
+    for name, r in ratios.items():
+        num = str(name).partition("/")[0]
+        mi = _mass_number(num)
+        c_i = sum(m * rho.get(mi, 0.0) for m, _s, rho in terms)
+        s = (float(r) - c_i) / (1.0 - c_d)
+        if not s > 0:
+            raise UndefinedResultError(f"{name}: the interferences take the whole beam (stripped ratio {s:.3g}): "
+                                       "check the monitor ratios")
+        var = (float(sigma_1s.get(name, 0.0)) / (1.0 - c_d)) ** 2
+        for _m, m_sig, rho in terms:
+            d_m = (-rho.get(mi, 0.0) * (1.0 - c_d) + rho.get(md, 0.0) * (float(r) - c_i)) / (1.0 - c_d) ** 2
+            var += (d_m * m_sig) ** 2
+        out[name], sig[name], rel[name] = s, math.sqrt(var), 1.0 - s / float(r)
+    return RunStrip(out, sig, rel)

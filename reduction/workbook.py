@@ -254,8 +254,10 @@ def _c(key: str, header: str, kind: str = "number", **kw: Any) -> Column:
     return Column(key, header, kind, **kw)
 
 
+#: Ratio slots of a Measured row (ratios of the element, and monitor ratios of interfering elements).
+RATIO_SLOTS = 6
 _RATIO_COLS: List[Column] = []
-for _k in range(1, 5):
+for _k in range(1, RATIO_SLOTS + 1):
     _RATIO_COLS += [_c(f"r{_k}_name", f"Ratio {_k}", "text", required=_k == 1, width=13),
                     _c(f"r{_k}", f"Ratio {_k} measured", required=_k == 1, width=14, number_format="0.0000000"),
                     _c(f"r{_k}_sigma_1s", f"Ratio {_k} 1σ (abs)", required=_k == 1, width=12,
@@ -348,11 +350,13 @@ MEASURED = Sheet(
     "for mass bias; 1σ absolute standard error of the run mean. Elements with a normalising pair are "
     "internally normalised (146Nd/144Nd, 147Sm/152Sm, 179Hf/177Hf, 86Sr/88Sr); a two-isotope element (Lu, Rb) "
     "needs a bias factor β (exponential law) with its 1σ, e.g. from a reference-material run. Ratio names: "
-    "<isotope>/<reference isotope> of the row's element (144Nd, 152Sm, 177Hf, 175Lu, 86Sr, 85Rb).",
+    "<isotope>/<reference isotope> of the row's element (144Nd, 152Sm, 177Hf, 175Lu, 86Sr, 85Rb). Monitor ratios "
+    "strip isobars (ratios 5-6 have room for them): 147Sm/144Nd and 140Ce/144Nd on Nd, 173Yb/177Hf and 175Lu/177Hf "
+    "on Hf, 85Rb/86Sr on Sr, 173Yb/175Lu on Lu; 171Yb/175Lu with 173Yb/175Lu on Lu gives Lu's β from Yb doping.",
     (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
-     _c("run_date", "Run date", "text", required=False, width=11), *_RATIO_COLS,
+     _c("run_date", "Run date", "text", required=False, width=11), *_RATIO_COLS[:12],
      _c("bias_factor", "β external (exp. law)", required=False, width=12, number_format="0.0000"),
-     _c("bias_factor_1s", "β 1σ (abs)", required=False, width=10, number_format="0.0000")),
+     _c("bias_factor_1s", "β 1σ (abs)", required=False, width=10, number_format="0.0000"), *_RATIO_COLS[12:]),
     capacity=120)
 
 # Results: (key, header, quantity, number format); quantity "" = copied from Samples
@@ -404,6 +408,9 @@ _STEP_SPEC = (
     ("std_factor_1s", "Session factor 1σ (abs, random)", "std_factor_1s", "0.0E+00"),
     ("std_runs", "Primary runs in the session", "std_runs", "0"),
     ("y_before_factor", "Daughter ratio before the session factor", "y_before_factor", "0.0000000"),
+    ("strip_daughter_ppm", "Isobars stripped, daughter run (largest, ppm of a ratio)", "strip_daughter_ppm", "0.0"),
+    ("strip_parent_ppm", "Isobars stripped, parent run (largest, ppm of a ratio)", "strip_parent_ppm", "0.0"),
+    ("beta_parent_from", "Parent β from", "beta_parent_from", "General"),
 )
 STEPS = Sheet(
     "Steps", "Steps — what each stage of the chain did, one row per analysis (do not type here)",
@@ -944,11 +951,20 @@ def _spike_column(exc: InputError, slots: Sequence[int], isotopes: Sequence[str]
             "spike_isotope": "spike_isotope"}.get(arg, "element")
 
 
-def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError]
-         ) -> Tuple[Dict[str, float], Dict[str, float], Optional[float], float, int]:
-    """(ratios, their 1σ, external β or None, β 1σ, row index) of one element run on the Measured sheet.
+#: Monitor ratios a run may carry besides its own ratios (stripping; Yb doping of a Lu run).
+_MONITOR_NAMES: Dict[str, Tuple[str, ...]] = {
+    "Nd": ("147Sm/144Nd", "140Ce/144Nd"), "Hf": ("173Yb/177Hf", "175Lu/177Hf"), "Sr": ("85Rb/86Sr",),
+    "Lu": ("173Yb/175Lu", "171Yb/175Lu")}
+#: Yb doping of a Lu run: β from 173Yb/171Yb (the two monitor ratios' quotient), normalising.json's value.
+_YB_PAIR = ("173Yb/175Lu", "171Yb/175Lu", "173Yb/171Yb")
 
-    Every ratio name is checked here, so a bad one is reported at its own Measured cell.
+
+def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError]
+         ) -> Tuple[Dict[str, float], Dict[str, float], Optional[float], float, int, Dict[str, Tuple[float, float]]]:
+    """(ratios, their 1σ, external β or None, β 1σ, row index, monitors) of one element run on Measured.
+
+    Every ratio name is checked here, so a bad one is reported at its own Measured cell; ``monitors`` maps
+    each monitor ratio name (:data:`_MONITOR_NAMES`) to (value, 1σ).
     """
     from .dilution import element_isotopes
 
@@ -963,14 +979,24 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
     ref = _REFERENCE_ISOTOPE.get(element, "")
     vals: Dict[str, float] = {}
     sig: Dict[str, float] = {}
-    for k in range(1, 5):
+    monitors: Dict[str, Tuple[float, float]] = {}
+    allowed = _MONITOR_NAMES.get(element, ())
+    for k in range(1, RATIO_SLOTS + 1):
         name = measured.text(i, f"r{k}_name", required=k == 1)
         if not name:
             continue
         num, sep, den = name.replace(" ", "").partition("/")
+        if f"{num}/{den}" in allowed:
+            if f"{num}/{den}" in monitors:
+                raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice")
+            # a monitor may be 0 (nothing of the interferent seen); its 1σ must be > 0 like any measurement
+            monitors[f"{num}/{den}"] = (measured.number(i, f"r{k}", positive=False),
+                                        measured.number(i, f"r{k}_sigma_1s", positive=True))
+            continue
         if not sep or num not in isos or den != ref:
+            more = f", or a monitor ratio: {', '.join(allowed)}" if allowed else ""
             raise measured.error(i, f"r{k}_name", f"{shown(name)} is not a {element} ratio to {ref}: write it as "
-                                 f"<isotope>/{ref} with one of {', '.join(x for x in isos if x != ref)}")
+                                 f"<isotope>/{ref} with one of {', '.join(x for x in isos if x != ref)}{more}")
         if num == ref or f"{num}/{den}" in vals:
             raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice or is {ref}/{ref}")
         vals[f"{num}/{den}"] = measured.number(i, f"r{k}", positive=True)
@@ -979,7 +1005,7 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
     bf_s = measured.number(i, "bias_factor_1s", required=False)
     if bf_s < 0:
         raise measured.error(i, "bias_factor_1s", f"must be >= 0, got {bf_s!r}")
-    return vals, sig, (None if math.isnan(bf) else bf), bf_s, i
+    return vals, sig, (None if math.isnan(bf) else bf), bf_s, i, monitors
 
 
 @dataclass(frozen=True)
@@ -1211,7 +1237,10 @@ def _plausibility(res: Any, system: Any, sample_mass: float, spike_mass: float) 
     return out
 
 
-AnalysisOutcome = Tuple[Any, Any, float, Tuple[str, ...], Any]   # result, ε, spike x scale, warnings, session factor
+# result, ε, spike x scale, warnings, session factor, intermediate steps (stripping, where β came from)
+AnalysisOutcome = Tuple[Any, Any, float, Tuple[str, ...], Any, Dict[str, Any]]
+#: Passes of the stripping-and-reduction fixed point (converges in 2-4 for any realistic interference).
+_STRIP_PASSES = 12
 StandardLookup = Callable[[str, str, Callable[[str], CellError]], Any]
 
 #: The systems the template's sheets reduce (Samples column System).
@@ -1292,14 +1321,26 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
     p_el, d_el = system.parent_element, system.daughter_element
     p_spike = _spike(sp, label, p_el, at("spike"))
     d_spike = _spike(sp, label, d_el, at("spike"))
-    p_mix, p_sig, p_bf, p_bf_s, _pi = _run(mt, analysis, p_el, at("analysis"))
-    d_mix, d_sig, d_bf, _d_bf_s, d_i = _run(mt, analysis, d_el, at("analysis"))
+    p_mix, p_sig, p_bf, p_bf_s, _pi, p_mon = _run(mt, analysis, p_el, at("analysis"))
+    d_mix, d_sig, d_bf, _d_bf_s, d_i, d_mon = _run(mt, analysis, d_el, at("analysis"))
     if d_bf is not None:
         raise mt.error(d_i, "bias_factor", f"{d_el} is normalised to {_NORM_RATIO[d_el]} within its own run, so a "
                        "typed β would not be used: leave β and its 1σ empty on this row")
     std = standard(session, system.daughter_ratio, at("session"))
     ref = _refset(constants)
     naturals = _naturals(constants)
+    beta_from = "typed" if p_bf is not None else ("internal" if p_el in _NORM_RATIO else "")
+    if _YB_PAIR[0] in p_mon or _YB_PAIR[1] in p_mon:
+        p_bf, p_bf_s = _beta_from_doping(mt, _pi, p_mon, p_bf)
+        beta_from = "Yb doping (173Yb/171Yb)"
+    if p_mon.keys() - {_YB_PAIR[1]}:
+        if p_bf is None:
+            raise mt.error(_pi, "bias_factor", f"stripping the isobars of the {p_el} run needs its β: type β, or "
+                           "give Yb doping ratios")
+        p_mix, p_sig, p_strip = _strip(mt, _pi, p_el, p_mix, p_sig,
+                                       {k: v for k, v in p_mon.items() if k != _YB_PAIR[1]}, {}, p_bf)
+    else:
+        p_strip = {}
     kw: Dict[str, Any] = {}
     if p_bf is None and p_el not in _NORM_RATIO:
         raise mt.error(_pi, "bias_factor", f"{p_el} has two isotopes, so its run cannot normalise itself: type its "
@@ -1310,16 +1351,36 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
     else:
         kw["parent_bias_factor"] = p_bf
         kw["parent_bias_sigma_1s"] = p_bf_s
-    try:
-        res = reduce_spiked_analysis(
-            system.key, p_mix, d_mix, sample_mass, spike_mass, p_spike, d_spike,
-            parent_mix_sigma_1s=p_sig, daughter_mix_sigma_1s=d_sig, daughter_norm_ratio=_NORM_RATIO.get(d_el),
+    natural = {el: naturals[el] for el in (p_el, d_el) if el in naturals}
+
+    def chain(d_ratios: Mapping[str, float], d_sigmas: Mapping[str, float], draws: int) -> Any:
+        return reduce_spiked_analysis(
+            system.key, p_mix, d_ratios, sample_mass, spike_mass, p_spike, d_spike,
+            parent_mix_sigma_1s=p_sig, daughter_mix_sigma_1s=d_sigmas, daughter_norm_ratio=_NORM_RATIO.get(d_el),
             sample_mass_sigma_1s=ws_s, spike_mass_sigma_1s=wt_s,
             parent_blank_ng=pb, parent_blank_sigma_ng=pb_s, daughter_blank_ng=db, daughter_blank_sigma_ng=db_s,
             daughter_blank_ratio=None if math.isnan(rb) else rb, daughter_blank_ratio_sigma_1s=rb_s,
             parent_ratio_reproducibility_rel_1s=_lab(constants, "lab.pd_reproducibility_1s_pct") / 100.0,
-            natural={el: naturals[el] for el in (p_el, d_el) if el in naturals},
-            standard=std, spike_rho=SPIKE_RHO, mc_draws=mc_draws, **kw)
+            natural=natural, standard=std, spike_rho=SPIKE_RHO, mc_draws=draws, **kw)
+
+    d_strip: Dict[str, float] = {}
+    try:
+        if not d_mon:
+            res = chain(d_mix, d_sig, mc_draws)
+        else:
+            # the isobars are fractionated with the daughter's β, which the chain finds from the stripped
+            # ratios: iterate to the fixed point (the correction is small, so a few passes suffice)
+            res = chain(d_mix, d_sig, 0)
+            for _ in range(_STRIP_PASSES):
+                comps = _interferent_compositions(d_mon, p_el, p_spike, p_mix, res.parent_bias_factor,
+                                                  naturals.get(p_el))
+                d_s, d_ss, d_strip = _strip(mt, d_i, d_el, d_mix, d_sig, d_mon, comps, res.daughter_bias_factor)
+                beta_before = res.daughter_bias_factor
+                res = chain(d_s, d_ss, 0)
+                if abs(res.daughter_bias_factor - beta_before) <= 1e-15 * max(1.0, abs(beta_before)):
+                    break
+            if mc_draws:
+                res = chain(d_s, d_ss, mc_draws)
         eps = epsilon(res.daughter_ratio, res.daughter_ratio_sigma_1s, res.parent_ratio, 0.0, system, ref)
     except RatioDeskError as exc:
         raise CellError("Samples", FIRST_ROW + i, "A", "Analysis", f"analysis {shown(analysis)}: {exc}") from None
@@ -1330,7 +1391,82 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
         zero.append("measured ratio")
     if zero:
         warn.append("σ = 0 (nothing typed, no lab default) for: " + ", ".join(dict.fromkeys(zero)))
-    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike), tuple(warn), std
+    steps = {"strip_parent_ppm": 1e6 * max(p_strip.values(), default=0.0),
+             "strip_daughter_ppm": 1e6 * max(d_strip.values(), default=0.0), "beta_parent_from": beta_from}
+    return res, eps, spike_ratio_sigma_rel(p_spike, d_spike), tuple(warn), std, steps
+
+
+def _beta_from_doping(mt: Table, i: int, mon: Mapping[str, Tuple[float, float]], typed: Optional[float]
+                      ) -> Tuple[float, float]:
+    """β of a Lu run from its Yb doping: 173Yb/171Yb = (173Yb/175Lu)/(171Yb/175Lu) against the convention.
+
+    The exponential law's β is applied to Lu (common practice: the dopant's bias stands for the analyte's);
+    1σ from the two ratios' 1σ, taken as independent.
+    """
+    from .massbias import bias_factor_from, ratio_masses
+
+    a, b, pair = _YB_PAIR
+    if a not in mon or b not in mon:
+        raise mt.error(i, "r1_name", f"Yb doping needs both {a} and {b} on the Lu row (one is missing)")
+    if typed is not None:
+        raise mt.error(i, "bias_factor", "β is typed and also given by Yb doping: keep one (clear β and β 1σ to use "
+                       "the doping)")
+    (ra, sa), (rb_, sb) = mon[a], mon[b]
+    if not (ra > 0 and rb_ > 0):
+        raise mt.error(i, "r1_name", f"the Yb doping ratios must be > 0 (got {a} = {ra!r}, {b} = {rb_!r})")
+    beta = float(bias_factor_from(ra / rb_, pair))
+    m1, m2 = ratio_masses(pair)
+    sigma = math.hypot(sa / ra, sb / rb_) / abs(math.log(m1 / m2))
+    return beta, sigma
+
+
+def _interferent_compositions(monitors: Mapping[str, Any], parent: str, parent_spike: Any,
+                              parent_mix: Mapping[str, float], parent_beta: float, parent_natural: Any
+                              ) -> Dict[str, Dict[str, float]]:
+    """True atom fractions of each interfering element of a daughter run.
+
+    The parent element of the analysis (Sm on Nd, Lu on Hf, Rb on Sr) is a spike–sample mixture: its
+    composition follows from the parent run's spike-isotope ratio, bias-corrected with the parent's β
+    (:func:`reduction.dilution.mixture_fractions`). Others (Ce, Yb) are natural.
+    """
+    from .composition import natural_composition
+    from .dilution import mixture_fractions
+    from .massbias import correct_named
+
+    out: Dict[str, Dict[str, float]] = {}
+    for name in monitors:
+        el = name.partition("/")[0].lstrip("0123456789")
+        if el in out:
+            continue
+        if el == parent:
+            ref = _REFERENCE_ISOTOPE[parent]
+            ratio = f"{parent_spike.spike_isotope}/{ref}"
+            r_true = float(correct_named(parent_mix[ratio], ratio, parent_beta))
+            out[el] = mixture_fractions(parent_natural or natural_composition(el), parent_spike, ref, r_true)
+        else:
+            comp = natural_composition(el)
+            out[el] = {iso: float(comp.fraction(iso)) for iso in comp.isotopes}
+    return out
+
+
+def _strip(mt: Table, i: int, element: str, ratios: Mapping[str, float], sigmas: Mapping[str, float],
+           monitors: Mapping[str, Tuple[float, float]], comps: Mapping[str, Mapping[str, float]], beta: float
+           ) -> Tuple[Dict[str, float], Dict[str, float], Dict[str, float]]:
+    """:func:`reduction.interference.strip_run_ratios` for one Measured row; a failure names the row."""
+    from .composition import natural_composition
+    from .interference import strip_run_ratios
+
+    comps = dict(comps)
+    for name in monitors:
+        el = name.partition("/")[0].lstrip("0123456789")
+        if el not in comps:
+            c = natural_composition(el)
+            comps[el] = {iso: float(c.fraction(iso)) for iso in c.isotopes}
+    try:
+        st = strip_run_ratios(element, _REFERENCE_ISOTOPE[element], ratios, sigmas, monitors, comps, beta)
+    except RatioDeskError as exc:
+        raise mt.error(i, "analysis", f"stripping the isobars of this {element} run: {exc}") from None
+    return st.ratios, st.sigma_1s, st.correction_rel
 
 
 def analysis_checks(analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any
@@ -1381,7 +1517,7 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
 
 def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
     """:func:`analysis_value` once the analysis is reduced."""
-    res, eps, x_scale, warnings, std = outcome
+    res, eps, x_scale, warnings, std, steps = outcome
     rnd = res.sigma_1s_random
     q = quantity.strip().lower()
     table: Dict[str, Callable[[], Any]] = {
@@ -1401,6 +1537,9 @@ def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
         "iterations": lambda: res.iterations, "blank_share_parent_pct": lambda: 100 * res.blank_share_parent,
         "std_factor": lambda: std.factor, "std_factor_1s": lambda: std.factor_sigma_1s_random,
         "std_runs": lambda: std.n, "y_before_factor": lambda: res.daughter_ratio / std.factor,
+        "strip_parent_ppm": lambda: steps["strip_parent_ppm"],
+        "strip_daughter_ppm": lambda: steps["strip_daughter_ppm"],
+        "beta_parent_from": lambda: steps["beta_parent_from"],
     }
     if q not in table:
         raise InputError("quantity", f"unknown quantity {quantity!r}; use one of {', '.join(table)}")
@@ -2462,8 +2601,8 @@ def choices() -> Tuple[Choice, ...]:
         Choice("rd_role", "Standards", STANDARDS.col_index("role"), rows(STANDARDS), _ROLES,
                title="Role", help="primary (the session factor) or check; empty: see the sheet's note."),
     ]
-    names = run_ratio_names()
-    for k in range(1, 5):
+    names = run_ratio_names() + tuple(dict.fromkeys(m for ms in _MONITOR_NAMES.values() for m in ms))
+    for k in range(1, RATIO_SLOTS + 1):
         out.append(Choice(f"rd_ratio_name{k}", "Measured", MEASURED.col_index(f"r{k}_name"), rows(MEASURED), names,
                           strict=False, title=f"Ratio {k}",
                           help="<isotope>/<reference isotope> of the row's element."))
