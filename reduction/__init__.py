@@ -62,16 +62,20 @@ from .dilution import (
     magnification,
     magnification_min,
     make_spike,
+    mixture_fractions,
     sample_composition,
 )
 from .errors import ConvergenceError, InputError, RatioDeskError, UndefinedResultError
 from .interference import (
     INTERFERENCES,
+    RUN_MONITORS,
     BeamStrip,
+    RunStrip,
     Stripped,
     interferent_ratio,
     strip_beams,
     strip_isobar,
+    strip_run_ratios,
 )
 from .massbias import (
     bias_apply,
@@ -159,6 +163,7 @@ __all__ = [
     "magnification",
     "magnification_min",
     "make_spike",
+    "mixture_fractions",
     "model_age",
     "ModelAge",
     "monte_carlo",
@@ -176,6 +181,8 @@ __all__ = [
     "reference_set",
     "ReferenceSet",
     "RefValue",
+    "RUN_MONITORS",
+    "RunStrip",
     "sample_composition",
     "slope_from_age",
     "Spike",
@@ -184,6 +191,7 @@ __all__ = [
     "StandardFactor",
     "strip_beams",
     "strip_isobar",
+    "strip_run_ratios",
     "Stripped",
     "SYSTEMS",
     "TREATMENTS",

@@ -827,6 +827,12 @@ def mixture_fractions(natural: Any, spike: Spike, reference: str, mix_ratio_true
 
     ``natural`` is a :class:`reduction.composition.NaturalComposition` of ``spike.element``.
     """
+    from .composition import NaturalComposition
+
+    if not isinstance(spike, Spike):
+        raise InputError("spike", "must be a Spike (see make_spike)")
+    if not isinstance(natural, NaturalComposition) or natural.element != spike.element:
+        raise InputError("natural", f"must be the NaturalComposition of {spike.element}")
     s_iso, r_iso = spike.spike_isotope, as_name("reference", reference, "152Sm")
     a = {i: float(natural.fraction(i)) for i in natural.isotopes}
     b = dict(zip(spike.isotopes, (float(v) for v in spike.abundances)))

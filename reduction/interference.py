@@ -344,6 +344,12 @@ class RunStrip:
     correction_rel: Dict[str, float]
 
 
+def _mapping(name: str, d: Any) -> Mapping[Any, Any]:
+    if not isinstance(d, Mapping):
+        raise InputError(name, f"must be a mapping (name -> value), got {type(d).__name__}")
+    return d
+
+
 def _mass_number(iso: str) -> int:
     return int(iso[:len(iso) - len(iso.lstrip("0123456789"))])
 
@@ -375,28 +381,40 @@ def strip_run_ratios(element: str, reference: str, ratios: Mapping[str, float], 
     el = as_name("element", element, "Nd")
     ref = as_name("reference", reference, "144Nd")
     own = {_mass_number(i): i for i in element_isotopes(el)}
+    if ref not in own.values():
+        raise InputError("reference", f"{ref!r} is not an isotope of {el}")
     beta = as_scalar("beta", beta)
+    ratios = _mapping("ratios", ratios)
+    sigma_1s = _mapping("sigma_1s", sigma_1s)
+    monitors = _mapping("monitors", monitors)
+    interferents = _mapping("interferents", interferents)
     terms = []          # (M, σM, {mass: ρ})
-    for name, (m_val, m_sig) in monitors.items():
+    for name, pair in monitors.items():
         num, _sep, den = str(name).partition("/")
         if den != ref:
             raise InputError("monitors", f"{name!r} is not a ratio to {ref}")
+        if not (isinstance(pair, (tuple, list)) and len(pair) == 2):
+            raise InputError("monitors", f"[{name!r}] must be (value, 1σ)")
         iel = _element(num)
-        comp = interferents.get(iel)
+        comp = _mapping(f"interferents[{iel!r}]", interferents.get(iel)) if iel in interferents else None
         if comp is None:
             raise InputError("interferents", f"no composition of {iel} for the monitor {name!r}")
-        m_val, m_sig = as_scalar(f"monitors[{name!r}]", m_val), as_scalar(f"monitors[{name!r}] 1σ", m_sig)
+        m_val, m_sig = as_scalar(f"monitors[{name!r}]", pair[0]), as_scalar(f"monitors[{name!r}] 1σ", pair[1])
         if m_val < 0 or m_sig < 0:
             raise InputError("monitors", f"{name!r}: a monitor ratio and its 1σ must be >= 0")
         rho = {}
-        f_mon = float(comp[num])
+        f_mon = as_scalar(f"interferents[{iel!r}][{num!r}]", comp.get(num, 0.0))
         if not f_mon > 0:
             raise InputError("interferents", f"{iel} has no {num} to monitor with")
         for k, f_k in comp.items():
-            mk = _mass_number(k)
-            if mk in own and k != num and float(f_k) > 0:
-                rho[mk] = float(bias_apply(float(f_k) / f_mon, isotope_mass(k).value, isotope_mass(num).value,
-                                           beta, law))
+            f_k = as_scalar(f"interferents[{iel!r}][{k!r}]", f_k)
+            try:
+                mk = _mass_number(str(k))
+                m_k = isotope_mass(str(k)).value
+            except (ValueError, InputError):
+                raise InputError("interferents", f"[{iel!r}] has {k!r}, which is not an isotope name") from None
+            if mk in own and k != num and f_k > 0:
+                rho[mk] = float(bias_apply(f_k / f_mon, m_k, isotope_mass(num).value, beta, law))
         terms.append((m_val, m_sig, rho))
     md = _mass_number(ref)
     c_d = sum(m * rho.get(md, 0.0) for m, _s, rho in terms)
@@ -404,14 +422,19 @@ def strip_run_ratios(element: str, reference: str, ratios: Mapping[str, float], 
         raise UndefinedResultError(f"the interferences on {ref} reach its whole beam: check the monitor ratios")
     out, sig, rel = {}, {}, {}
     for name, r in ratios.items():
-        num = str(name).partition("/")[0]
+        num, _sep, den = str(name).partition("/")
+        if den != ref or num not in own.values():
+            raise InputError("ratios", f"{name!r} is not a {el} ratio to {ref}")
+        r = as_scalar(f"ratios[{name!r}]", r)
+        if not r > 0:
+            raise InputError("ratios", f"[{name!r}] must be > 0, got {r!r}")
         mi = _mass_number(num)
         c_i = sum(m * rho.get(mi, 0.0) for m, _s, rho in terms)
         s = (float(r) - c_i) / (1.0 - c_d)
         if not s > 0:
             raise UndefinedResultError(f"{name}: the interferences take the whole beam (stripped ratio {s:.3g}): "
                                        "check the monitor ratios")
-        var = (float(sigma_1s.get(name, 0.0)) / (1.0 - c_d)) ** 2
+        var = (as_scalar(f"sigma_1s[{name!r}]", sigma_1s.get(name, 0.0)) / (1.0 - c_d)) ** 2
         for _m, m_sig, rho in terms:
             d_m = (-rho.get(mi, 0.0) * (1.0 - c_d) + rho.get(md, 0.0) * (float(r) - c_i)) / (1.0 - c_d) ** 2
             var += (d_m * m_sig) ** 2

@@ -30,6 +30,7 @@ from hypothesis import strategies as st
 import reduction
 from reduction import ages, blank, cycles, dilution, interference, massbias, propagate, regression, standards
 from reduction.cli import main as cli_main
+from reduction.composition import natural_composition
 from reduction.errors import InputError, RatioDeskError, UndefinedResultError
 
 NAN, INF = float("nan"), float("inf")
@@ -827,6 +828,8 @@ def _vectorised(X: Any) -> Any:
     return np.asarray(X)[:1] * 2.0
 
 
+_SM_NAT = natural_composition("Sm")
+_SM_SPIKE = reduction.load_demo_spikes()["demo-SmNd-149-150 Sm"]
 _FIT = regression.york_fit([0.10, 0.14, 0.18], [2e-4] * 3, [0.5116, 0.5118, 0.5121], [4e-6] * 3)
 #: One valid call per public function: (positional arguments, keyword arguments).
 VALID_CALLS: Dict[str, Any] = {
@@ -857,6 +860,10 @@ VALID_CALLS: Dict[str, Any] = {
     "strip_beams": (({"144Nd": [1.0, 1.0], "147Sm": [0.01, 0.01], "146Nd": [0.7, 0.7]}, "sm-nd"),
                     {"bias_factors": {"Sm": 1.0}}),
     "strip_isobar": ((1.0, 0.01, "144Sm", "147Sm"), {"bias_factor": 1.0}),
+    "strip_run_ratios": (("Nd", "144Nd", {"143Nd/144Nd": 0.512, "150Nd/144Nd": 0.3}, {"143Nd/144Nd": 1e-6},
+                          {"147Sm/144Nd": (1e-4, 1e-6)}, {"Sm": {"144Sm": 0.03, "147Sm": 0.15, "150Sm": 0.07}},
+                          -1.9), {}),
+    "mixture_fractions": ((_SM_NAT, _SM_SPIKE, "152Sm", 1.2), {}),
     "bias_apply": ((0.5, 143.9, 145.9, 1.0), {}),
     "bias_correct": ((0.5, 143.9, 145.9, 1.0), {}),
     "bias_factor": ((0.72, 0.7219, 145.9, 143.9), {}),
