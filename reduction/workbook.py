@@ -530,7 +530,7 @@ def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
     rows: List[Dict[str, Any]] = [
         {"key": "set", "quantity": "Reference set these values started from", "value": rs.name, "sigma_1s": "",
          "note": "", "unit": "", "source": rs.description}]
-    for key, label in (("Sm147", "λ 147Sm"), ("Lu176", "λ 176Lu")):
+    for key, label in (("Sm147", "λ 147Sm"), ("Lu176", "λ 176Lu"), ("Rb87", "λ 87Rb")):
         v = rs.decay_constant(key)
         rows.append({"key": f"decay.{key}", "quantity": f"Decay constant {label}", "value": v.value,
                      "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit, "source": v.source})
@@ -538,6 +538,11 @@ def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
         v = rs.reservoir("CHUR", ratio)
         rows.append({"key": f"CHUR.{ratio}", "quantity": f"CHUR present-day {ratio}", "value": v.value,
                      "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit, "source": v.source})
+    for ratio in ("87Sr/86Sr", "87Rb/86Sr"):
+        v = rs.reservoir("UR", ratio)
+        rows.append({"key": f"UR.{ratio}", "quantity": f"Uniform reservoir (bulk Earth) present-day {ratio}",
+                     "value": v.value, "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit,
+                     "source": v.source})
     for material, ratio in _REFERENCE_MATERIALS:
         v = reference_material(material, ratio)
         rows.append({"key": f"rm.{material}.{ratio}", "quantity": f"{material} accepted {ratio}",

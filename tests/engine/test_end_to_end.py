@@ -481,3 +481,23 @@ def test_isobars_are_stripped_in_the_grid(tmp_path, spec, doping):
         for k, (bp, _bd) in enumerate(spec["betas"]):
             assert ws.cell(FIRST_ROW + k, keys["beta_parent"]).value == pytest.approx(bp, rel=1e-9)
             assert ws.cell(FIRST_ROW + k, keys["strip_parent_ppm"]).value > 1     # 176Yb on 176Lu
+
+
+def test_rb_sr_decay_constant_is_a_live_constant(tmp_path):
+    """decay.Rb87 on the Constants sheet drives the Rb-Sr age: with λ = 1.3972e-11 /a (Villa et al. 2015,
+    Geochim. Cosmochim. Acta 164, 382) the age is t·1.42/1.3972 exactly (t = ln(1 + slope)/λ)."""
+    tables, truths = _tables((RBSR,), standard_rows("S2", "NIST SRM 987", "87Sr/86Sr"))
+    path = tmp_path / "rbsr.xlsx"
+    fill_template(path, tables, {"Rb-Sr": list(truths)})
+    wb = load_workbook(path)
+    ws = wb["Constants"]
+    col = {ws.cell(KEY_ROW, c).value: c for c in range(1, ws.max_column + 1)}
+    row = next(r for r in range(FIRST_ROW, ws.max_row + 1) if ws.cell(r, col["key"]).value == "decay.Rb87")
+    ws.cell(row, col["value"]).value = 1.3972e-11
+    wb.save(path)
+    out = tmp_path / "out"
+    assert main(["reduce", str(path), "-o", str(out)]) == 0
+    iso = load_workbook(out / "results.xlsx", data_only=True)["Isochron"]
+    q = {name: ISOCHRON_FIRST_Q_ROW + i for i, (name, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
+    age = iso.cell(q["age"], ISOCHRON_SUMMARY_COL + 2 + ISOCHRON_SYSTEMS.index("Rb-Sr")).value
+    assert age == pytest.approx(RBSR["t_ma"] * 1.42 / 1.3972, rel=1e-9)
