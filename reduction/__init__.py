@@ -86,6 +86,7 @@ from .massbias import (
     normalise,
     ratio_masses,
 )
+from .oxide import OxideCorrection, oxide_to_metal
 from .propagate import (
     MonteCarlo,
     Propagated,
@@ -171,6 +172,8 @@ __all__ = [
     "natural_ratio",
     "normalise",
     "normalising_ratio",
+    "oxide_to_metal",
+    "OxideCorrection",
     "propagate_linear",
     "Propagated",
     "ratio_masses",

@@ -352,11 +352,15 @@ MEASURED = Sheet(
     "needs a bias factor β (exponential law) with its 1σ, e.g. from a reference-material run. Ratio names: "
     "<isotope>/<reference isotope> of the row's element (144Nd, 152Sm, 177Hf, 175Lu, 86Sr, 85Rb). Monitor ratios "
     "strip isobars (ratios 5-6 have room for them): 147Sm/144Nd and 140Ce/144Nd on Nd, 173Yb/177Hf and 175Lu/177Hf "
-    "on Hf, 85Rb/86Sr on Sr, 173Yb/175Lu on Lu; 171Yb/175Lu with 173Yb/175Lu on Lu gives Lu's β from Yb doping.",
+    "on Hf, 85Rb/86Sr on Sr, 173Yb/175Lu on Lu; 171Yb/175Lu with 173Yb/175Lu on Lu gives Lu's β from Yb doping. "
+    "Ion 'oxide': the ratios are of monoxide beams (e.g. 143Nd16O/144Nd16O, written 143Nd/144Nd), every isotope of "
+    "the element given; they are corrected for 17O and 18O (Constants oxygen.*) before anything else.",
     (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
      _c("run_date", "Run date", "text", required=False, width=11), *_RATIO_COLS[:12],
      _c("bias_factor", "β external (exp. law)", required=False, width=12, number_format="0.0000"),
-     _c("bias_factor_1s", "β 1σ (abs)", required=False, width=10, number_format="0.0000"), *_RATIO_COLS[12:]),
+     _c("bias_factor_1s", "β 1σ (abs)", required=False, width=10, number_format="0.0000"), *_RATIO_COLS[12:],
+     _c("ion", "Ion (metal / oxide)", "text", required=False, width=10,
+        help="empty or metal; oxide: the ratios are of monoxide beams (e.g. NdO+), oxygen-corrected first")),
     capacity=120)
 
 # Results: (key, header, quantity, number format); quantity "" = copied from Samples
@@ -548,6 +552,13 @@ def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
         rows.append({"key": f"rm.{material}.{ratio}", "quantity": f"{material} accepted {ratio}",
                      "value": v.value, "sigma_1s": v.sigma_1s, "note": provenance_note(v), "unit": v.unit,
                      "source": v.source})
+    from .constants import normalising_ratio
+
+    for ratio in ("17O/16O", "18O/16O"):
+        v = normalising_ratio(ratio)
+        rows.append({"key": f"oxygen.{ratio}", "quantity": f"Oxygen {ratio} for oxide runs (Measured Ion 'oxide')",
+                     "value": v.value, "sigma_1s": "", "note": provenance_note(v) + "; type your lab's own",
+                     "unit": v.unit, "source": v.source})
     for key, quantity, unit, note in LAB_ROWS:
         rows.append({"key": key, "quantity": quantity, "value": 0.0, "sigma_1s": "", "note": note, "unit": unit,
                      "source": "the laboratory (type your own value)"})
@@ -964,8 +975,20 @@ _MONITOR_NAMES: Dict[str, Tuple[str, ...]] = {
 _YB_PAIR = ("173Yb/175Lu", "171Yb/175Lu", "173Yb/171Yb")
 
 
-def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError]
-         ) -> Tuple[Dict[str, float], Dict[str, float], Optional[float], float, int, Dict[str, Tuple[float, float]]]:
+def _oxygen(constants: Rows, ratio: str) -> float:
+    """17O/16O or 18O/16O for oxide runs: the Constants row ``oxygen.<ratio>``, else the convention."""
+    from .constants import normalising_ratio
+
+    row = _constants(constants).get(f"oxygen.{ratio}")
+    return row[0] if row is not None else normalising_ratio(ratio).value
+
+
+#: What :func:`_run` returns: ratios, their 1σ, external β or None, β 1σ, row index, monitors (value, 1σ).
+RunRow = Tuple[Dict[str, float], Dict[str, float], Optional[float], float, int, Dict[str, Tuple[float, float]]]
+
+
+def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError],
+         oxygen: Tuple[float, float] = (0.0, 0.0)) -> RunRow:
     """(ratios, their 1σ, external β or None, β 1σ, row index, monitors) of one element run on Measured.
 
     Every ratio name is checked here, so a bad one is reported at its own Measured cell; ``monitors`` maps
@@ -1006,6 +1029,20 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
             raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice or is {ref}/{ref}")
         vals[f"{num}/{den}"] = measured.number(i, f"r{k}", positive=True)
         sig[f"{num}/{den}"] = measured.number(i, f"r{k}_sigma_1s", positive=True)
+    ion = measured.text(i, "ion", required=False).lower()
+    if ion not in ("", "metal", "oxide"):
+        raise measured.error(i, "ion", f"{shown(ion)}: type metal (or leave empty) or oxide")
+    if ion == "oxide":
+        if monitors:
+            raise measured.error(i, "ion", "an oxide run with monitor ratios is not reduced here (the oxide masses "
+                                 "of the interferents overlap other masses): strip them before, or run as metal")
+        from .oxide import oxide_to_metal
+
+        try:
+            ox = oxide_to_metal(element, ref, vals, sig, *oxygen)
+        except InputError as exc:
+            raise measured.error(i, "ion", f"oxide run: {exc.problem}") from None
+        vals, sig = ox.ratios, ox.sigma_1s
     bf = measured.number(i, "bias_factor", required=False, default=float("nan"))
     bf_s = measured.number(i, "bias_factor_1s", required=False)
     if bf_s < 0:
@@ -1326,8 +1363,9 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
     p_el, d_el = system.parent_element, system.daughter_element
     p_spike = _spike(sp, label, p_el, at("spike"))
     d_spike = _spike(sp, label, d_el, at("spike"))
-    p_mix, p_sig, p_bf, p_bf_s, _pi, p_mon = _run(mt, analysis, p_el, at("analysis"))
-    d_mix, d_sig, d_bf, _d_bf_s, d_i, d_mon = _run(mt, analysis, d_el, at("analysis"))
+    oxygen = (_oxygen(constants, "17O/16O"), _oxygen(constants, "18O/16O"))
+    p_mix, p_sig, p_bf, p_bf_s, _pi, p_mon = _run(mt, analysis, p_el, at("analysis"), oxygen)
+    d_mix, d_sig, d_bf, _d_bf_s, d_i, d_mon = _run(mt, analysis, d_el, at("analysis"), oxygen)
     if d_bf is not None:
         raise mt.error(d_i, "bias_factor", f"{d_el} is normalised to {_NORM_RATIO[d_el]} within its own run, so a "
                        "typed β would not be used: leave β and its 1σ empty on this row")
@@ -2611,6 +2649,8 @@ def choices() -> Tuple[Choice, ...]:
         out.append(Choice(f"rd_ratio_name{k}", "Measured", MEASURED.col_index(f"r{k}_name"), rows(MEASURED), names,
                           strict=False, title=f"Ratio {k}",
                           help="<isotope>/<reference isotope> of the row's element."))
+    out.append(Choice("rd_ion", "Measured", MEASURED.col_index("ion"), rows(MEASURED), ("metal", "oxide"),
+                      title="Ion", help="metal (or empty), or oxide: the ratios are of monoxide beams."))
     use_rows = tuple(r for _s, r in selection_rows())
     out.append(Choice("rd_use", "Isochron", ISOCHRON.col_index("use"), use_rows, whole_0_1=True, title="Use",
                       help="1 = use the row in the isochron, 0 = leave it out."))

@@ -501,3 +501,41 @@ def test_rb_sr_decay_constant_is_a_live_constant(tmp_path):
     q = {name: ISOCHRON_FIRST_Q_ROW + i for i, (name, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
     age = iso.cell(q["age"], ISOCHRON_SUMMARY_COL + 2 + ISOCHRON_SYSTEMS.index("Rb-Sr")).value
     assert age == pytest.approx(RBSR["t_ma"] * 1.42 / 1.3972, rel=1e-9)
+
+
+def test_ndo_oxide_run_comes_back_through_the_template(tmp_path):
+    """A Nd run measured as NdO+ (Measured Ion 'oxide', every Nd isotope given): oxygen-corrected with 17O/16O =
+    379.9e-6 and 18O/16O = 2005.20e-6 (VSMOW; Li et al. 1988, Baertschi 1976 — recalled from memory), then
+    reduced as metal. Forward model in mpmath: fractionated metal beams, then each oxide mass m carries
+    N(m−16) + o17·N(m−17) + o18·N(m−18)."""
+    o17, o18 = mp.mpf("379.9e-6"), mp.mpf("2005.20e-6")
+    spec = dict(SMND, xs=SMND["xs"][:3], d_concs=SMND["d_concs"][:3], masses=SMND["masses"][:3])
+    tables, truths = _tables((spec,), standard_rows("S1", "JNdi-1", "143Nd/144Nd"))
+    nd_isos = ind.isotopes("Nd")
+    for k, row in enumerate(r for r in tables["Measured"] if r["element"] == "Nd"):
+        a = row["analysis"]
+        y = truths[a]["y"]
+        w_s, w_t = spec["masses"][k]
+        d_fr = ind.sample_fractions("Nd", {"143Nd/144Nd": y})
+        d_umol = mp.mpf(spec["d_concs"][k]) / ind.molar_mass(d_fr) * mp.mpf(repr(w_s))
+        sp = SPIKES[f"{spec['label']} Nd"]
+        true = ind.mixture_ratios("Nd", "144Nd", float(d_umol), d_fr, sp["concentration_umol_g"] * w_t,
+                                  sp["spike_isotope"], sp["abundances"], beta=0.0,
+                                  blank_umol=float(mp.mpf(spec["blanks"][1]) * mp.mpf("1e-3")
+                                                   / ind.molar_mass(ind.natural_fractions("Nd"))))
+        b = mp.mpf(repr(spec["betas"][k][1]))
+        metal = {int(i[:-2]): (mp.mpf(1) if i == "144Nd" else mp.mpf(repr(true[f"{i}/144Nd"])))
+                 * (ind.mass(i) / ind.mass("144Nd")) ** (-b) for i in nd_isos}
+        oxide = {m + 16: metal[m] + o17 * metal.get(m - 1, 0) + o18 * metal.get(m - 2, 0) for m in metal}
+        for key in list(row):
+            if key.startswith("r"):
+                del row[key]
+        for j, i in enumerate((i for i in nd_isos if i != "144Nd"), start=1):
+            v = float(oxide[int(i[:-2]) + 16] / oxide[160])
+            row[f"r{j}_name"], row[f"r{j}"], row[f"r{j}_sigma_1s"] = f"{i}/144Nd", v, v * 1e-5
+        row["ion"] = "oxide"
+    results, ages, _wb = reduce_and_read(tmp_path, tables, {"Sm-Nd": list(truths)})
+    for a, tr in truths.items():
+        assert results[a]["x"] == pytest.approx(tr["x"], rel=1e-8), a
+        assert results[a]["y"] == pytest.approx(tr["y"], rel=1e-8), a
+    assert ages["Sm-Nd"]["age"] == pytest.approx(SMND["t_ma"], rel=1e-6)

@@ -864,6 +864,8 @@ VALID_CALLS: Dict[str, Any] = {
                           {"147Sm/144Nd": (1e-4, 1e-6)}, {"Sm": {"144Sm": 0.03, "147Sm": 0.15, "150Sm": 0.07}},
                           -1.9), {}),
     "mixture_fractions": ((_SM_NAT, _SM_SPIKE, "152Sm", 1.2), {}),
+    "oxide_to_metal": (("Sm", "152Sm", {f"{i}/152Sm": 0.5 for i in ("144Sm", "147Sm", "148Sm", "149Sm", "150Sm",
+                                                                    "154Sm")}, {}, 3.8e-4, 2.0e-3), {}),
     "bias_apply": ((0.5, 143.9, 145.9, 1.0), {}),
     "bias_correct": ((0.5, 143.9, 145.9, 1.0), {}),
     "bias_factor": ((0.72, 0.7219, 145.9, 143.9), {}),
