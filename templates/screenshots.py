@@ -28,6 +28,8 @@ SHOTS = (  # (file, sheet, cell to select)
     ("samples.png", "Samples", "F7"),
     ("standards.png", "Standards", "N11"),
     ("results.png", "Results", "I5"),
+    ("steps.png", "Steps", "C5"),
+    ("spikes.png", "Spikes", "U5"),
     ("isochron.png", "Isochron", "J9"),
 )
 

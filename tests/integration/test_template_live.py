@@ -222,10 +222,39 @@ if __name__ != "__main__":
             name = ISOCHRON_QUANTITIES[row - ISOCHRON_FIRST_Q_ROW][0]
         return any(k in name for k in SIGMA_KEYS) or name in ("eps_t", "mswd", "p", "message")
 
+    def _live_layout():
+        """The demo workbook with two runs changed so the live chain also covers issue 12's paths: SN-01's Nd run
+        carries a 147Sm/144Nd monitor (Sm isobars stripped), SN-02's Nd run is a NdO+ run (oxide ratios of every Nd
+        isotope, from its metal ratios and the convention's 142, 145, 148; VSMOW oxygen). Grid = batch is what is
+        checked here, not the truth (that is tests/engine/test_end_to_end.py's job)."""
+        from reduction.composition import natural_composition
+        from reduction.workbook import build_layout, fill_values
+
+        tables = demo.demo_tables()
+        nd = {r["analysis"]: r for r in tables["Measured"] if r["element"] == "Nd"}
+        nd["SN-01"].update({"r5_name": "147Sm/144Nd", "r5": 3e-5, "r5_sigma_1s": 3e-7})
+        row = nd["SN-02"]
+        metal = {row[f"r{k}_name"].split("/")[0]: row[f"r{k}"] for k in (1, 2, 3)}
+        nat = natural_composition("Nd")
+        for iso in ("142Nd", "145Nd", "148Nd"):
+            metal[iso] = nat.ratio(iso, "144Nd")
+        metal["144Nd"] = 1.0
+        o17, o18 = 379.9e-6, 2005.20e-6
+        m = {int(k[:-2]): v for k, v in metal.items()}
+        ox = {a + 16: m[a] + o17 * m.get(a - 1, 0.0) + o18 * m.get(a - 2, 0.0) for a in m}
+        names = [f"{a}Nd/144Nd" for a in sorted(m) if a != 144]
+        for k, name in enumerate(names, start=1):
+            v = ox[int(name[:3]) + 16] / ox[160]
+            row[f"r{k}_name"], row[f"r{k}"], row[f"r{k}_sigma_1s"] = name, v, v * 1e-5
+        row["ion"] = "oxide"
+        lay = build_layout(tables, constants=demo.demo_constants(), isochron_selection=demo.demo_selection())
+        fill_values(lay, evaluate(layout_grid(lay), strict=False))
+        return lay
+
     @pytest.fixture(scope="module", params=[".ods", ".xlsx"])
     def live(request, office, tmp_path_factory):
         work = tmp_path_factory.mktemp("live")
-        lay = demo.demo_layout()
+        lay = _live_layout()
         book = work / f"demo{request.param}"
         (write_ods if request.param == ".ods" else write_xlsx)(lay, book)
         grid = layout_grid(lay)
@@ -236,7 +265,9 @@ if __name__ != "__main__":
         for sheet, key, second, col, factor in (
                 ("Constants", "rm.JNdi-1.143Nd/144Nd", None, vcol, 1 + 3e-5),
                 ("Spikes", "LH-SmNd-3", "Sm", SPIKES.col_index("conc_umol_g"), 1.004),
-                ("Constants", "decay.Sm147", None, vcol, 6.5238e-12 / 6.54e-12)):
+                ("Constants", "decay.Sm147", None, vcol, 6.5238e-12 / 6.54e-12),
+                ("Measured", "SN-01", "Nd", MEASURED.col_index("r5"), 1.5),
+                ("Constants", "oxygen.18O/16O", None, vcol, 1.05)):
             r = _row(g, sheet, key, 0, second)
             new = g[sheet][r - 1][col] * factor
             _put(g, sheet, r, col, new)
@@ -354,7 +385,8 @@ if __name__ != "__main__":
         assert isinstance(spk, float) and spk > 0
 
     @pytest.mark.parametrize("step,what", [(0, "accepted value of JNdi-1"), (1, "Sm spike calibration"),
-                                           (2, "147Sm decay constant")])
+                                           (2, "147Sm decay constant"), (3, "147Sm monitor of a Nd run"),
+                                           (4, "oxygen 18O/16O of an oxide run")])
     def test_live_chain_follows_each_edit(live, step, what):
         ev = evaluate(live["grids"][step])
         got = live["got"]["steps"][step]
