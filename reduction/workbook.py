@@ -1029,9 +1029,10 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
             raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice or is {ref}/{ref}")
         vals[f"{num}/{den}"] = measured.number(i, f"r{k}", positive=True)
         sig[f"{num}/{den}"] = measured.number(i, f"r{k}_sigma_1s", positive=True)
-    ion = measured.text(i, "ion", required=False).lower()
+    typed_ion = measured.text(i, "ion", required=False)
+    ion = typed_ion.lower()
     if ion not in ("", "metal", "oxide"):
-        raise measured.error(i, "ion", f"{shown(ion)}: type metal (or leave empty) or oxide")
+        raise measured.error(i, "ion", f"{shown(typed_ion)}: type metal (or leave empty) or oxide")
     if ion == "oxide":
         if monitors:
             raise measured.error(i, "ion", "an oxide run with monitor ratios is not reduced here (the oxide masses "

@@ -639,3 +639,50 @@ def test_input_bytes_and_mtime_are_untouched_by_a_successful_run(tmp_path, capsy
     rc, _o, err = _reduce(book, tmp_path / "o", capsys)
     assert rc == 0, err
     assert os.stat(book).st_mtime_ns == st.st_mtime_ns
+
+
+def _nd_row(t, analysis="SN-01"):
+    return next(k for k, r in enumerate(t["Measured"]) if r["analysis"] == analysis and r["element"] == "Nd")
+
+
+@pytest.mark.parametrize("change,key,problem", [
+    ({"ion": "NdO"}, "ion", "'NdO': type metal (or leave empty) or oxide"),
+    ({"ion": "oxide"}, "ion", "oxide run: an oxide run needs every Nd isotope"),
+    ({"r5_name": "147Sm/144Nd", "r5": 1e-5, "r5_sigma_1s": 1e-7, "ion": "oxide"}, "ion",
+     "an oxide run with monitor ratios is not reduced here"),
+    ({"r5_name": "147Sm/144Nd", "r5": 1e-5, "r5_sigma_1s": 0.0}, "r5_sigma_1s", "must be > 0"),
+    ({"r5_name": "85Rb/86Sr", "r5": 1e-5, "r5_sigma_1s": 1e-7}, "r5_name",
+     "'85Rb/86Sr' is not a Nd ratio to 144Nd: write it as <isotope>/144Nd with one of 142Nd, 143Nd, 145Nd, 146Nd, "
+     "148Nd, 150Nd, or a monitor ratio: 147Sm/144Nd, 140Ce/144Nd"),
+    ({"r5_name": "147Sm/144Nd", "r5": 20.0, "r5_sigma_1s": 1e-3}, "analysis",
+     "stripping the isobars of this Nd run: the interferences on 144Nd reach its whole beam"),
+    ({"bias_factor": 1.9, "bias_factor_1s": 0.01}, "bias_factor", "Nd is normalised to 146Nd/144Nd within its own run"),
+])
+def test_bad_input_in_the_new_measured_columns_is_named_at_its_cell(tmp_path, capsys, change, key, problem):
+    """Issue 12's columns (monitor ratios, Ion, β of a self-normalising run): one message at the cell; the typed
+    workbook is not changed."""
+    def edit(t):
+        t["Measured"][_nd_row(t)].update(change)
+    t, c, _s = _with(edit)
+    k = _nd_row(t)
+    path = _write(t, tmp_path / "m.xlsx", constants=c)
+    before = _digest(path)
+    err = _fails(path, tmp_path, capsys)
+    assert f"{_cell(MEASURED, k, key)}: {problem}" in err, err
+    assert _digest(path) == before
+
+
+def test_lu_yb_doping_conflicts_and_gaps_are_named(tmp_path, capsys):
+    """Yb doping needs both 173Yb/175Lu and 171Yb/175Lu, and a typed β beside it is a conflict, named."""
+    def edit(t):
+        k = next(k for k, r in enumerate(t["Measured"]) if r["element"] == "Lu")
+        t["Measured"][k].update({"r2_name": "173Yb/175Lu", "r2": 0.3, "r2_sigma_1s": 1e-5,
+                                 "r3_name": "171Yb/175Lu", "r3": 0.27, "r3_sigma_1s": 1e-5})
+    t, c, _s = _with(edit)
+    k = next(k for k, r in enumerate(t["Measured"]) if r["element"] == "Lu")
+    err = _fails(_write(t, tmp_path / "y.xlsx", constants=c), tmp_path, capsys)
+    assert f"{_cell(MEASURED, k, 'bias_factor')}: β is typed and also given by Yb doping" in err, err
+    t["Measured"][k].pop("r3_name"), t["Measured"][k].pop("r3"), t["Measured"][k].pop("r3_sigma_1s")
+    t["Measured"][k].pop("bias_factor"), t["Measured"][k].pop("bias_factor_1s")
+    err = _fails(_write(t, tmp_path / "z.xlsx", constants=c), tmp_path, capsys)
+    assert "Yb doping needs both 173Yb/175Lu and 171Yb/175Lu" in err, err
