@@ -988,6 +988,17 @@ def rdEllipse(x: Any, sx: Any, y: Any, sy: Any, rho: Any = None, points: Any = N
     return tuple((float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist()))
 
 
+@cell_function(array=True, rename={"n_points": "points"})
+def rdDeviationEllipse(x: Any, sx: Any, y: Any, sy: Any, rho: Any, slope: Any, intercept: Any, points: Any = None,
+                       confidence: Any = None) -> Any:
+    n = whole("points", points, 48.0, 3, MAX_ELLIPSE_POINTS)
+    xs, ds = engine("regression").deviation_points(number("x", x), number("sx", sx), number("y", y),
+                                                   number("sy", sy), number("rho", rho, 0.0), number("slope", slope),
+                                                   number("intercept", intercept), n_points=n,
+                                                   confidence=number("confidence", confidence, 0.95))
+    return tuple((float(a), float(b)) for a, b in zip(xs.tolist(), ds.tolist()))
+
+
 # --------------------------------------------------------------------------------------------
 # shared readers for part-2 inputs
 # --------------------------------------------------------------------------------------------

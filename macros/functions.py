@@ -427,6 +427,16 @@ FUNCTIONS: Tuple[Function, ...] = (
              (_c("element", "Element of the spike row: Sm, Nd, Lu, Hf, Rb or Sr."),
               _v("spikeIsotope", "Optional: the spike's enriched isotope, e.g. 150Nd.")),
              "workbook.run_ratios"),
+    Function("rdDeviationEllipse", "RD.DEVIATION.ELLIPSE", "ellipse",
+             "A point's error ellipse in deviation space for a chart beside the isochron: points + 1 rows of 2 "
+             "cells (x, deviation from the line in ppm), closed. Enter as an array formula.",
+             (_c("x", "x of the point."), _c("sx", "1 sigma of x (> 0)."), _c("y", "y of the point."),
+              _c("sy", "1 sigma of y (> 0)."), _c("rho", "Error correlation (an empty cell counts as 0)."),
+              _c("slope", "Slope of the line (the isochron)."), _c("intercept", "Intercept of the line."),
+              _v("points", f"Optional: number of outline segments, a whole number from 3 to {MAX_ELLIPSE_POINTS} "
+                           "(default 48)."),
+              _v("confidence", "Optional: confidence level of the region (default 0.95).")),
+             "regression.deviation_points", "array"),
 )
 
 BY_METHOD: Dict[str, Function] = {f.method: f for f in FUNCTIONS}

@@ -44,6 +44,7 @@ __all__ = [
     "IsochronFit",
     "WeightedMean",
     "YorkBatch",
+    "deviation_points",
     "ellipse_points",
     "fit_isochron",
     "weighted_mean",
@@ -1260,6 +1261,26 @@ def ellipse_points(x: float, sx: float, y: float, sy: float, rho: float = 0.0, *
     finite_result("error ellipse", outline=np.concatenate([xs, ys]))
     xs[-1], ys[-1] = xs[0], ys[0]
     return xs, ys
+
+
+def deviation_points(x: float, sx: float, y: float, sy: float, rho: float, slope: float, intercept: float, *,
+                     n_points: int = 48, confidence: float = 0.95) -> Tuple[np.ndarray, np.ndarray]:
+    """A point's error ellipse in deviation space: x against the deviation from a line, in ppm.
+
+    Every vertex (x', y') of :func:`ellipse_points` maps to (x', (y' − ŷ(x'))/ŷ(x')·10⁶) with
+    ŷ = ``intercept`` + ``slope``·x' — the transform the report's deviation panel draws, so an ellipse
+    a few ppm tall, invisible at an isochron's full scale, is seen (common practice of plotting
+    residuals). The line is the isochron the point belongs to; ŷ must be > 0 along the outline.
+    """
+    b, a = as_scalar("slope", slope), as_scalar("intercept", intercept)
+    xs, ys = ellipse_points(x, sx, y, sy, rho, n_points=n_points, confidence=confidence)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        line = a + b * xs
+        if not np.all(line > 0):
+            raise UndefinedResultError("the line's value is not > 0 across the ellipse: no deviation in ppm")
+        dev = (ys - line) / line * 1e6
+    finite_result("deviation outline", outline=dev)
+    return xs, dev
 
 
 #: Up to this many degrees of freedom the MSWD test is called weak (common practice: the χ² 5–95 %

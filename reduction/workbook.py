@@ -486,6 +486,8 @@ INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured")
 #: Isochron selection: one block of rows per system, Sm-Nd first.
 ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10, FIRST_ROW + 17),
                   "Rb-Sr": (FIRST_ROW + 20, FIRST_ROW + 27)}
+#: First column of the deviation-ellipse outlines (after every selection row's ellipse, two columns each).
+DEVIATION_COL0 = ELLIPSE_COL0 + 2 * sum(last - first + 1 for first, last in ISOCHRON_BLOCK.values())
 #: Each block has a header row and a key row right above it (rows 3-4 and 13-14).
 
 
@@ -1965,10 +1967,30 @@ def ellipse_formulas() -> Dict[Tuple[int, int], Tuple[Formula, int]]:
     return out
 
 
+def deviation_formulas() -> Dict[Tuple[int, int], Tuple[Formula, int, str]]:
+    """(top row, left column) of each deviation-ellipse array formula -> (formula, selection row, system).
+
+    Beside the ellipse outlines: the same point's 95 % ellipse as x against its deviation from the system's
+    fitted line in ppm (rdDeviationEllipse, the report's deviation panel), for the deviation chart.
+    """
+    out: Dict[Tuple[int, int], Tuple[Formula, int, str]] = {}
+    rows = selection_rows()
+    q = {name: ISOCHRON_FIRST_Q_ROW + i for i, (name, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
+    for k, (system, row) in enumerate(rows):
+        col = ISOCHRON_SUMMARY_COL + 1 + ISOCHRON_SYSTEMS.index(system)
+        here = Ref("Isochron", 0, row, absolute=False, abs_col_only=True)
+        args = tuple(Ref("Isochron", ISOCHRON.col_index(key), row, absolute=False, abs_col_only=True)
+                     for key in ("x", "x_1s", "y", "y_1s", "rho"))
+        args += (Ref("Isochron", col, q["slope"]), Ref("Isochron", col, q["initial"]), float(ELLIPSE_POINTS),
+                 ELLIPSE_CONFIDENCE)
+        out[(FIRST_ROW, DEVIATION_COL0 + 2 * k)] = (Formula("rdDeviationEllipse", args, guard=here), row, system)
+    return out
+
+
 def all_computed_cells() -> List[Tuple[str, int, int]]:
     """Every computed cell, ellipse outlines included (for comparing the grid with the batch path)."""
     cells = set(expected_formulas())
-    for (top, left), _f in ellipse_formulas().items():
+    for (top, left), _f in list(ellipse_formulas().items()) + list(deviation_formulas().items()):
         for r in range(top, top + ELLIPSE_POINTS + 1):
             cells.update({("Isochron", r, left), ("Isochron", r, left + 1)})
     return sorted(cells)
@@ -2075,6 +2097,25 @@ def _ellipse(pt: Sequence[Cell], row: Optional[int] = None) -> List[Tuple[float,
     except InputError as exc:
         raise CellError("Isochron", row, None, "", f"ellipse of analysis {shown(a)}: {exc}") from None
     return [(float(a), float(b)) for a, b in zip(xs.tolist(), ys.tolist())]
+
+
+def _deviation(pt: Sequence[Cell], row: int, line: Sequence[Any]) -> List[Tuple[float, float]]:
+    """The deviation outline of one selection row, as rdDeviationEllipse returns it."""
+    from .regression import deviation_points
+
+    _ellipse(pt, row)          # the point's own cells: the same messages as its ellipse
+    a = pt[0] if not isinstance(pt[0], float) else f"{pt[0]:g}"
+    if not all(isinstance(v, float) for v in line):
+        bad = next(v for v in line if not isinstance(v, float))
+        raise FollowOnError("Isochron", row, None, "", f"deviation of analysis {shown(a)}: the isochron has no line "
+                            f"({_cell_message(str(bad)) if str(bad).strip() else 'no fit'})")
+    ci = [ISOCHRON.col_index(k) for k in ("x", "x_1s", "y", "y_1s", "rho")]
+    try:
+        xs, ds = deviation_points(*[pt[i] for i in ci], line[0], line[1], n_points=ELLIPSE_POINTS,
+                                  confidence=ELLIPSE_CONFIDENCE)
+    except RatioDeskError as exc:
+        raise CellError("Isochron", row, None, "", f"deviation of analysis {shown(a)}: {exc}") from None
+    return [(float(u), float(v)) for u, v in zip(xs.tolist(), ds.tolist())]
 
 
 def _raise(exc: Exception) -> Any:
@@ -2371,6 +2412,21 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         for q_i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES):
             v = fit if isinstance(fit, str) else run(lambda q=q, fit=fit: _isochron_cell(q, fit))
             put("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col, v)
+    qrow = {name: ISOCHRON_FIRST_Q_ROW + i for i, (name, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
+    for (top, left), (_f, srow, system) in deviation_formulas().items():
+        pt = sheet_block(work, "Isochron", srow, 0, srow, len(ISOCHRON.columns) - 1)[0]
+        col = ISOCHRON_SUMMARY_COL + 1 + ISOCHRON_SYSTEMS.index(system)
+        line = [cells.get(("Isochron", qrow[q], col), "") for q in ("slope", "initial")]
+        vals = "" if pt[0] == "" else run(lambda pt=pt, srow=srow, line=line: _deviation(pt, srow, line))
+        for i in range(ELLIPSE_POINTS + 1):
+            for j in (0, 1):
+                if not isinstance(vals, str):
+                    v = vals[i][j]
+                elif vals == "" or (i == 0 and j == 0):
+                    v = vals
+                else:
+                    v = "#N/A"
+                put("Isochron", top + i, left + j, v)
     return Evaluation(cells, tuple(errors), tuple(warnings))
 
 
@@ -2528,9 +2584,13 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         if sheet != "Isochron" or col < len(columns):
             spec.number_format = columns[col].number_format
         target[(row, col)] = spec
-    for (top, left), (f, srow) in ellipse_formulas().items():
-        iso[(HEADER_ROW, left)] = CellSpec(f"Ellipse of row {srow}: x", style="header")
-        iso[(HEADER_ROW, left + 1)] = CellSpec("y (95 % outline)", style="header")
+    shapes = [(k, f, f"Ellipse of row {srow}: x", "y (95 % outline)")
+              for k, (f, srow) in ellipse_formulas().items()]
+    shapes += [(k, f, f"Deviation of row {srow}: x", "ppm from the line (95 %)")
+               for k, (f, srow, _s) in deviation_formulas().items()]
+    for (top, left), f, h1, h2 in shapes:
+        iso[(HEADER_ROW, left)] = CellSpec(h1, style="header")
+        iso[(HEADER_ROW, left + 1)] = CellSpec(h2, style="header")
         for i in range(ELLIPSE_POINTS + 1):
             for j in (0, 1):
                 iso[(top + i, left + j)] = CellSpec(style="computed", number_format="0.000000E+00")
@@ -2820,34 +2880,53 @@ def _xlsx_value(cell: Any, v: Any, sheet: str) -> None:
         cell.value = v
 
 
+def isochron_charts() -> List[Tuple[str, str, Tuple[str, str], str, List[int], Tuple[int, int]]]:
+    """The Isochron sheet's charts, both file formats: (name, title, (x, y) axis titles, y number format,
+    first columns of the outline pairs it draws, anchor (row, 0-based column)).
+
+    Per system: the isochron at full scale (the ellipse outlines), then beside it in the column the
+    deviation plot (the same ellipses as ppm from the fitted line), so garnet ellipses are visible.
+    """
+    sel = selection_rows()
+    dev = {srow: left for (_t, left), (_f, srow, _s) in deviation_formulas().items()}
+    ell = {srow: left for (_t, left), (_f, srow) in ellipse_formulas().items()}
+    base = ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2
+    out = []
+    for k, system in enumerate(ISOCHRON_SYSTEMS):
+        rows = [r for s_name, r in sel if s_name == system]
+        xt, yt = axis_titles(system)
+        out.append((f"{system} isochron chart", f"{system} isochron — 95 % error ellipses", (xt, yt), "0.0000",
+                    [ell[r] for r in rows], (base + 40 * k, ISOCHRON_SUMMARY_COL)))
+        out.append((f"{system} deviation chart", f"{system} — deviation from the fitted line, 95 % ellipses",
+                    (xt, f"{yt}: deviation (ppm)"), "0", [dev[r] for r in rows],
+                    (base + 40 * k + 20, ISOCHRON_SUMMARY_COL)))
+    return out
+
+
 def _xlsx_charts(ws: Any) -> None:
-    """One scatter chart per system: the 95 % error ellipses of its selection rows (lines, no markers)."""
+    """The scatter charts of :func:`isochron_charts`: outlines as lines, no markers."""
     from openpyxl.chart import Reference, ScatterChart, Series
 
-    sel = selection_rows()
-    for k, system in enumerate(ISOCHRON_SYSTEMS):
+    for _name, title, (xt, yt), yfmt, lefts, (row, col0) in isochron_charts():
         ch = ScatterChart()
-        ch.title = f"{system} isochron — 95 % error ellipses"
+        ch.title = title
         ch.style = 13
-        ch.x_axis.title, ch.y_axis.title = axis_titles(system)
+        ch.x_axis.title, ch.y_axis.title = xt, yt
         ch.legend = None
         ch.height, ch.width = 9.5, 16
-        for i, (s_name, row) in enumerate(sel):
-            if s_name != system:
-                continue
-            col = ELLIPSE_COL0 + 2 * i + 1
-            xs = Reference(ws, min_col=col, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
-            ys = Reference(ws, min_col=col + 1, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
-            series = Series(ys, xs, title=f"row {row}")
+        for left in lefts:
+            xs = Reference(ws, min_col=left + 1, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
+            ys = Reference(ws, min_col=left + 2, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
+            series = Series(ys, xs)
             series.marker.symbol = "none"
             series.smooth = False
             ch.series.append(series)
         ch.x_axis.delete = False
         ch.y_axis.delete = False
         ch.x_axis.number_format = "0.00"
-        ch.y_axis.number_format = "0.0000"
+        ch.y_axis.number_format = yfmt
         ch.x_axis.majorGridlines = None
-        ws.add_chart(ch, f"I{ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2 + 20 * k}")
+        ws.add_chart(ch, f"{col_letter(col0)}{row}")
 
 
 def _xlsx_add_cached_values(path: Any, names: Sequence[str], cached: Mapping[str, Mapping[str, Any]]) -> None:

@@ -18,22 +18,16 @@ from xml.sax.saxutils import escape, quoteattr
 from reduction.workbook import (
     ELLIPSE_POINTS,
     FIRST_ROW,
-    ISOCHRON_FIRST_Q_ROW,
-    ISOCHRON_QUANTITIES,
-    ISOCHRON_SUMMARY_COL,
-    ISOCHRON_SYSTEMS,
     SHEET_ORDER,
     WIDTHS,
     CellSpec,
     Layout,
     LogicalCell,
-    axis_titles,
     check_text,
     choice_cells,
     choices,
     col_letter,
-    ellipse_formulas,
-    selection_rows,
+    isochron_charts,
 )
 
 NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
@@ -181,28 +175,24 @@ CHART_NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
 
 
 def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
-    """(object name, chart content.xml, draw:frame xml, anchor cell) of the Isochron sheet's ellipse charts.
+    """(object name, chart content.xml, draw:frame xml, anchor cell) of the Isochron sheet's charts
+    (reduction.workbook.isochron_charts: per system the isochron and its deviation plot).
 
     Each frame is anchored to a cell (the .xlsx chart's anchor, below the summary block), so row
     heights do not move it onto the cells.
     """
-    tops = {srow: left for (_top, left), (_f, srow) in ellipse_formulas().items()}
     last = FIRST_ROW + ELLIPSE_POINTS
     out = []
-    for k, system in enumerate(ISOCHRON_SYSTEMS):
-        row0 = ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2 + 20 * k     # as the .xlsx chart anchor
+    for k, (frame_name, title, (xl, yl), yfmt, lefts, anchor) in enumerate(isochron_charts()):
         series, ranges = [], []
-        for s_name, srow in selection_rows():
-            if s_name != system:
-                continue
-            xc, yc = col_letter(tops[srow]), col_letter(tops[srow] + 1)
+        for left in lefts:
+            xc, yc = col_letter(left), col_letter(left + 1)
             xr, yr = f"Isochron.{xc}{FIRST_ROW}:Isochron.{xc}{last}", f"Isochron.{yc}{FIRST_ROW}:Isochron.{yc}{last}"
             ranges.append(f"Isochron.{xc}{FIRST_ROW}:Isochron.{yc}{last}")
             series.append(f'<chart:series chart:style-name="ser" chart:class="chart:scatter" '
                           f'chart:values-cell-range-address="{yr}"><chart:domain table:cell-range-address="{xr}"/>'
                           f"</chart:series>")
-        xl, yl = axis_titles(system)
-        title = escape(f"{system} isochron — 95 % error ellipses")
+        ydig = len(yfmt.partition(".")[2])
         content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {CHART_NS} office:version="1.2">'
                    "<office:automatic-styles>"
                    '<style:style style:name="pa" style:family="chart"><style:chart-properties chart:lines="true" '
@@ -210,29 +200,30 @@ def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
                    '<style:style style:name="ser" style:family="chart"><style:chart-properties chart:lines="true" '
                    'chart:symbol-type="none"/><style:graphic-properties draw:stroke="solid" '
                    'svg:stroke-color="#1f3a68" svg:stroke-width="0.03cm"/></style:style>'
-                   + "".join(_number_style(f"N{d}", "0." + "0" * d) +
+                   + "".join(_number_style(f"N{d}", "0." + "0" * d if d else "0") +
                              f'<style:style style:name="ax{d}" style:family="chart" style:data-style-name="N{d}">'
                              '<style:chart-properties chart:display-label="true" chart:tick-marks-major-outer="true" '
-                             'chart:link-data-style-to-source="false"/></style:style>' for d in (2, 4)) +
+                             'chart:link-data-style-to-source="false"/></style:style>'
+                             for d in sorted({2, ydig})) +
                    "</office:automatic-styles><office:body><office:chart>"
                    f'<chart:chart svg:width="16cm" svg:height="8.6cm" chart:class="chart:scatter">'
-                   f"<chart:title><text:p>{title}</text:p></chart:title>"
+                   f"<chart:title><text:p>{escape(title)}</text:p></chart:title>"
                    f'<chart:plot-area chart:style-name="pa" table:cell-range-address="{" ".join(ranges)}" '
                    'chart:data-source-has-labels="none">'
                    f'<chart:axis chart:dimension="x" chart:name="primary-x" chart:style-name="ax2">'
-                   f"<chart:title><text:p>{xl}</text:p>"
+                   f"<chart:title><text:p>{escape(xl)}</text:p>"
                    "</chart:title></chart:axis>"
-                   f'<chart:axis chart:dimension="y" chart:name="primary-y" chart:style-name="ax4">'
-                   f"<chart:title><text:p>{yl}</text:p>"
+                   f'<chart:axis chart:dimension="y" chart:name="primary-y" chart:style-name="ax{ydig}">'
+                   f"<chart:title><text:p>{escape(yl)}</text:p>"
                    "</chart:title><chart:grid chart:class=\"major\"/></chart:axis>"
                    f"{''.join(series)}</chart:plot-area></chart:chart></office:chart></office:body>"
                    "</office:document-content>")
         name = f"Object {k + 1}"
-        frame = (f'<draw:frame draw:z-index="{k}" draw:name={quoteattr(f"{system} isochron chart")} '
+        frame = (f'<draw:frame draw:z-index="{k}" draw:name={quoteattr(frame_name)} '
                  'svg:width="16cm" svg:height="8.6cm" svg:x="0cm" svg:y="0cm"><draw:object '
                  f'draw:notify-on-update-of-ranges="{" ".join(ranges)}" xlink:href="./{name}" xlink:type="simple" '
                  'xlink:show="embed" xlink:actuate="onLoad"/></draw:frame>')
-        out.append((name, content, frame, (row0, ISOCHRON_SUMMARY_COL)))
+        out.append((name, content, frame, anchor))
     return out
 
 

@@ -328,6 +328,13 @@ PART2: List[Case] = [
     Case("msg-workbook-isochron", "rdWorkbookIsochron",
          (L("age"), L("Sm-Nd"), OMIT, R((("analysis", "use"), ("QM-1", 1.0))), R((("analysis",), (None,))),
           R((("a",),))), Msg(("Isochron, row 5", "'QM-1' is not on the Results sheet"))),
+    Case("deviation-ellipse", "rdDeviationEllipse",
+         (L(1.2), L(0.0012), L(0.5142), L(5e-6), L(0.3), L(0.0027), L(0.51096), L(16.0)),
+         lambda: tuple(zip(*(v.tolist() for v in regression.deviation_points(
+             1.2, 0.0012, 0.5142, 5e-6, 0.3, 0.0027, 0.51096, n_points=16)))), array=True),
+    Case("msg-deviation-ellipse", "rdDeviationEllipse",
+         (L(1.2), L(0.0012), L(0.5142), L(5e-6), L(0.3), L(-1.0), L(0.51096)),
+         Msg(("the line's value is not > 0",)), array=True),
     Case("workbook-run-ratios", "rdWorkbookRunRatios", (L("Nd"), L("150Nd")),
          lambda: "143Nd/144Nd, 146Nd/144Nd, 150Nd/144Nd"),     # hand-written: what the demo's Nd runs give
     Case("workbook-run-ratios-rb", "rdWorkbookRunRatios", (L("rb"), L("87rb")),

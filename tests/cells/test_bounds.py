@@ -55,13 +55,15 @@ def test_every_range_argument_states_its_bound():
 def test_every_count_argument_states_its_range():
     counts = [(f, a) for f in functions.FUNCTIONS for a in f.args if a.kind in ("value", "cell")
               and _COUNT_NAME.search(a.name)]
-    assert {(f.method, a.name) for f, a in counts} == {("rdEllipse", "points"), ("rdCycles", "minKept")}
+    assert {(f.method, a.name) for f, a in counts} == {("rdEllipse", "points"), ("rdCycles", "minKept"),
+                                                      ("rdDeviationEllipse", "points")}
     for f, a in counts:
         assert re.search(r"a whole number from \d+ to \d+", a.description), (f.display, a.name)
 
 
 @pytest.mark.parametrize("method, arg, words", [
     ("rdEllipse", "points", f"from 3 to {functions.MAX_ELLIPSE_POINTS}"),
+    ("rdDeviationEllipse", "points", f"from 3 to {functions.MAX_ELLIPSE_POINTS}"),
     ("rdCycles", "minKept", f"from 2 to {functions.MAX_VALUES}"),
     ("rdCycles", "cycles", f"at most {functions.MAX_VALUES} cycles"),
     ("rdIsochronBlock", "x", f"at most {functions.MAX_ISOCHRON_POINTS} points"),

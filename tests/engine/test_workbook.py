@@ -106,9 +106,13 @@ def test_write_read_round_trip_keeps_inputs_and_formulas(tmp_path, demo_grid, ex
         want = sheet_block(demo_grid, s, 1, 0, sh.last_row, sh.input_width - 1)
         got = sheet_block(data.grid, s, 1, 0, sh.last_row, sh.input_width - 1)
         assert got == want, s
+    from reduction.workbook import deviation_formulas
+
     ellipses = {("Isochron", r, c) for (r, c) in ellipse_formulas()}
-    assert set(data.formulas) == set(expected_formulas()) | ellipses
+    deviations = {("Isochron", r, c) for (r, c) in deviation_formulas()}
+    assert set(data.formulas) == set(expected_formulas()) | ellipses | deviations
     assert all("RDELLIPSE" in data.formulas[k].upper() for k in ellipses)
+    assert all("RDDEVIATIONELLIPSE" in data.formulas[k].upper() for k in deviations)
     assert formula_drift(data.formulas) == []
     ev = evaluate(data.grid)
     assert ev.cells[AGE_SMND] == evaluate(demo_grid).cells[AGE_SMND]
@@ -417,12 +421,13 @@ def test_rows_from_two_spikes_have_no_common_scale(demo_grid):
     assert isinstance(ev.cells[("Isochron", ISOCHRON_FIRST_Q_ROW + Q["age_2s_lambda"], col)], float)
 
 
-def test_ods_isochron_sheet_embeds_one_scatter_chart_per_system_reading_the_ellipse_cells(tmp_path):
-    """ODF 1.2 embedded chart objects (chart:scatter) whose series are the ellipse cells of each system."""
+def test_ods_isochron_sheet_embeds_an_isochron_and_a_deviation_chart_per_system(tmp_path):
+    """ODF 1.2 embedded chart objects (chart:scatter): per system the isochron, whose series are its selection rows'
+    ellipse cells, and the deviation chart, whose series are the same rows' deviation-outline cells."""
     import xml.etree.ElementTree as ET
     import zipfile
 
-    from reduction.workbook import ELLIPSE_POINTS, ISOCHRON_SYSTEMS, selection_rows
+    from reduction.workbook import ELLIPSE_POINTS, ISOCHRON_SYSTEMS, deviation_formulas, selection_rows
 
     write_ods(demo.demo_layout(), tmp_path / "d.ods")
     ns = {"chart": "urn:oasis:names:tc:opendocument:xmlns:chart:1.0",
@@ -430,28 +435,51 @@ def test_ods_isochron_sheet_embeds_one_scatter_chart_per_system_reading_the_elli
           "draw": "urn:oasis:names:tc:opendocument:xmlns:drawing:1.0",
           "xlink": "http://www.w3.org/1999/xlink",
           "manifest": "urn:oasis:names:tc:opendocument:xmlns:manifest:1.0"}
+    n_charts = 2 * len(ISOCHRON_SYSTEMS)
     with zipfile.ZipFile(tmp_path / "d.ods") as z:
         content = ET.fromstring(z.read("content.xml"))
         manifest = ET.fromstring(z.read("META-INF/manifest.xml"))
-        names = [f"Object {k + 1}" for k in range(len(ISOCHRON_SYSTEMS))]
+        names = [f"Object {k + 1}" for k in range(n_charts)]
         charts = {n: ET.fromstring(z.read(f"{n}/content.xml")) for n in names}
     media = {e.get(f"{{{ns['manifest']}}}full-path"): e.get(f"{{{ns['manifest']}}}media-type")
              for e in manifest}
     assert {media[f"{n}/"] for n in names} == {"application/vnd.oasis.opendocument.chart"}
     iso = next(t for t in content.iter(f"{{{ns['table']}}}table") if t.get(f"{{{ns['table']}}}name") == "Isochron")
     hrefs = [o.get(f"{{{ns['xlink']}}}href") for o in iso.iter(f"{{{ns['draw']}}}object")]
-    assert hrefs == [f"./{n}" for n in names] and len(names) == 3   # Sm-Nd, Lu-Hf, Rb-Sr
+    assert sorted(hrefs) == sorted(f"./{n}" for n in names) and n_charts == 6   # Sm-Nd, Lu-Hf, Rb-Sr x 2
     tops = {srow: left for (_t, left), (_f, srow) in ellipse_formulas().items()}
+    devs = {srow: left for (_t, left), (_f, srow, _s) in deviation_formulas().items()}
     last = FIRST_ROW + ELLIPSE_POINTS
     for k, system in enumerate(ISOCHRON_SYSTEMS):
-        root = charts[f"Object {k + 1}"]
-        assert root.find(".//chart:chart", ns).get(f"{{{ns['chart']}}}class") == "chart:scatter"
-        got = [(s.find("chart:domain", ns).get(f"{{{ns['table']}}}cell-range-address"),
-                s.get(f"{{{ns['chart']}}}values-cell-range-address")) for s in root.iterfind(".//chart:series", ns)]
-        want = [(f"Isochron.{col_letter(tops[r])}{FIRST_ROW}:Isochron.{col_letter(tops[r])}{last}",
-                 f"Isochron.{col_letter(tops[r] + 1)}{FIRST_ROW}:Isochron.{col_letter(tops[r] + 1)}{last}")
-                for s_name, r in selection_rows() if s_name == system]
-        assert got == want
+        for kind, lefts in ((0, tops), (1, devs)):
+            root = charts[f"Object {2 * k + kind + 1}"]
+            assert root.find(".//chart:chart", ns).get(f"{{{ns['chart']}}}class") == "chart:scatter"
+            title = "".join(root.find(".//chart:title", ns).itertext())
+            assert title.startswith(system) and (("deviation" in title) == bool(kind))
+            got = [(s.find("chart:domain", ns).get(f"{{{ns['table']}}}cell-range-address"),
+                    s.get(f"{{{ns['chart']}}}values-cell-range-address"))
+                   for s in root.iterfind(".//chart:series", ns)]
+            want = [(f"Isochron.{col_letter(lefts[r])}{FIRST_ROW}:Isochron.{col_letter(lefts[r])}{last}",
+                     f"Isochron.{col_letter(lefts[r] + 1)}{FIRST_ROW}:Isochron.{col_letter(lefts[r] + 1)}{last}")
+                    for s_name, r in selection_rows() if s_name == system]
+            assert got == want
+
+
+def test_deviation_outline_is_the_pointwise_ppm_transform_of_the_ellipse():
+    """rdDeviationEllipse's engine: each outline vertex (x, y) maps to (x, (y − a − b·x)/(a + b·x)·1e6); checked
+    against the transform written out here with the ellipse of reduction.regression.ellipse_points, and a
+    hand-worked centre: a point on the line has a deviation outline centred on 0 ppm."""
+    import numpy as np
+
+    from reduction.regression import deviation_points, ellipse_points
+
+    x, sx, y, sy, rho, b, a = 1.2, 0.0012, 0.5142, 5e-6, 0.3, 0.0027, 0.51096
+    ex, ey = ellipse_points(x, sx, y, sy, rho, n_points=40, confidence=0.95)
+    dx, dv = deviation_points(x, sx, y, sy, rho, b, a, n_points=40, confidence=0.95)
+    assert np.array_equal(dx, ex)
+    assert np.allclose(dv, (ey - (a + b * ex)) / (a + b * ex) * 1e6, rtol=1e-13, atol=1e-9)
+    _x, centred = deviation_points(x, sx, a + b * x, sy, rho, b, a, n_points=40)
+    assert abs(float(np.mean(centred[:-1]))) < 0.05 and float(np.max(centred)) > 15   # ~2.45·σy/y·1e6 tall
 
 
 def test_drop_down_lists_are_written_into_xlsx_and_ods(tmp_path):

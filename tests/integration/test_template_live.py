@@ -329,8 +329,16 @@ if __name__ != "__main__":
         """Grid vs the batch path in the venv: values to REL_TOL, σ/ρ-derived cells to the named hard case."""
         bad = []
         refit = _refit_from_grid(cells, got)
+        vals = dict(zip(cells, got))
+        q = {name: ISOCHRON_FIRST_Q_ROW + i for i, (name, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
         for key, v in zip(cells, got):
             want = refit[key] if key in refit else ev.cells.get(key, "")
+            sheet, row, col = key
+            if sheet == "Isochron" and row == q["age_95"] and col > ISOCHRON_SUMMARY_COL and isinstance(want, float):
+                # t·√MSWD-expanded: the batch value carried to the grid's own MSWD (see _refit_from_grid)
+                m_grid, m_batch = vals.get(("Isochron", q["mswd"], col)), ev.cells.get(("Isochron", q["mswd"], col))
+                if isinstance(m_grid, float) and isinstance(m_batch, float):
+                    want *= (max(m_grid, 1.0) / max(m_batch, 1.0)) ** 0.5
             tol = REL_TOL_SIGMA_ACROSS_NUMPY if _is_sigma(key) else REL_TOL
             if _is_rho(key) and isinstance(v, float) and isinstance(want, float):
                 if abs(v - want) > ABS_TOL_RHO_ACROSS_NUMPY:
