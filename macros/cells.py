@@ -1301,13 +1301,25 @@ def analysis(system: Any, parentNames: Any, parentValues: Any, daughterNames: An
 # --------------------------------------------------------------------------------------------
 @cell_function()
 def rdWorkbookAnalysis(quantity: Any, analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any,
-                       refValues: Any) -> Any:
+                       refValues: Any, runs: Any = None) -> Any:
     a = _one("analysis", analysis) if type(analysis) is tuple else analysis
     if isinstance(a, str) and a.startswith(MARKER):
         raise _passed_on("analysis", a)
     tables = [table_range(n, t) for n, t in (("samples", samples), ("measured", measured), ("spikes", spikes),
                                               ("standards", standards), ("refValues", refValues))]
-    return cell(engine("workbook").analysis_value(text("quantity", quantity), "" if a is None else a, *tables))
+    run_block = table_range("runs", runs) if type(runs) is tuple else None
+    return cell(engine("workbook").analysis_value(text("quantity", quantity), "" if a is None else a, *tables,
+                                                  runs=run_block))
+
+
+@cell_function(array=True)
+def rdWorkbookCycleRuns(cycles: Any, refValues: Any) -> Any:
+    return engine("workbook").cycle_runs(table_range("cycles", cycles), table_range("refValues", refValues))
+
+
+@cell_function(array=True)
+def rdWorkbookCycleKept(cycles: Any, refValues: Any) -> Any:
+    return engine("workbook").cycle_kept(table_range("cycles", cycles), table_range("refValues", refValues))
 
 
 @cell_function()

@@ -6,7 +6,8 @@ LibreOffice then creates this component and calls ``trigger("<name>")``:
 ``collaborator``  write a collaborator copy: a NEW document holding every sheet's values (formulas
                   replaced by what they show) and a Provenance sheet (reference values, spike
                   calibrations, software version, date, source document). The open document is only read.
-``import``        import a delimited-text run file into the Measured sheet after a confirmation.
+``import``        import a delimited-text run file into the Measured sheet (run means) or the Cycles sheet
+                  (a file with a ``cycle`` column) after a confirmation.
                   Text that is not a number is stored as text — never as a formula, even when it starts
                   with ``=``, ``+``, ``-`` or ``@``.
 
@@ -23,6 +24,10 @@ row with more or fewer is refused, naming its line and column). Header names map
 * ``<ratio> 1s`` / ``<ratio> 2s`` (absolute) or ``<ratio> 1s%`` / ``<ratio> 2s%`` (relative) → its
   uncertainty, converted explicitly to 1σ absolute.
 
+A **cycle file** has a ``cycle`` column (the cycle or block number) and one row per cycle: each ratio
+column then holds that cycle's value, and uncertainty columns are refused (a run's SEM is computed
+from its kept cycles on the Runs sheet). Such a file is imported into the Cycles sheet.
+
 Lines starting with ``#map `` rename columns before that mapping, e.g. ``#map Sample ID=analysis`` or
 ``#map 143/144=143Nd/144Nd``; other lines starting with ``#`` are comments.
 
@@ -34,7 +39,7 @@ from __future__ import annotations
 import csv
 import datetime as _dt
 import re
-from typing import Any, Callable, Dict, List, Optional, Sequence, Tuple
+from typing import Any, Callable, Dict, List, Mapping, Optional, Sequence, Tuple
 
 IMPLEMENTATION_NAME = "org.ratiodesk.Commands.PythonImpl"
 SERVICE_NAME = "org.ratiodesk.Commands"
@@ -42,7 +47,7 @@ SERVICE_NAME = "org.ratiodesk.Commands"
 MEASURED_SHEET = "Measured"
 KEY_ROW_INDEX = 3          # 0-based row of the column keys (row 4 in the sheet)
 FIRST_DATA_INDEX = 4       # 0-based first data row (row 5)
-MAX_RATIOS = 4
+MAX_RATIOS = 6               # ratio slots of a Measured (and a Cycles) row
 FORMULA_STARTS = ("=", "+", "-", "@")
 
 _RATIO = re.compile(r"^\s*(\d{1,3}[A-Z][a-z]?)\s*/\s*(\d{1,3}[A-Z][a-z]?)\s*$")
@@ -230,7 +235,8 @@ def parse_run_file(text: str) -> List[Dict[str, Any]]:
     -------
     list of dict
         One dict per data row: ``analysis``, ``element``, ``run_date``, ``bias_factor`` and, per
-        ratio k = 1..4, ``r<k>_name``, ``r<k>``, ``r<k>_sigma_1s``.
+        ratio k = 1..6, ``r<k>_name``, ``r<k>``, ``r<k>_sigma_1s``; a cycle file (a ``cycle``
+        column): ``cycle`` and no σ.
 
     Raises
     ------
@@ -257,7 +263,7 @@ def parse_run_file(text: str) -> List[Dict[str, Any]]:
     for j, h in enumerate(header):
         low = h.lower()
         where = f"line {header_line}, column {j + 1}"
-        if low in ("analysis", "element", "beta"):
+        if low in ("analysis", "element", "beta", "cycle"):
             role: Tuple[str, Any] = (low, None)
         elif low in ("date", "run date", "run_date"):
             role = ("run_date", None)
@@ -269,7 +275,7 @@ def parse_run_file(text: str) -> List[Dict[str, Any]]:
             r = _RATIO.match(m.group(1))
             role = ("sigma", (f"{r.group(1)}/{r.group(2)}", int(m.group(2)), bool(m.group(3))))
         else:
-            raise RunFileError(f"{where}: unknown column {h!r} (use analysis, element, date, beta, "
+            raise RunFileError(f"{where}: unknown column {h!r} (use analysis, element, date, beta, cycle, "
                                f"a ratio like 143Nd/144Nd, '<ratio> 2s', or map it with '#map {h}=...')")
         key = (role[0], role[1][0] if role[0] == "sigma" else role[1])
         if key in seen:
@@ -285,6 +291,13 @@ def parse_run_file(text: str) -> List[Dict[str, Any]]:
         if role_name == "sigma" and arg[0] not in ratio_column:
             raise RunFileError(f"line {header_line}, column {j + 1}: {fields[j].strip()!r} is an uncertainty of "
                                f"{arg[0]}, but the file has no {arg[0]} column")
+    cycle_file = "cycle" in [r for r, _ in roles]
+    if cycle_file:
+        for j, (role_name, _arg) in enumerate(roles):
+            if role_name in ("sigma", "beta", "run_date"):
+                raise RunFileError(f"line {header_line}, column {j + 1}: {fields[j].strip()!r} in a cycle file (it has "
+                                   "a 'cycle' column): a cycle file gives one value per cycle and ratio; the SEM "
+                                   "is computed from the kept cycles, and β and the date go on the Measured row")
     if "analysis" not in [r for r, _ in roles]:
         raise RunFileError(f"line {header_line}: no 'analysis' column (map one with '#map <column>=analysis')")
     if len(ratio_names) > MAX_RATIOS:
@@ -308,11 +321,15 @@ def parse_run_file(text: str) -> List[Dict[str, Any]]:
                 sigmas[name] = cell if num is None else ("pending", num, level, rel, j)
             elif role_name == "beta":
                 rec["bias_factor"] = num if num is not None else cell
+            elif role_name == "cycle":
+                rec["cycle"] = num if num is not None else cell
             else:
                 rec[role_name] = cell.strip()
         for k, name in enumerate(ratio_names, start=1):
             rec[f"r{k}_name"] = name
             rec[f"r{k}"] = ratios.get(name, "")
+            if cycle_file:
+                continue
             s = sigmas.get(name, "")
             if isinstance(s, tuple):
                 _p, v, level, rel, j = s
@@ -468,6 +485,11 @@ def write_collaborator_copy(ctx: Any, doc: Any, target_url: str) -> Dict[str, An
     return {"sheets": names + ["Provenance"], "cells": cells, "url": target_url}
 
 
+def run_file_sheet(rows: Sequence[Mapping[str, Any]]) -> str:
+    """The sheet a parsed run file goes to: Cycles for a cycle file (rows with a ``cycle``), else Measured."""
+    return "Cycles" if any("cycle" in r for r in rows) else MEASURED_SHEET
+
+
 def import_run_file(doc: Any, text: str, confirm: Callable[[str], bool]) -> Dict[str, Any]:
     """Append the runs of a run file to the Measured sheet of ``doc`` after ``confirm(message)``.
 
@@ -475,19 +497,21 @@ def import_run_file(doc: Any, text: str, confirm: Callable[[str], bool]) -> Dict
     ``setString`` (stored as text, never interpreted as a formula).
     """
     runs = parse_run_file(text)
-    sheet = doc.getSheets().getByName(MEASURED_SHEET)
+    target = run_file_sheet(runs)
+    sheet = doc.getSheets().getByName(target)
     data = _used_data(sheet)
     keys = [str(k) for k in (data[KEY_ROW_INDEX] if len(data) > KEY_ROW_INDEX else ())]
     if "analysis" not in keys:
-        raise RunFileError(f"the {MEASURED_SHEET} sheet has no key row (row {KEY_ROW_INDEX + 1}) with 'analysis'")
+        raise RunFileError(f"the {target} sheet has no key row (row {KEY_ROW_INDEX + 1}) with 'analysis'")
     row0 = FIRST_DATA_INDEX
     for i in range(FIRST_DATA_INDEX, len(data)):
         if any(v != "" for v in data[i]):
             row0 = i + 1
     missing = sorted({k for r in runs for k in r} - set(keys))
     if missing:
-        raise RunFileError(f"the {MEASURED_SHEET} sheet has no column for {', '.join(missing)}")
-    msg = (f"Import {len(runs)} run(s) into {MEASURED_SHEET} rows {row0 + 1}-{row0 + len(runs)}? "
+        raise RunFileError(f"the {target} sheet has no column for {', '.join(missing)}")
+    what = "cycle row(s)" if target == "Cycles" else "run(s)"
+    msg = (f"Import {len(runs)} {what} into {target} rows {row0 + 1}-{row0 + len(runs)}? "
            f"Nothing else in the workbook is changed.")
     if not runs or not confirm(msg):
         return {"imported": 0, "first_row": row0 + 1}
@@ -503,7 +527,7 @@ def import_run_file(doc: Any, text: str, confirm: Callable[[str], bool]) -> Dict
                     cell.setString(str(v))
     finally:
         prog.end()
-    return {"imported": len(runs), "first_row": row0 + 1, "columns": keys}
+    return {"imported": len(runs), "first_row": row0 + 1, "columns": keys, "sheet": target}
 
 
 def _message(ctx: Any, doc: Any, text: str, buttons: str = "ok") -> bool:

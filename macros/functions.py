@@ -383,7 +383,9 @@ FUNCTIONS: Tuple[Function, ...] = (
               _t("measured", "The Measured table from its key row down"),
               _t("spikes", "The Spikes table from its key row down"),
               _t("standards", "The Standards table from its key row down"),
-              _t("refValues", "The Constants table (reference values) from its key row down")),
+              _t("refValues", "The Constants table (reference values) from its key row down"),
+              _ro("runs", "Optional: the Runs sheet (run means from the Cycles sheet) from its key row down (at most "
+                         f"{MAX_TABLE_CELLS} cells).")),
              "workbook.analysis_value"),
     Function("rdWorkbookStandard", "RD.WORKBOOK.STANDARD", "workbook",
              "One computed cell of a Standards row of the RatioDesk template: the material's role in its "
@@ -427,6 +429,19 @@ FUNCTIONS: Tuple[Function, ...] = (
              (_c("element", "Element of the spike row: Sm, Nd, Lu, Hf, Rb or Sr."),
               _v("spikeIsotope", "Optional: the spike's enriched isotope, e.g. 150Nd.")),
              "workbook.run_ratios"),
+    Function("rdWorkbookCycleRuns", "RD.WORKBOOK.CYCLERUNS", "workbook",
+             "The Runs sheet of the template: per run of the Cycles sheet its cycles, kept cycles, and per ratio the "
+             "mean and 1 sigma standard error of the kept cycles (robust rule, k = lab.cycle_reject_k). Enter as an "
+             "array formula.",
+             (_t("cycles", "The Cycles table (input columns) from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
+             "workbook.cycle_runs", "array"),
+    Function("rdWorkbookCycleKept", "RD.WORKBOOK.CYCLEKEPT", "workbook",
+             "The Cycles sheet's Kept column: for each cycle row, kept or the ratios it was rejected for. Enter as "
+             "an array formula over the column.",
+             (_t("cycles", "The Cycles table (input columns) from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
+             "workbook.cycle_kept", "array"),
     Function("rdDeviationEllipse", "RD.DEVIATION.ELLIPSE", "ellipse",
              "A point's error ellipse in deviation space for a chart beside the isochron: points + 1 rows of 2 "
              "cells (x, deviation from the line in ppm), closed. Enter as an array formula.",

@@ -144,6 +144,11 @@ SYSTEM_TEXT = {"sm-nd": "Sm-Nd", "lu-hf": "Lu-Hf", "rb-sr": "Rb-Sr"}
 SPIKE_OF_SYSTEM = {"sm-nd": "LH-SmNd-3", "lu-hf": "LH-LuHf-2", "rb-sr": "LH-RbSr-1"}
 REFERENCE_ISOTOPE = {"Nd": "144Nd", "Sm": "152Sm", "Hf": "177Hf", "Lu": "175Lu", "Sr": "86Sr", "Rb": "85Rb"}
 BLANK_DAUGHTER_RATIO: Dict[str, float] = {}  # blanks of natural composition (the template's default)
+#: Runs the demo gives as cycles (Cycles sheet) instead of run means: (analysis, element) -> cycles, with one
+#: gross outlier cycle each (the robust rule rejects it); their cycles come from a separate seeded stream, so
+#: every other number of the demo is as without them.
+CYCLE_RUNS: Dict[Tuple[str, str], int] = {("SN-03", "Nd"): 40, ("RS-03", "Sr"): 30}
+CYCLE_OUTLIER_SD = 25.0
 
 
 def _sample_ratios(element: str, reference: str, ratios: Mapping[str, float]) -> Dict[str, float]:
@@ -281,7 +286,35 @@ def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
                 row["bias_factor"] = round(beta + LU_BETA_1S * rng.standard_normal(), 6)
                 row["bias_factor_1s"] = LU_BETA_1S
             measured.append(row)
-    return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured}
+    cycles = _cycle_rows(measured, seed)
+    return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured, "Cycles": cycles}
+
+
+def _cycle_rows(measured: List[Dict[str, object]], seed: int) -> List[Dict[str, object]]:
+    """Cycles of the runs in :data:`CYCLE_RUNS`: n cycles scattered by √n × the run's relative σ about the
+    forward-modelled run value (so the mean of the cycles has the stated σ), one outlier cycle; the run's
+    Measured row keeps only its analysis, element and date (its ratios now come from the cycles)."""
+    rng = np.random.default_rng(seed + 1000)
+    rows: List[Dict[str, object]] = []
+    for row in measured:
+        key = (str(row["analysis"]), str(row["element"]))
+        if key not in CYCLE_RUNS:
+            continue
+        n = CYCLE_RUNS[key]
+        names = [(k, str(row[f"r{k}_name"]), float(row[f"r{k}"]), float(row[f"r{k}_sigma_1s"]))
+                 for k in range(1, 7) if row.get(f"r{k}_name")]
+        bad = int(rng.integers(n))
+        for c in range(n):
+            line: Dict[str, object] = {"analysis": key[0], "element": key[1], "cycle": c + 1}
+            for k, name, value, sigma in names:
+                sd = sigma * math.sqrt(n)
+                v = value + sd * (CYCLE_OUTLIER_SD if c == bad and k == 1 else rng.standard_normal())
+                line[f"r{k}_name"], line[f"r{k}"] = name, float(f"{v:.9g}")
+            rows.append(line)
+        for k, _name, _v, _s in names:
+            for col in (f"r{k}_name", f"r{k}", f"r{k}_sigma_1s"):
+                row.pop(col, None)
+    return rows
 
 
 def demo_selection() -> Dict[str, List[Tuple[str, int]]]:

@@ -363,6 +363,37 @@ MEASURED = Sheet(
         help="empty or metal; oxide: the ratios are of monoxide beams (e.g. NdO+), oxygen-corrected first")),
     capacity=120)
 
+_CYCLE_COLS: List[Column] = []
+for _k in range(1, RATIO_SLOTS + 1):
+    _CYCLE_COLS += [_c(f"r{_k}_name", f"Ratio {_k}", "text", required=_k == 1, width=13),
+                    _c(f"r{_k}", f"Ratio {_k} (this cycle)", required=_k == 1, width=14, number_format="0.0000000")]
+CYCLES = Sheet(
+    "Cycles", "Cycles of each run (optional): paste one row per cycle (or block)",
+    "A run given here (analysis + element) is reduced from its cycles: each ratio's mean and SEM over the kept "
+    "cycles (one robust pass, |x − median| > k × 1.4826 × MAD rejected, k = Constants lab.cycle_reject_k; 0 keeps "
+    "every cycle) feed the chain, as the Runs sheet shows. Keep the run's Measured row for β and Ion only, or leave "
+    "it out; its ratio columns must then be empty. Ratio names as on Measured (monitor ratios too). Delete a cycle "
+    "row or change k and the age follows.",
+    (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
+     _c("cycle", "Cycle", required=False, width=7, number_format="0"), *_CYCLE_COLS,
+     _c("kept", "Kept / rejected", "computed", quantity="kept", width=30)),
+    capacity=1200)
+_RUN_COLS: List[Column] = [_c("analysis", "Analysis", "computed", quantity="analysis", width=10),
+                           _c("element", "Element", "computed", quantity="element", width=8),
+                           _c("n_cycles", "Cycles", "computed", quantity="n_cycles", width=7, number_format="0"),
+                           _c("n_kept", "Kept", "computed", quantity="n_kept", width=7, number_format="0")]
+for _k in range(1, RATIO_SLOTS + 1):
+    _RUN_COLS += [_c(f"r{_k}_name", f"Ratio {_k}", "computed", quantity=f"r{_k}_name", width=13),
+                  _c(f"r{_k}", f"Ratio {_k} mean", "computed", quantity=f"r{_k}", width=14, number_format="0.0000000"),
+                  _c(f"r{_k}_sigma_1s", f"Ratio {_k} SEM 1σ (abs)", "computed", quantity=f"r{_k}_sigma_1s", width=12,
+                     number_format="0.00E+00")]
+RUNS = Sheet(
+    "Runs", "Runs from cycles — mean and SEM of each run on the Cycles sheet (do not type here)",
+    "One row per run (analysis + element) of the Cycles sheet, in order of first appearance: the cycles given, "
+    "the cycles kept, and per ratio the mean and 1σ standard error of the mean of the kept cycles. These are "
+    "the run's measured ratios for the reduction.",
+    tuple(_RUN_COLS), capacity=240)
+
 # Results: (key, header, quantity, number format); quantity "" = copied from Samples
 _RESULT_SPEC = (
     ("analysis", "Analysis", "", "General"), ("sample", "Sample", "", "General"),
@@ -477,11 +508,12 @@ ELLIPSE_COL0 = 13
 ELLIPSE_POINTS = 32
 ELLIPSE_CONFIDENCE = 0.95
 
-SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, RESULTS, STEPS, ISOCHRON)
+SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, CYCLES, RUNS, RESULTS, STEPS,
+                             ISOCHRON)
 #: The computed sheets with one formula row per Samples row.
 ROW_SHEETS: Tuple[Sheet, ...] = (RESULTS, STEPS)
 SHEET_BY_NAME = {s.name: s for s in SHEETS}
-INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured")
+INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured", "Cycles")
 
 #: Isochron selection: one block of rows per system, Sm-Nd first.
 ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10, FIRST_ROW + 17),
@@ -562,8 +594,8 @@ def constants_rows(refset: Optional[str] = None) -> List[Dict[str, Any]]:
                      "value": v.value, "sigma_1s": "", "note": provenance_note(v) + "; type your lab's own",
                      "unit": v.unit, "source": v.source})
     for key, quantity, unit, note in LAB_ROWS:
-        rows.append({"key": key, "quantity": quantity, "value": 0.0, "sigma_1s": "", "note": note, "unit": unit,
-                     "source": "the laboratory (type your own value)"})
+        rows.append({"key": key, "quantity": quantity, "value": LAB_DEFAULTS.get(key, 0.0), "sigma_1s": "",
+                     "note": note, "unit": unit, "source": "the laboratory (type your own value)"})
     from .composition import composition_rows
 
     for el in NATURAL_ELEMENTS:
@@ -594,7 +626,11 @@ LAB_ROWS = (
     ("lab.pd_reproducibility_1s_pct", "Parent/daughter ratio external reproducibility (1σ %)", "%",
      "basis: replicate analyses of a reference material or sample powder; added to every P/D ratio "
      "(random); 0 = not included (Check then says so)"),
+    ("lab.cycle_reject_k", "Cycle rejection threshold k (robust SDs from the median; Cycles sheet)", "robust SD",
+     "one pass: |x − median| > k × 1.4826 × MAD rejected (Iglewicz & Hoaglin 1993); 0 = keep every cycle"),
 )
+#: Values of the lab rows in a new template (the others start at 0: the lab types its own).
+LAB_DEFAULTS = {"lab.cycle_reject_k": 3.5}
 
 
 #: Columns of the reference-value tables of the Provenance sheets and the report.
@@ -990,47 +1026,33 @@ RunRow = Tuple[Dict[str, float], Dict[str, float], Optional[float], float, int, 
 
 
 def _run(measured: Table, analysis: str, element: str, where: Callable[[str], CellError],
-         oxygen: Tuple[float, float] = (0.0, 0.0)) -> RunRow:
+         oxygen: Tuple[float, float] = (0.0, 0.0), runs: Optional[Table] = None) -> RunRow:
     """(ratios, their 1σ, external β or None, β 1σ, row index, monitors) of one element run on Measured.
 
-    Every ratio name is checked here, so a bad one is reported at its own Measured cell; ``monitors`` maps
-    each monitor ratio name (:data:`_MONITOR_NAMES`) to (value, 1σ).
+    Every ratio name is checked here, so a bad one is reported at its own cell; ``monitors`` maps each
+    monitor ratio name (:data:`_MONITOR_NAMES`) to (value, 1σ). A run with cycles on the Cycles sheet takes
+    its ratios from its row of the Runs sheet (``runs``); its Measured row, if any, gives only β and Ion
+    (row index −1 when there is none).
     """
-    from .dilution import element_isotopes
-
     hits = measured.find(analysis=analysis, element=element)
-    if not hits:
-        raise where(f"no {element} run for analysis {shown(analysis)} on the Measured sheet")
     if len(hits) > 1:
         raise measured.error(hits[1], "analysis", f"a second {element} run of analysis {shown(analysis)} (the first "
                              f"is row {measured.first_row + hits[0]}): keep one row per element run")
-    i = hits[0]
-    isos = element_isotopes(element)
+    from_cycles = runs.find(analysis=analysis, element=element) if runs is not None else []
+    if not hits and not from_cycles:
+        raise where(f"no {element} run for analysis {shown(analysis)} on the Measured sheet (or the Cycles sheet)")
+    i = hits[0] if hits else -1
+    if from_cycles:
+        if hits and measured.text(i, "r1_name", required=False):
+            raise measured.error(i, "r1_name", f"the {element} run of {shown(analysis)} has cycles on the Cycles sheet "
+                                 f"(Runs row {runs.first_row + from_cycles[0]}), which give its ratios: leave the "
+                                 "Measured ratio columns empty (β and Ion are read here)")
+        vals, sig, monitors = _run_ratios(runs, from_cycles[0], element)
+    else:
+        vals, sig, monitors = _run_ratios(measured, i, element)
+    if i < 0:
+        return vals, sig, None, 0.0, i, monitors
     ref = _REFERENCE_ISOTOPE.get(element, "")
-    vals: Dict[str, float] = {}
-    sig: Dict[str, float] = {}
-    monitors: Dict[str, Tuple[float, float]] = {}
-    allowed = _MONITOR_NAMES.get(element, ())
-    for k in range(1, RATIO_SLOTS + 1):
-        name = measured.text(i, f"r{k}_name", required=k == 1)
-        if not name:
-            continue
-        num, sep, den = name.replace(" ", "").partition("/")
-        if f"{num}/{den}" in allowed:
-            if f"{num}/{den}" in monitors:
-                raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice")
-            # a monitor may be 0 (nothing of the interferent seen); its 1σ must be > 0 like any measurement
-            monitors[f"{num}/{den}"] = (measured.number(i, f"r{k}", positive=False),
-                                        measured.number(i, f"r{k}_sigma_1s", positive=True))
-            continue
-        if not sep or num not in isos or den != ref:
-            more = f", or a monitor ratio: {', '.join(allowed)}" if allowed else ""
-            raise measured.error(i, f"r{k}_name", f"{shown(name)} is not a {element} ratio to {ref}: write it as "
-                                 f"<isotope>/{ref} with one of {', '.join(x for x in isos if x != ref)}{more}")
-        if num == ref or f"{num}/{den}" in vals:
-            raise measured.error(i, f"r{k}_name", f"{shown(name)} is given twice or is {ref}/{ref}")
-        vals[f"{num}/{den}"] = measured.number(i, f"r{k}", positive=True)
-        sig[f"{num}/{den}"] = measured.number(i, f"r{k}_sigma_1s", positive=True)
     typed_ion = measured.text(i, "ion", required=False)
     ion = typed_ion.lower()
     if ion not in ("", "metal", "oxide"):
@@ -1051,6 +1073,118 @@ def _run(measured: Table, analysis: str, element: str, where: Callable[[str], Ce
     if bf_s < 0:
         raise measured.error(i, "bias_factor_1s", f"must be >= 0, got {bf_s!r}")
     return vals, sig, (None if math.isnan(bf) else bf), bf_s, i, monitors
+
+
+def _run_ratios(t: Table, i: int, element: str
+                ) -> Tuple[Dict[str, float], Dict[str, float], Dict[str, Tuple[float, float]]]:
+    """Ratios, 1σ and monitor ratios of row ``i`` of a Measured-like table (Measured, or Runs)."""
+    from .dilution import element_isotopes
+
+    isos = element_isotopes(element)
+    ref = _REFERENCE_ISOTOPE.get(element, "")
+    vals: Dict[str, float] = {}
+    sig: Dict[str, float] = {}
+    monitors: Dict[str, Tuple[float, float]] = {}
+    allowed = _MONITOR_NAMES.get(element, ())
+    for k in range(1, RATIO_SLOTS + 1):
+        name = t.text(i, f"r{k}_name", required=k == 1)
+        if not name:
+            continue
+        num, sep, den = name.replace(" ", "").partition("/")
+        if f"{num}/{den}" in allowed:
+            if f"{num}/{den}" in monitors:
+                raise t.error(i, f"r{k}_name", f"{shown(name)} is given twice")
+            # a monitor may be 0 (nothing of the interferent seen); its 1σ must be > 0 like any measurement
+            monitors[f"{num}/{den}"] = (t.number(i, f"r{k}", positive=False),
+                                        t.number(i, f"r{k}_sigma_1s", positive=True))
+            continue
+        if not sep or num not in isos or den != ref:
+            more = f", or a monitor ratio: {', '.join(allowed)}" if allowed else ""
+            raise t.error(i, f"r{k}_name", f"{shown(name)} is not a {element} ratio to {ref}: write it as "
+                          f"<isotope>/{ref} with one of {', '.join(x for x in isos if x != ref)}{more}")
+        if num == ref or f"{num}/{den}" in vals:
+            raise t.error(i, f"r{k}_name", f"{shown(name)} is given twice or is {ref}/{ref}")
+        vals[f"{num}/{den}"] = t.number(i, f"r{k}", positive=True)
+        sig[f"{num}/{den}"] = t.number(i, f"r{k}_sigma_1s", positive=True)
+    return vals, sig, monitors
+
+
+@lru_cache(maxsize=16)
+def _cycle_table(cycles: Rows, constants: Rows) -> Tuple[Tuple[Tuple[Any, ...], ...], Tuple[str, ...]]:
+    """(Runs rows, Kept column) of a Cycles range: the per-run statistics and each cycle row's verdict.
+
+    Runs rows follow :data:`RUNS`' columns; the Kept column has one text per Cycles row ("" for an empty
+    row). Each ratio of a run is treated on its own: mean and SEM of its kept cycles
+    (:func:`reduction.cycles.cycle_stats`, robust rule, k from ``lab.cycle_reject_k``).
+    """
+    from .cycles import cycle_stats
+
+    t = Table.from_range(CYCLES, cycles)
+    k = _lab(constants, "lab.cycle_reject_k")
+    runs: Dict[Tuple[str, str], List[int]] = {}
+    for i in range(len(t.rows)):
+        if not t.filled(i):
+            continue
+        a = t.text(i, "analysis")
+        el = t.text(i, "element")
+        runs.setdefault((a, el), []).append(i)
+    if len(runs) > RUNS.capacity:
+        raise CellError("Cycles", None, "A", "Analysis", f"{len(runs)} runs; the Runs sheet holds "
+                        f"{RUNS.capacity}: split the workbook")
+    kept_text = [""] * len(t.rows)
+    out: List[Tuple[Any, ...]] = []
+    for (a, el), idx in runs.items():
+        values: Dict[str, List[Tuple[int, float]]] = {}
+        for i in idx:
+            seen = set()
+            for j in range(1, RATIO_SLOTS + 1):
+                name = t.text(i, f"r{j}_name", required=j == 1)
+                if not name:
+                    continue
+                name = name.replace(" ", "")
+                if name in seen:
+                    raise t.error(i, f"r{j}_name", f"{shown(name)} is given twice on this cycle row")
+                seen.add(name)
+                values.setdefault(name, []).append((i, t.number(i, f"r{j}", positive=False)))
+        rejected: Dict[int, List[str]] = {}
+        row: List[Any] = [a, el, float(len(idx)), 0.0]
+        n_kept = len(idx)
+        if len(values) > RATIO_SLOTS:
+            raise t.error(idx[0], "r1_name", f"run {shown(a)} {el} has {len(values)} different ratios; a run has at "
+                          f"most {RATIO_SLOTS}")
+        for name, pairs in values.items():
+            if len(pairs) < 2:
+                raise t.error(pairs[0][0], "r1_name", f"{shown(name)} of run {shown(a)} {el} has one cycle; a mean "
+                              "and its SEM need at least 2")
+            try:
+                st = cycle_stats([v for _i, v in pairs], rule="robust" if k > 0 else "none",
+                                 reject_k=k if k > 0 else None)
+            except RatioDeskError as exc:
+                raise t.error(pairs[0][0], "r1", f"{shown(name)} of run {shown(a)} {el}: {exc}") from None
+            for (i, _v), keep in zip(pairs, st.kept.ravel().tolist()):
+                if not keep:
+                    rejected.setdefault(i, []).append(name)
+            n_kept = min(n_kept, int(st.n_kept))
+            row += [name, float(st.mean), float(st.sem_1s)]
+        row[3] = float(n_kept)
+        row += [""] * (len(RUNS.columns) - len(row))
+        out.append(tuple(row))
+        for i in idx:
+            kept_text[i] = "rejected: " + ", ".join(rejected[i]) if i in rejected else "kept"
+    return tuple(out), tuple(kept_text)
+
+
+def cycle_runs(cycles: Any, constants: Any) -> Tuple[Tuple[Any, ...], ...]:
+    """The Runs sheet: one row per run of the Cycles sheet, padded with empty rows to its capacity."""
+    runs, _kept = _cycle_table(as_rows(cycles), as_rows(constants))
+    blank_row = ("",) * len(RUNS.columns)
+    return runs + (blank_row,) * (RUNS.capacity - len(runs))
+
+
+def cycle_kept(cycles: Any, constants: Any) -> Tuple[Tuple[str], ...]:
+    """The Cycles sheet's Kept column, one cell per data row of the range (the key row excluded)."""
+    _runs, kept = _cycle_table(as_rows(cycles), as_rows(constants))
+    return tuple((k,) for k in kept)
 
 
 @dataclass(frozen=True)
@@ -1294,16 +1428,16 @@ WORKBOOK_SYSTEMS = {"sm-nd": "Sm-Nd", "lu-hf": "Lu-Hf", "rb-sr": "Rb-Sr"}
 
 @lru_cache(maxsize=256)
 def _analysis(analysis: str, samples: Rows, measured: Rows, spikes: Rows, standards: Rows,
-              constants: Rows, mc_draws: int = 0) -> AnalysisOutcome:
-    """(AnalysisResult, epsilon today, spike P/D calibration rel. 1σ, Check warnings) of one analysis."""
+              constants: Rows, mc_draws: int = 0, runs: Rows = ()) -> AnalysisOutcome:
+    """(AnalysisResult, epsilon today, spike P/D calibration rel. 1σ, Check warnings, ...) of one analysis."""
     return _analysis_of(analysis, Table.from_range(SAMPLES, samples), Table.from_range(MEASURED, measured),
                         Table.from_range(SPIKES, spikes),
                         lambda session, ratio, where: _standard(standards, constants, session, ratio, where),
-                        constants, mc_draws)
+                        constants, mc_draws, Table.from_range(RUNS, runs) if runs else None)
 
 
 def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: StandardLookup, constants: Rows,
-                 mc_draws: int = 0) -> AnalysisOutcome:
+                 mc_draws: int = 0, rt: Optional[Table] = None) -> AnalysisOutcome:
     """:func:`_analysis` on tables already read (the batch path reads each table once for every analysis).
 
     ``standard(session, ratio, where)`` returns the session factor (:func:`_standard`).
@@ -1367,29 +1501,37 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
     p_spike = _spike(sp, label, p_el, at("spike"))
     d_spike = _spike(sp, label, d_el, at("spike"))
     oxygen = (_oxygen(constants, "17O/16O"), _oxygen(constants, "18O/16O"))
-    p_mix, p_sig, p_bf, p_bf_s, _pi, p_mon = _run(mt, analysis, p_el, at("analysis"), oxygen)
-    d_mix, d_sig, d_bf, _d_bf_s, d_i, d_mon = _run(mt, analysis, d_el, at("analysis"), oxygen)
+
+    def run_err(row: int, key: str, problem: str) -> CellError:
+        """A problem of a run: at its Measured cell, or (a run from cycles only) at the analysis."""
+        if row >= 0:
+            return mt.error(row, key, problem)
+        return st.error(i, "analysis", f"{problem} (this run comes from the Cycles sheet: add a Measured row with "
+                        "its analysis and element for β and Ion, its ratio columns empty)")
+
+    p_mix, p_sig, p_bf, p_bf_s, _pi, p_mon = _run(mt, analysis, p_el, at("analysis"), oxygen, rt)
+    d_mix, d_sig, d_bf, _d_bf_s, d_i, d_mon = _run(mt, analysis, d_el, at("analysis"), oxygen, rt)
     if d_bf is not None:
-        raise mt.error(d_i, "bias_factor", f"{d_el} is normalised to {_NORM_RATIO[d_el]} within its own run, so a "
+        raise run_err(d_i, "bias_factor", f"{d_el} is normalised to {_NORM_RATIO[d_el]} within its own run, so a "
                        "typed β would not be used: leave β and its 1σ empty on this row")
     std = standard(session, system.daughter_ratio, at("session"))
     ref = _refset(constants)
     naturals = _naturals(constants)
     beta_from = "typed" if p_bf is not None else ("internal" if p_el in _NORM_RATIO else "")
     if _YB_PAIR[0] in p_mon or _YB_PAIR[1] in p_mon:
-        p_bf, p_bf_s = _beta_from_doping(mt, _pi, p_mon, p_bf)
+        p_bf, p_bf_s = _beta_from_doping(lambda key, problem: run_err(_pi, key, problem), p_mon, p_bf)
         beta_from = "Yb doping (173Yb/171Yb)"
     if p_mon.keys() - {_YB_PAIR[1]}:
         if p_bf is None:
-            raise mt.error(_pi, "bias_factor", f"stripping the isobars of the {p_el} run needs its β: type β, or "
+            raise run_err(_pi, "bias_factor", f"stripping the isobars of the {p_el} run needs its β: type β, or "
                            "give Yb doping ratios")
-        p_mix, p_sig, p_strip = _strip(mt, _pi, p_el, p_mix, p_sig,
+        p_mix, p_sig, p_strip = _strip(lambda key, problem: run_err(_pi, key, problem), p_el, p_mix, p_sig,
                                        {k: v for k, v in p_mon.items() if k != _YB_PAIR[1]}, {}, p_bf)
     else:
         p_strip = {}
     kw: Dict[str, Any] = {}
     if p_bf is None and p_el not in _NORM_RATIO:
-        raise mt.error(_pi, "bias_factor", f"{p_el} has two isotopes, so its run cannot normalise itself: type its "
+        raise run_err(_pi, "bias_factor", f"{p_el} has two isotopes, so its run cannot normalise itself: type its "
                        "mass-bias factor β (exponential law) and β 1σ, e.g. from a reference-material run of the "
                        "same session")
     if p_bf is None:
@@ -1420,7 +1562,8 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
             for _ in range(_STRIP_PASSES):
                 comps = _interferent_compositions(d_mon, p_el, p_spike, p_mix, res.parent_bias_factor,
                                                   naturals.get(p_el))
-                d_s, d_ss, d_strip = _strip(mt, d_i, d_el, d_mix, d_sig, d_mon, comps, res.daughter_bias_factor)
+                d_s, d_ss, d_strip = _strip(lambda key, problem: run_err(d_i, key, problem), d_el, d_mix, d_sig,
+                                            d_mon, comps, res.daughter_bias_factor)
                 beta_before = res.daughter_bias_factor
                 res = chain(d_s, d_ss, 0)
                 if abs(res.daughter_bias_factor - beta_before) <= 1e-15 * max(1.0, abs(beta_before)):
@@ -1442,8 +1585,8 @@ def _analysis_of(analysis: str, st: Table, mt: Table, sp: Table, standard: Stand
     return res, eps, spike_ratio_sigma_rel(p_spike, d_spike), tuple(warn), std, steps
 
 
-def _beta_from_doping(mt: Table, i: int, mon: Mapping[str, Tuple[float, float]], typed: Optional[float]
-                      ) -> Tuple[float, float]:
+def _beta_from_doping(err: Callable[[str, str], CellError], mon: Mapping[str, Tuple[float, float]],
+                      typed: Optional[float]) -> Tuple[float, float]:
     """β of a Lu run from its Yb doping: 173Yb/171Yb = (173Yb/175Lu)/(171Yb/175Lu) against the convention.
 
     The exponential law's β is applied to Lu (common practice: the dopant's bias stands for the analyte's);
@@ -1453,13 +1596,13 @@ def _beta_from_doping(mt: Table, i: int, mon: Mapping[str, Tuple[float, float]],
 
     a, b, pair = _YB_PAIR
     if a not in mon or b not in mon:
-        raise mt.error(i, "r1_name", f"Yb doping needs both {a} and {b} on the Lu row (one is missing)")
+        raise err("r1_name", f"Yb doping needs both {a} and {b} on the Lu row (one is missing)")
     if typed is not None:
-        raise mt.error(i, "bias_factor", "β is typed and also given by Yb doping: keep one (clear β and β 1σ to use "
+        raise err("bias_factor", "β is typed and also given by Yb doping: keep one (clear β and β 1σ to use "
                        "the doping)")
     (ra, sa), (rb_, sb) = mon[a], mon[b]
     if not (ra > 0 and rb_ > 0):
-        raise mt.error(i, "r1_name", f"the Yb doping ratios must be > 0 (got {a} = {ra!r}, {b} = {rb_!r})")
+        raise err("r1_name", f"the Yb doping ratios must be > 0 (got {a} = {ra!r}, {b} = {rb_!r})")
     beta = float(bias_factor_from(ra / rb_, pair))
     m1, m2 = ratio_masses(pair)
     sigma = math.hypot(sa / ra, sb / rb_) / abs(math.log(m1 / m2))
@@ -1495,7 +1638,7 @@ def _interferent_compositions(monitors: Mapping[str, Any], parent: str, parent_s
     return out
 
 
-def _strip(mt: Table, i: int, element: str, ratios: Mapping[str, float], sigmas: Mapping[str, float],
+def _strip(err: Callable[[str, str], CellError], element: str, ratios: Mapping[str, float], sigmas: Mapping[str, float],
            monitors: Mapping[str, Tuple[float, float]], comps: Mapping[str, Mapping[str, float]], beta: float
            ) -> Tuple[Dict[str, float], Dict[str, float], Dict[str, float]]:
     """:func:`reduction.interference.strip_run_ratios` for one Measured row; a failure names the row."""
@@ -1511,7 +1654,7 @@ def _strip(mt: Table, i: int, element: str, ratios: Mapping[str, float], sigmas:
     try:
         st = strip_run_ratios(element, _REFERENCE_ISOTOPE[element], ratios, sigmas, monitors, comps, beta)
     except RatioDeskError as exc:
-        raise mt.error(i, "analysis", f"stripping the isobars of this {element} run: {exc}") from None
+        raise err("analysis", f"stripping the isobars of this {element} run: {exc}") from None
     return st.ratios, st.sigma_1s, st.correction_rel
 
 
@@ -1530,7 +1673,7 @@ def analysis_result(analysis: str, samples: Any, measured: Any, spikes: Any, sta
 
 
 def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any,
-                   constants: Any) -> float | str:
+                   constants: Any, runs: Any = None) -> float | str:
     """One result of one analysis, computed from the workbook's tables (the Results sheet's cells).
 
     Parameters
@@ -1541,6 +1684,9 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
         Analysis ID (column A of Samples).
     samples, measured, spikes, standards, constants : 2-D blocks of cell values
         Each sheet's table from its key row (row 4) down, as the cells arrive (float, str, '').
+    runs : 2-D block, optional
+        The Runs sheet (run means of the Cycles sheet) from its key row down; runs found there take their
+        ratios from it.
 
     Returns
     -------
@@ -1558,7 +1704,15 @@ def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, sp
     if not a:
         return ""
     rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
-    return _analysis_cell(quantity, _analysis(a, *rows))
+    return _analysis_cell(quantity, _analysis(a, *rows, runs=_runs_rows(runs)))
+
+
+def _runs_rows(runs: Any) -> Rows:
+    """The Runs block, or () when it is absent or holds no run (the key row alone counts as none)."""
+    if runs is None:
+        return ()
+    r = as_rows(runs)
+    return r if any(v != "" for row in r[1:] for v in row[:1]) else ()
 
 
 def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
@@ -1848,8 +2002,20 @@ def results_formula(column: Column, row: int, sheet: str = "Results") -> Formula
         src = Ref("Samples", SAMPLES.col_index(column.quantity), row, absolute=False)
         return Formula("IF", (Formula("ISBLANK", (src,), addin=False), "", src), addin=False)
     args = (column.quantity, here, table_ref(SAMPLES), table_ref(MEASURED), table_ref(SPIKES),
-            table_ref(STANDARDS), table_ref(CONSTANTS))
+            table_ref(STANDARDS), table_ref(CONSTANTS), table_ref(RUNS))
     return Formula("rdWorkbookAnalysis", args, guard=here)
+
+
+def array_formulas() -> Dict[Tuple[str, int, int], Tuple[Formula, Tuple[int, int]]]:
+    """The template's table-wide array formulas: (sheet, top row, left column) -> (formula, (rows, columns)).
+
+    The Cycles sheet's Kept column and the whole Runs sheet are each one call over the Cycles table, so a
+    cycle edit recalculates them once (not once per cell).
+    """
+    cyc = (table_ref(CYCLES), table_ref(CONSTANTS))
+    return {("Cycles", FIRST_ROW, CYCLES.col_index("kept")): (Formula("rdWorkbookCycleKept", cyc),
+                                                             (CYCLES.capacity, 1)),
+            ("Runs", FIRST_ROW, 0): (Formula("rdWorkbookCycleRuns", cyc), (RUNS.capacity, len(RUNS.columns)))}
 
 
 def standards_formula(column: Column, row: int) -> Formula:
@@ -1990,6 +2156,8 @@ def deviation_formulas() -> Dict[Tuple[int, int], Tuple[Formula, int, str]]:
 def all_computed_cells() -> List[Tuple[str, int, int]]:
     """Every computed cell, ellipse outlines included (for comparing the grid with the batch path)."""
     cells = set(expected_formulas())
+    for (sheet, top, left), (_f, (nr, nc)) in array_formulas().items():
+        cells.update((sheet, top + r, left + c) for r in range(nr) for c in range(nc))
     for (top, left), _f in list(ellipse_formulas().items()) + list(deviation_formulas().items()):
         for r in range(top, top + ELLIPSE_POINTS + 1):
             cells.update({("Isochron", r, left), ("Isochron", r, left + 1)})
@@ -2183,7 +2351,7 @@ class BookTables:
     """
 
     def __init__(self, grid: Mapping[str, Sequence[Sequence[Cell]]], extent: str = "data") -> None:
-        sheets = [SHEET_BY_NAME[n] for n in ("Samples", "Measured", "Spikes", "Standards", "Constants")]
+        sheets = [SHEET_BY_NAME[n] for n in ("Samples", "Measured", "Spikes", "Standards", "Constants", "Cycles")]
         self.last = {sh.name: table_extent(grid, sh) if extent == "data" else sh.last_row for sh in sheets}
         self.rows: Dict[str, Rows] = {sh.name: sheet_block(grid, sh.name, KEY_ROW, 0, self.last[sh.name],
                                                            sh.input_width - 1) for sh in sheets}
@@ -2192,6 +2360,19 @@ class BookTables:
         self.spikes = Table.from_range(SPIKES, self.rows["Spikes"])
         self.standards = Table.from_range(STANDARDS, self.rows["Standards"])
         self._sessions: Dict[Tuple[str, str], Any] = {}
+        #: The Runs table (the run means of the Cycles sheet), computed on first use (:meth:`runs_table`).
+        self.runs: Optional[Table] = None
+        self._runs_read = False
+
+    def runs_table(self) -> Optional[Table]:
+        """The Runs table of the Cycles sheet (None without cycles); a Cycles problem raises its CellError."""
+        if not self._runs_read:
+            self._runs_read = True
+            got = _cycle_table(self.rows["Cycles"], self.rows["Constants"])
+            if got[0]:
+                keys = tuple(c.key for c in RUNS.columns)
+                self.runs = Table.from_range(RUNS, (keys,) + tuple(tuple(r) for r in got[0]))
+        return self.runs
 
     def session_standards(self, ses: str, rat: str) -> SessionStandards:
         """:func:`_session_standards` of one session and ratio (its problem, if any, raised each time)."""
@@ -2214,8 +2395,12 @@ class BookTables:
 
     def analysis(self, analysis: str, mc_draws: int = 0) -> AnalysisOutcome:
         """:func:`_analysis` of one analysis ID (optionally with a seeded Monte Carlo)."""
+        try:
+            runs = self.runs_table()
+        except CellError:
+            runs = None           # the Cycles sheet's own cells carry its problem (see evaluate)
         return _analysis_of(analysis, self.samples, self.measured, self.spikes, self.standard,
-                            self.rows["Constants"], mc_draws)
+                            self.rows["Constants"], mc_draws, runs)
 
 
 def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = True,
@@ -2271,7 +2456,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
             return MARKER + str(exc)
 
     if extent == "template":
-        for name in ("Samples", "Measured", "Spikes", "Standards", "Constants"):
+        for name in ("Samples", "Measured", "Spikes", "Standards", "Constants", "Cycles"):
             beyond = _beyond_template(work, SHEET_BY_NAME[name])
             if beyond is not None:
                 run(lambda beyond=beyond: _raise(beyond))
@@ -2315,6 +2500,26 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
             else:
                 v = run(lambda c=c, i=i: standard_cell(c.quantity, i))
             put("Standards", row, j, v)
+
+    # Cycles -> Runs: each run's mean and SEM from its kept cycles, one evaluation for the whole sheet
+    j_kept = CYCLES.col_index("kept")
+    cyc_rows = book.rows["Cycles"]
+    n_cyc = max(CYCLES.capacity, len(cyc_rows) - 1) if extent == "data" else CYCLES.capacity
+    for sh in (RUNS,):
+        del work.setdefault(sh.name, [])[KEY_ROW:]
+    got = run(lambda: _cycle_table(cyc_rows, book.rows["Constants"]))
+    if isinstance(got, str):
+        kept_col: Sequence[Any] = [got] + ["#N/A"] * (n_cyc - 1)
+        run_rows: Sequence[Sequence[Any]] = [[got] + ["#N/A"] * (len(RUNS.columns) - 1)] + \
+            [["#N/A"] * len(RUNS.columns)] * (RUNS.capacity - 1)
+    else:
+        kept_col = list(got[1]) + [""] * (n_cyc - len(got[1]))
+        run_rows = [list(r) for r in got[0]] + [[""] * len(RUNS.columns)] * (RUNS.capacity - len(got[0]))
+    for r, v in enumerate(kept_col[:n_cyc]):
+        put("Cycles", FIRST_ROW + r, j_kept, v)
+    for r, line in enumerate(run_rows):
+        for j, v in enumerate(line):
+            put("Runs", FIRST_ROW + r, j, v)
 
     # Spikes: what a run of each row's element must give
     spk_t = book.spikes
@@ -2526,14 +2731,14 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
     lay: Layout = {ABOUT_SHEET: {}}
     for k, (text, style) in enumerate(about, start=1):
         lay[ABOUT_SHEET][(k, 0)] = CellSpec(text, style=style)
-    for sheet in (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED):
+    for sheet in (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, CYCLES):
         cells: Dict[Tuple[int, int], CellSpec] = {}
         rows = constants if sheet is CONSTANTS else tables.get(sheet.name, ())
         _table_layout(sheet, list(rows or (constants_rows() if sheet is CONSTANTS else ())), cells)
         lay[sheet.name] = cells
     formulas = expected_formulas()
     row_sheets: Dict[str, Dict[Tuple[int, int], CellSpec]] = {}
-    for sh in ROW_SHEETS:
+    for sh in ROW_SHEETS + (RUNS,):
         cells_ = row_sheets[sh.name] = {}
         cells_[(TITLE_ROW, 0)] = CellSpec(sh.title, style="title")
         cells_[(NOTE_ROW, 0)] = CellSpec(sh.note, style="note")
@@ -2596,6 +2801,14 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
                 iso[(top + i, left + j)] = CellSpec(style="computed", number_format="0.000000E+00")
         iso[(top, left)] = CellSpec(formula=f, style="computed", number_format="0.000000E+00",
                                     array=(ELLIPSE_POINTS + 1, 2))
+    for (sheet, top, left), (f, (nr, nc)) in array_formulas().items():
+        target = lay[sheet] if sheet in lay else row_sheets[sheet]
+        cols = SHEET_BY_NAME[sheet].columns
+        for r in range(nr):
+            for c in range(nc):
+                target[(top + r, left + c)] = CellSpec(style="computed", number_format=cols[left + c].number_format)
+        target[(top, left)] = CellSpec(formula=f, style="computed", number_format=cols[left].number_format,
+                                       array=(nr, nc))
     lay.update(row_sheets)
     lay["Isochron"] = iso
     return lay
@@ -2626,8 +2839,8 @@ def fill_values(lay: Layout, ev: Evaluation) -> None:
         spec.value = v
 
 
-SHEET_ORDER = (ABOUT_SHEET, "Constants", "Spikes", "Standards", "Samples", "Measured", "Results", "Steps",
-               "Isochron")
+SHEET_ORDER = (ABOUT_SHEET, "Constants", "Spikes", "Standards", "Samples", "Measured", "Cycles", "Runs", "Results",
+               "Steps", "Isochron")
 _FILL = {"input": "FFF6D5", "computed": "E2ECF8", "header": "D9D9D9"}
 WIDTHS: Dict[str, Dict[int, float]] = {s.name: {j: c.width for j, c in enumerate(s.columns)} for s in SHEETS}
 WIDTHS[ABOUT_SHEET] = {0: 110}

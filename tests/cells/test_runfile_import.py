@@ -168,3 +168,20 @@ def test_the_parser_needs_no_uno():
     out = subprocess.run([sys.executable, "-c", code, str(MACROS)], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "[{'analysis': 'A', 'r1_name': '143Nd/144Nd', 'r1': 0.5, 'r1_sigma_1s': ''}]"
+
+
+def test_a_cycle_file_goes_to_the_cycles_sheet_with_one_value_per_cycle():
+    """Issue 12: a file with a 'cycle' column is a cycle file: one row per cycle, no σ columns, for the Cycles
+    sheet; text stays text (never a formula)."""
+    from commands import run_file_sheet
+
+    text = "analysis,element,cycle,143Nd/144Nd,146Nd/144Nd\nHM-07,Nd,1,0.51210,0.7219\nHM-07,Nd,2,0.51211,0.7218\n" \
+           "=HYPERLINK(1),Nd,3,0.51212,0.7220\n"
+    rows = parse_run_file(text)
+    assert run_file_sheet(rows) == "Cycles"
+    assert rows[0] == {"analysis": "HM-07", "element": "Nd", "cycle": 1.0, "r1_name": "143Nd/144Nd", "r1": 0.5121,
+                       "r2_name": "146Nd/144Nd", "r2": 0.7219}
+    assert rows[2]["analysis"] == "=HYPERLINK(1)"
+    assert run_file_sheet(parse_run_file(HEADER + "\n" + ISSUE_ROW + "\n")) == "Measured"
+    with pytest.raises(RunFileError, match="line 1, column 5: '143Nd/144Nd 1s' in a cycle file"):
+        parse_run_file("analysis,element,cycle,143Nd/144Nd,143Nd/144Nd 1s\nHM-07,Nd,1,0.5121,0.00001\n")

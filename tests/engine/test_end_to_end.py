@@ -539,3 +539,73 @@ def test_ndo_oxide_run_comes_back_through_the_template(tmp_path):
         assert results[a]["x"] == pytest.approx(tr["x"], rel=1e-8), a
         assert results[a]["y"] == pytest.approx(tr["y"], rel=1e-8), a
     assert ages["Sm-Nd"]["age"] == pytest.approx(SMND["t_ma"], rel=1e-6)
+
+
+# ---- cycles in the grid (issue 12) ------------------------------------------------------------------------------
+def _robust_mean_sem(v, k=3.5):
+    """Mean and SEM of the cycles kept by one robust pass, written out here: |x − median| > k·1.4826·MAD rejected
+    (modified z-score, Iglewicz & Hoaglin 1993), then mean and SD/√n (ddof = 1) of the kept cycles."""
+    import numpy as np
+
+    v = np.asarray(v, dtype=float)
+    med = np.median(v)
+    mad = np.median(np.abs(v - med))
+    keep = np.abs(v - med) <= k * 1.4826 * mad if k > 0 else np.ones(v.size, dtype=bool)
+    kept = v[keep]
+    return float(kept.mean()), float(kept.std(ddof=1) / math.sqrt(kept.size)), int(keep.sum())
+
+
+@pytest.mark.parametrize("k", [3.5, 0.0])
+def test_cycles_in_the_grid_feed_the_reduction(tmp_path, k):
+    """Nd runs given as cycles (one gross outlier each) reduce exactly as the same runs typed as the mean and SEM
+    of their kept cycles, computed here (x, y and their σ to 1e-12); k = 0 keeps every cycle."""
+    import numpy as np
+
+    spec = dict(SMND, xs=SMND["xs"][:3], d_concs=SMND["d_concs"][:3], masses=SMND["masses"][:3])
+    tables, truths = _tables((spec,), standard_rows("S1", "JNdi-1", "143Nd/144Nd"))
+    rng = np.random.default_rng(7)
+    with_cycles = json.loads(json.dumps(tables))
+    typed = json.loads(json.dumps(tables))
+    with_cycles["Cycles"] = []
+    n = 30
+    for m_c, m_t in zip(with_cycles["Measured"], typed["Measured"]):
+        if m_c["element"] != "Nd":
+            continue
+        names = [(j, m_c[f"r{j}_name"], m_c[f"r{j}"]) for j in (1, 2, 3)]
+        cyc = {name: v * (1 + 2e-5 * rng.standard_normal(n)) for _j, name, v in names}
+        cyc[names[0][1]][4] *= 1 + 2e-3                     # a gross outlier in the radiogenic ratio
+        for c in range(n):
+            line = {"analysis": m_c["analysis"], "element": "Nd", "cycle": c + 1}
+            for j, name, _v in names:
+                line[f"r{j}_name"], line[f"r{j}"] = name, float(cyc[name][c])
+            with_cycles["Cycles"].append(line)
+        for j, name, _v in names:
+            del m_c[f"r{j}_name"], m_c[f"r{j}"], m_c[f"r{j}_sigma_1s"]
+            mean, sem, kept = _robust_mean_sem(cyc[name], k)
+            m_t[f"r{j}"], m_t[f"r{j}_sigma_1s"] = mean, sem
+            assert kept <= n - 1 if (k and j == 1) else (kept == n or k)
+    for t in (with_cycles, typed):
+        t["Constants"] = None
+    c = [dict(r) for r in __import__("reduction.workbook", fromlist=["constants_rows"]).constants_rows()]
+    for r in c:
+        if r["key"] == "lab.cycle_reject_k":
+            r["value"] = k
+    results = []
+    for name, t in (("cyc", with_cycles), ("typed", typed)):
+        t.pop("Constants")
+        path = tmp_path / f"{name}.xlsx"
+        write_xlsx(build_layout(t, constants=c, isochron_selection={"Sm-Nd": [(a, 1) for a in truths]}), path)
+        out = tmp_path / f"{name}-out"
+        assert main(["reduce", str(path), "-o", str(out)]) == 0
+        wb = load_workbook(out / "results.xlsx", data_only=True)
+        ws = wb["Results"]
+        keys = [ws.cell(KEY_ROW, j).value for j in range(1, ws.max_column + 1)]
+        results.append({ws.cell(r, 1).value: {kk: ws.cell(r, j + 1).value for j, kk in enumerate(keys)}
+                        for r in range(FIRST_ROW, FIRST_ROW + len(truths))})
+        if name == "cyc":
+            kept = [wb["Cycles"].cell(r, 16).value for r in range(FIRST_ROW, FIRST_ROW + n)]
+            assert kept.count("kept") <= n - 1 if k else kept.count("kept") == n
+            assert kept[4].startswith("rejected: 143Nd/144Nd") == bool(k)
+    for a in truths:
+        for q in ("x", "y", "x_1s", "y_1s", "rho", "daughter_conc"):
+            assert results[0][a][q] == pytest.approx(results[1][a][q], rel=1e-12, abs=1e-15), (a, q)

@@ -878,6 +878,7 @@ VALID_CALLS: Dict[str, Any] = {
     "monte_carlo": ((_vectorised, [1.0, 2.0], [0.01, 0.01]), {"n_draws": 100, "seed": 1}),
     "propagate_linear": ((_vectorised, [1.0, 2.0], [0.01, 0.01]), {"groups": {"a": [0]}, "names": ("y",)}),
     "ellipse_points": ((1.0, 0.01, 2.0, 0.02), {"n_points": 12}),
+    "deviation_points": ((1.0, 0.01, 2.0, 0.02, 0.1, 0.5, 1.5), {"n_points": 12}),
     "fit_isochron": (([0.1, 0.2, 0.3], [1e-3] * 3, [0.5, 0.6, 0.71], [1e-3] * 3), {"anchor": (0.4, 0.01)}),
     "weighted_mean": (([1.0, 2.0, 1.5], [0.1, 0.1, 0.2]), {"external_scatter": True, "outlier_k": 3.0}),
     "wendt_carl_limits": ((5,), {}),

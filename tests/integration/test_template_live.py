@@ -151,6 +151,7 @@ if __name__ != "__main__":
     from reduction.workbook import (
         CAPACITY_CELL,
         CONSTANTS,
+        CYCLES,
         FIRST_ROW,
         ISOCHRON_FIRST_Q_ROW,
         ISOCHRON_QUANTITIES,
@@ -267,7 +268,8 @@ if __name__ != "__main__":
                 ("Spikes", "LH-SmNd-3", "Sm", SPIKES.col_index("conc_umol_g"), 1.004),
                 ("Constants", "decay.Sm147", None, vcol, 6.5238e-12 / 6.54e-12),
                 ("Measured", "SN-01", "Nd", MEASURED.col_index("r5"), 1.5),
-                ("Constants", "oxygen.18O/16O", None, vcol, 1.05)):
+                ("Constants", "oxygen.18O/16O", None, vcol, 1.05),
+                ("Cycles", "SN-03", "Nd", CYCLES.col_index("r2"), 1 + 3e-5)):
             r = _row(g, sheet, key, 0, second)
             new = g[sheet][r - 1][col] * factor
             _put(g, sheet, r, col, new)
@@ -394,7 +396,7 @@ if __name__ != "__main__":
 
     @pytest.mark.parametrize("step,what", [(0, "accepted value of JNdi-1"), (1, "Sm spike calibration"),
                                            (2, "147Sm decay constant"), (3, "147Sm monitor of a Nd run"),
-                                           (4, "oxygen 18O/16O of an oxide run")])
+                                           (4, "oxygen 18O/16O of an oxide run"), (5, "one cycle of a Nd run")])
     def test_live_chain_follows_each_edit(live, step, what):
         ev = evaluate(live["grids"][step])
         got = live["got"]["steps"][step]
