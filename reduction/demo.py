@@ -147,7 +147,7 @@ BLANK_DAUGHTER_RATIO: Dict[str, float] = {}  # blanks of natural composition (th
 #: Runs the demo gives as cycles (Cycles sheet) instead of run means: (analysis, element) -> cycles, with one
 #: gross outlier cycle each (the robust rule rejects it); their cycles come from a separate seeded stream, so
 #: every other number of the demo is as without them.
-CYCLE_RUNS: Dict[Tuple[str, str], int] = {("SN-03", "Nd"): 40, ("RS-03", "Sr"): 30}
+CYCLE_RUNS: Dict[Tuple[str, str], int] = {("SN-05", "Nd"): 40, ("RS-04", "Sr"): 30}
 CYCLE_OUTLIER_SD = 25.0
 
 

@@ -377,7 +377,7 @@ CYCLES = Sheet(
     (_c("analysis", "Analysis", "text", width=10), _c("element", "Element", "text", width=8),
      _c("cycle", "Cycle", required=False, width=7, number_format="0"), *_CYCLE_COLS,
      _c("kept", "Kept / rejected", "computed", quantity="kept", width=30)),
-    capacity=1200)
+    capacity=600)
 _RUN_COLS: List[Column] = [_c("analysis", "Analysis", "computed", quantity="analysis", width=10),
                            _c("element", "Element", "computed", quantity="element", width=8),
                            _c("n_cycles", "Cycles", "computed", quantity="n_cycles", width=7, number_format="0"),
@@ -392,7 +392,7 @@ RUNS = Sheet(
     "One row per run (analysis + element) of the Cycles sheet, in order of first appearance: the cycles given, "
     "the cycles kept, and per ratio the mean and 1σ standard error of the mean of the kept cycles. These are "
     "the run's measured ratios for the reduction.",
-    tuple(_RUN_COLS), capacity=240)
+    tuple(_RUN_COLS), capacity=120)
 
 # Results: (key, header, quantity, number format); quantity "" = copied from Samples
 _RESULT_SPEC = (
@@ -1658,18 +1658,28 @@ def _strip(err: Callable[[str, str], CellError], element: str, ratios: Mapping[s
     return st.ratios, st.sigma_1s, st.correction_rel
 
 
-def analysis_checks(analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any
-                    ) -> Tuple[str, ...]:
-    """The Check warnings of one analysis (empty: "ok")."""
+def _runs_from_cycles(cycles: Any, constants: Rows) -> Rows:
+    """The Runs block (key row first) of a Cycles table, or () without one."""
+    if cycles is None:
+        return ()
+    got = _cycle_table(as_rows(cycles), constants)[0]
+    return ((tuple(c.key for c in RUNS.columns),) + tuple(got)) if got else ()
+
+
+def analysis_checks(analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any,
+                    cycles: Any = None) -> Tuple[str, ...]:
+    """The Check warnings of one analysis (empty: "ok"); ``cycles``: the Cycles table, if any."""
     rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
-    return _analysis(str(analysis).strip(), *rows)[3]
+    return _analysis(str(analysis).strip(), *rows, runs=_runs_from_cycles(cycles, rows[4]))[3]
 
 
 def analysis_result(analysis: str, samples: Any, measured: Any, spikes: Any, standards: Any, constants: Any,
-                    *, mc_draws: int = 0) -> Any:
-    """The engine's AnalysisResult of one analysis (optionally with a seeded Monte Carlo)."""
+                    cycles: Any = None, *, mc_draws: int = 0) -> Any:
+    """The engine's AnalysisResult of one analysis (optionally with a seeded Monte Carlo); ``cycles``: the
+    Cycles table (key row first), whose runs then take their ratios from their cycles."""
     rows = tuple(as_rows(t) for t in (samples, measured, spikes, standards, constants))
-    return _analysis(str(analysis).strip(), *rows, mc_draws=int(mc_draws))[0]
+    return _analysis(str(analysis).strip(), *rows, mc_draws=int(mc_draws),
+                     runs=_runs_from_cycles(cycles, rows[4]))[0]
 
 
 def analysis_value(quantity: str, analysis: Any, samples: Any, measured: Any, spikes: Any, standards: Any,
@@ -2987,6 +2997,10 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
     wb.remove(wb.active)
     fonts = {"title": Font(bold=True, size=13), "note": Font(italic=True, color="555555"),
              "header": Font(bold=True), "key": Font(size=7, color="888888"), "label": Font(bold=True)}
+    # one style object each, shared by every cell (openpyxl compares a new object with every stored one)
+    fills = {k: PatternFill("solid", fgColor=v) for k, v in _FILL.items()}
+    wrap = Alignment(wrap_text=True, vertical="top")
+    unlocked = Protection(locked=False)
     cached: Dict[str, Dict[str, Any]] = {}
     for name in [s for s in SHEET_ORDER if s in lay] + [s for s in lay if s not in SHEET_ORDER]:
         ws = wb.create_sheet(name)
@@ -3006,14 +3020,14 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
                 _xlsx_value(cell, spec.value, name)
             if spec.style in fonts:
                 cell.font = fonts[spec.style]
-            if spec.style in _FILL:
-                cell.fill = PatternFill("solid", fgColor=_FILL[spec.style])
+            if spec.style in fills:
+                cell.fill = fills[spec.style]
             if spec.style == "header":
-                cell.alignment = Alignment(wrap_text=True, vertical="top")
+                cell.alignment = wrap
             if spec.number_format != "General":
                 cell.number_format = spec.number_format
             if spec.style == "input":
-                cell.protection = Protection(locked=False)
+                cell.protection = unlocked
         if protect and not values_only and name not in (ABOUT_SHEET,):
             ws.protection.sheet = True
             ws.protection.formatColumns = False

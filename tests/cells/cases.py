@@ -284,6 +284,21 @@ def _analysis() -> Any:
 
 _ND_NAMES, _ND_VALUES = _row(ND_KEYS, ND_MIX)
 _SM_NAMES, _SM_VALUES = _row(SM_KEYS, SM_MIX)
+#: Three cycles of one run; without a lab.cycle_reject_k row every cycle is kept (k = 0).
+_CYC_KEYS = ("analysis", "element", "cycle") + tuple(k for j in range(1, 7) for k in (f"r{j}_name", f"r{j}"))
+_CYCLES = R((_CYC_KEYS,) + tuple(("HM-1", "Nd", float(c + 1), "143Nd/144Nd", v) + ("",) * 10
+                                 for c, v in enumerate((1.0, 1.1, 0.9))))
+
+
+def _cycle_runs() -> Any:
+    """Hand-worked: mean 1.0, SD 0.1 (ddof = 1), SEM 0.1/√3; the Runs sheet's other rows empty."""
+    import math
+
+    from reduction.workbook import RUNS
+    first = ("HM-1", "Nd", 3.0, 3.0, "143Nd/144Nd", 1.0, 0.1 / math.sqrt(3)) + ("",) * (len(RUNS.columns) - 7)
+    return (first,) + (("",) * len(RUNS.columns),) * (RUNS.capacity - 1)
+
+
 PART2: List[Case] = [
     Case("cycles", "rdCycles", (R((tuple(CYC[:5]) + (None,) + tuple(CYC[5:]),)),), _cycles, array=True),
     Case("cycles-k3", "rdCycles", (col(CYC), L(3.0)), lambda: _cycles(3.0), array=True),
@@ -335,6 +350,9 @@ PART2: List[Case] = [
     Case("msg-deviation-ellipse", "rdDeviationEllipse",
          (L(1.2), L(0.0012), L(0.5142), L(5e-6), L(0.3), L(-1.0), L(0.51096)),
          Msg(("the line's value is not > 0",)), array=True),
+    Case("workbook-cycle-runs", "rdWorkbookCycleRuns", (_CYCLES, R((("key", "value"),))), _cycle_runs, array=True),
+    Case("workbook-cycle-kept", "rdWorkbookCycleKept", (_CYCLES, R((("key", "value"),))),
+         lambda: (("kept",), ("kept",), ("kept",)), array=True),
     Case("workbook-run-ratios", "rdWorkbookRunRatios", (L("Nd"), L("150Nd")),
          lambda: "143Nd/144Nd, 146Nd/144Nd, 150Nd/144Nd"),     # hand-written: what the demo's Nd runs give
     Case("workbook-run-ratios-rb", "rdWorkbookRunRatios", (L("rb"), L("87rb")),

@@ -87,7 +87,7 @@ def _fails(path, tmp_path, capsys):
 def _cloned(n):
     """The demo tables with the analyses cloned under new IDs up to ``n`` analyses (Measured runs too)."""
     t = copy.deepcopy(demo.demo_tables())
-    base_s, base_m = t["Samples"], t["Measured"]
+    base_s, base_m, base_c = t["Samples"], t["Measured"], t["Cycles"]
     samples, measured = list(base_s), list(base_m)
     k = 0
     while len(samples) < n:
@@ -96,8 +96,28 @@ def _cloned(n):
         samples.append(dict(src, analysis=new))
         measured += [dict(m, analysis=new) for m in base_m if m["analysis"] == src["analysis"]]
         k += 1
+    # the runs given as cycles are cloned as their run means (the Cycles sheet holds 600 rows in Calc)
+    runs = {(r[0], r[1]): r for r in _demo_runs()}
+    for m in measured:
+        key = (m["analysis"].split("-c")[0], m["element"])
+        if not m.get("r1_name") and key in runs:
+            r = runs[key]
+            for j in range(6):
+                if r[4 + 3 * j]:
+                    m[f"r{j + 1}_name"], m[f"r{j + 1}"], m[f"r{j + 1}_sigma_1s"] = r[4 + 3 * j:7 + 3 * j]
     t["Samples"], t["Measured"] = samples, measured
+    t["Cycles"] = [] if len(samples) > len(base_s) else base_c
     return t
+
+
+def _demo_runs():
+    from reduction.workbook import CONSTANTS, CYCLES, cycle_runs
+    t = demo.demo_tables()
+    cyc = [tuple(c.key for c in CYCLES.columns if not c.computed)] + [
+        tuple(r.get(c.key, "") for c in CYCLES.columns if not c.computed) for r in t["Cycles"]]
+    con = [tuple(c.key for c in CONSTANTS.columns)] + [tuple(r.get(c.key, "") for c in CONSTANTS.columns)
+                                                          for r in demo.demo_constants()]
+    return [r for r in cycle_runs(cyc, con) if r[0]]
 
 
 def _results(out):

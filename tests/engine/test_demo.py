@@ -78,6 +78,7 @@ def test_noise_free_round_trip_is_exact(monkeypatch):
     monkeypatch.setattr(demo, "SESSION_OFFSET", {k: 0.0 for k in demo.SESSION_OFFSET})
     monkeypatch.setattr(demo, "LAB_SIGMAS", {k: 0.0 for k in demo.LAB_SIGMAS})   # typed weights etc. are the truth
     monkeypatch.setattr(demo, "LU_BETA_1S", 0.0)
+    monkeypatch.setattr(demo, "CYCLE_RUNS", {})        # noise-free cycles would all be equal (SEM 0)
     fr0 = tuple(demo.DemoFraction(**{**f.__dict__, "parent_blank_ng": 0.0, "daughter_blank_ng": 0.0})
                 for f in demo.FRACTIONS)
     monkeypatch.setattr(demo, "FRACTIONS", fr0)

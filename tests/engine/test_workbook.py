@@ -63,8 +63,8 @@ def demo_grid():
 
 # ------------------------------------------------------------------ definition
 def test_sheet_names_and_every_uncertainty_header_states_level_and_form():
-    assert [s.name for s in SHEETS] == ["Constants", "Spikes", "Standards", "Samples", "Measured", "Results",
-                                        "Steps", "Isochron"]
+    assert [s.name for s in SHEETS] == ["Constants", "Spikes", "Standards", "Samples", "Measured", "Cycles", "Runs",
+                                        "Results", "Steps", "Isochron"]
     for s in SHEETS:
         for c in s.columns:
             if "σ" in c.header:
@@ -106,11 +106,12 @@ def test_write_read_round_trip_keeps_inputs_and_formulas(tmp_path, demo_grid, ex
         want = sheet_block(demo_grid, s, 1, 0, sh.last_row, sh.input_width - 1)
         got = sheet_block(data.grid, s, 1, 0, sh.last_row, sh.input_width - 1)
         assert got == want, s
-    from reduction.workbook import deviation_formulas
+    from reduction.workbook import array_formulas, deviation_formulas
 
     ellipses = {("Isochron", r, c) for (r, c) in ellipse_formulas()}
     deviations = {("Isochron", r, c) for (r, c) in deviation_formulas()}
-    assert set(data.formulas) == set(expected_formulas()) | ellipses | deviations
+    tables = set(array_formulas())            # the Cycles sheet's Kept column and the Runs sheet: one call each
+    assert set(data.formulas) == set(expected_formulas()) | ellipses | deviations | tables
     assert all("RDELLIPSE" in data.formulas[k].upper() for k in ellipses)
     assert all("RDDEVIATIONELLIPSE" in data.formulas[k].upper() for k in deviations)
     assert formula_drift(data.formulas) == []
@@ -389,7 +390,8 @@ def test_spike_column_matches_the_chain_systematic_part_of_x(demo_grid):
 
     refs = {s.name: s.range_ref() for s in SHEETS}
     args = [sheet_block(demo_grid, n, r1, c1, r2, c2) for n, r1, c1, r2, c2 in
-            (refs["Samples"], refs["Measured"], refs["Spikes"], refs["Standards"], refs["Constants"])]
+            (refs["Samples"], refs["Measured"], refs["Spikes"], refs["Standards"], refs["Constants"],
+             refs["Cycles"])]
     ev = evaluate(demo_grid)
     ids = [(row, ev.cells[("Results", row, 0)]) for row in range(FIRST_ROW, RESULTS.last_row + 1)]
     ids = [(row, a) for row, a in ids if a != ""]

@@ -269,7 +269,7 @@ if __name__ != "__main__":
                 ("Constants", "decay.Sm147", None, vcol, 6.5238e-12 / 6.54e-12),
                 ("Measured", "SN-01", "Nd", MEASURED.col_index("r5"), 1.5),
                 ("Constants", "oxygen.18O/16O", None, vcol, 1.05),
-                ("Cycles", "SN-03", "Nd", CYCLES.col_index("r2"), 1 + 3e-5)):
+                ("Cycles", "SN-05", "Nd", CYCLES.col_index("r2"), 1 + 3e-5)):
             r = _row(g, sheet, key, 0, second)
             new = g[sheet][r - 1][col] * factor
             _put(g, sheet, r, col, new)
