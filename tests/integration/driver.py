@@ -66,7 +66,7 @@ def place(sheet: Any, cases: List[Dict[str, Any]]) -> Dict[str, Any]:
     where = {}
     row = 0
     for case in cases:
-        col = INPUT_COL
+        col = max(INPUT_COL, case["cols"] + 1)        # inputs right of the result, never under it
         parts: List[str] = []
         height = case["rows"]
         for a in case["args"]:
