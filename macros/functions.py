@@ -143,6 +143,8 @@ def _t(name: str, description: str) -> Arg:
 
 
 # Shared argument descriptions (the same words wherever the same input appears).
+_CYCLE_TABLES = (_t("cycles", "The Cycles table (input columns) from its key row down"),
+                 _t("refValues", "The Constants table (reference values) from its key row down"))
 _X = _r("x", f"Parent/daughter ratios, e.g. 147Sm/144Nd (one column or one row; at most {MAX_ISOCHRON_POINTS} "
               "points).")
 _SX = _r("sx", "1 sigma absolute uncertainty of each x (same length as x; > 0).")
@@ -433,15 +435,11 @@ FUNCTIONS: Tuple[Function, ...] = (
              "The Runs sheet of the template: per run of the Cycles sheet its cycles, kept cycles, and per ratio the "
              "mean and 1 sigma standard error of the kept cycles (robust rule, k = lab.cycle_reject_k). Enter as an "
              "array formula.",
-             (_t("cycles", "The Cycles table (input columns) from its key row down"),
-              _t("refValues", "The Constants table (reference values) from its key row down")),
-             "workbook.cycle_runs", "array"),
+             _CYCLE_TABLES, "workbook.cycle_runs", "array"),
     Function("rdWorkbookCycleKept", "RD.WORKBOOK.CYCLEKEPT", "workbook",
              "The Cycles sheet's Kept column: for each cycle row, kept or the ratios it was rejected for. Enter as "
              "an array formula over the column.",
-             (_t("cycles", "The Cycles table (input columns) from its key row down"),
-              _t("refValues", "The Constants table (reference values) from its key row down")),
-             "workbook.cycle_kept", "array"),
+             _CYCLE_TABLES, "workbook.cycle_kept", "array"),
     Function("rdDeviationEllipse", "RD.DEVIATION.ELLIPSE", "ellipse",
              "A point's error ellipse in deviation space for a chart beside the isochron: points + 1 rows of 2 "
              "cells (x, deviation from the line in ppm), closed. Enter as an array formula.",

@@ -394,6 +394,13 @@ RUNS = Sheet(
     "the run's measured ratios for the reduction.",
     tuple(_RUN_COLS), capacity=120)
 
+def _row_columns(spec: Sequence[Tuple[str, str, str, str]], width: float) -> Tuple[Column, ...]:
+    """Computed columns of a sheet with one formula row per analysis, from (key, header, quantity, format);
+    quantity "" = copied from Samples (narrower)."""
+    return tuple(_c(k, h, "computed", quantity=q or k, number_format=f, width=width if q else 11)
+                 for k, h, q, f in spec)
+
+
 # Results: (key, header, quantity, number format); quantity "" = copied from Samples
 _RESULT_SPEC = (
     ("analysis", "Analysis", "", "General"), ("sample", "Sample", "", "General"),
@@ -425,8 +432,7 @@ RESULTS = Sheet(
     "mass-bias, spike, blank and reference-material corrected. Random σ (measurement) feed the isochron; "
     "total σ add the spike calibration and the accepted value. ε relative to CHUR (Constants). "
     "Every uncertainty states its level (1σ/2σ) and form (abs/%/ppm).",
-    tuple(_c(k, h, "computed", quantity=q or k, number_format=f, width=12 if q else 11)
-          for k, h, q, f in _RESULT_SPEC),
+    _row_columns(_RESULT_SPEC, width=12),
     capacity=60)
 
 # Steps: the chain's intermediate values of every analysis, one row per Results row (issue 12)
@@ -454,7 +460,7 @@ STEPS = Sheet(
     "iterations, blank shares (blank / total atoms of the element's reference isotope: 152Sm, 144Nd, 175Lu, "
     "177Hf, 85Rb, 86Sr), and the session factor that normalises the daughter ratio to the primary reference "
     "material. Read with the Results row of the same analysis.",
-    tuple(_c(k, h, "computed", quantity=q or k, number_format=f, width=13 if q else 11) for k, h, q, f in _STEP_SPEC),
+    _row_columns(_STEP_SPEC, width=13),
     capacity=60)
 
 ANALYSIS_QUANTITIES = tuple(q for _k, _h, q, _f in _RESULT_SPEC if q)
@@ -2257,10 +2263,8 @@ def _block(grid: Mapping[str, Sequence[Sequence[Cell]]], ref: Ref) -> Rows:
                        else ref.col)
 
 
-def _ellipse(pt: Sequence[Cell], row: Optional[int] = None) -> List[Tuple[float, float]]:
-    """The ellipse outline of one selection row (sheet row ``row``), as the ellipse cell function returns it."""
-    from .regression import ellipse_points
-
+def _point(pt: Sequence[Cell], row: Optional[int], what: str) -> Tuple[str, List[float]]:
+    """(analysis label, [x, sx, y, sy, ρ]) of one selection row, each a number, else the message of its cell."""
     ci = [ISOCHRON.col_index(k) for k in ("x", "x_1s", "y", "y_1s", "rho")]
     vals = [pt[i] for i in ci]
     a = pt[0] if not isinstance(pt[0], float) else f"{pt[0]:g}"
@@ -2269,7 +2273,15 @@ def _ellipse(pt: Sequence[Cell], row: Optional[int] = None) -> List[Tuple[float,
             text = _cell_message(str(v)) if isinstance(v, str) and v.strip() else repr(v)
             err = FollowOnError if isinstance(v, str) and v.strip().startswith(MARKER.strip()) else CellError
             raise err("Isochron", row, col_letter(i), ISOCHRON.columns[i].header,
-                      f"ellipse of analysis {shown(a)} needs a number here, the cell shows: {text}")
+                      f"{what} of analysis {shown(a)} needs a number here, the cell shows: {text}")
+    return a, vals
+
+
+def _ellipse(pt: Sequence[Cell], row: Optional[int] = None) -> List[Tuple[float, float]]:
+    """The ellipse outline of one selection row (sheet row ``row``), as the ellipse cell function returns it."""
+    from .regression import ellipse_points
+
+    a, vals = _point(pt, row, "ellipse")
     try:
         xs, ys = ellipse_points(*vals, n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
     except InputError as exc:
@@ -2281,16 +2293,13 @@ def _deviation(pt: Sequence[Cell], row: int, line: Sequence[Any]) -> List[Tuple[
     """The deviation outline of one selection row, as rdDeviationEllipse returns it."""
     from .regression import deviation_points
 
-    _ellipse(pt, row)          # the point's own cells: the same messages as its ellipse
-    a = pt[0] if not isinstance(pt[0], float) else f"{pt[0]:g}"
+    a, vals = _point(pt, row, "ellipse")        # the point's own cells: the same messages as its ellipse
     if not all(isinstance(v, float) for v in line):
         bad = next(v for v in line if not isinstance(v, float))
         raise FollowOnError("Isochron", row, None, "", f"deviation of analysis {shown(a)}: the isochron has no line "
                             f"({_cell_message(str(bad)) if str(bad).strip() else 'no fit'})")
-    ci = [ISOCHRON.col_index(k) for k in ("x", "x_1s", "y", "y_1s", "rho")]
     try:
-        xs, ds = deviation_points(*[pt[i] for i in ci], line[0], line[1], n_points=ELLIPSE_POINTS,
-                                  confidence=ELLIPSE_CONFIDENCE)
+        xs, ds = deviation_points(*vals, line[0], line[1], n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
     except RatioDeskError as exc:
         raise CellError("Isochron", row, None, "", f"deviation of analysis {shown(a)}: {exc}") from None
     return [(float(u), float(v)) for u, v in zip(xs.tolist(), ds.tolist())]
@@ -2454,6 +2463,19 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         r[col] = v
         cells[(sheet, row, col)] = v
 
+    def put_outline(top: int, left: int, vals: Any) -> None:
+        """An outline array (ELLIPSE_POINTS + 1 rows x 2) as Calc shows it: "" fills the whole range, a message
+        shows in the first cell and #N/A beside it (what Calc shows beside a one-cell answer in a larger range)."""
+        for i in range(ELLIPSE_POINTS + 1):
+            for j in (0, 1):
+                if not isinstance(vals, str):
+                    v = vals[i][j]
+                elif vals == "" or (i == 0 and j == 0):
+                    v = vals
+                else:
+                    v = "#N/A"
+                put("Isochron", top + i, left + j, v)
+
     def run(f: Callable[[], Any]) -> Any:
         try:
             return f()
@@ -2515,8 +2537,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
     j_kept = CYCLES.col_index("kept")
     cyc_rows = book.rows["Cycles"]
     n_cyc = max(CYCLES.capacity, len(cyc_rows) - 1) if extent == "data" else CYCLES.capacity
-    for sh in (RUNS,):
-        del work.setdefault(sh.name, [])[KEY_ROW:]
+    del work.setdefault("Runs", [])[KEY_ROW:]
     got = run(lambda: _cycle_table(cyc_rows, book.rows["Constants"]))
     if isinstance(got, str):
         kept_col: Sequence[Any] = [got] + ["#N/A"] * (n_cyc - 1)
@@ -2603,15 +2624,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         vals: Any = ""
         if pt[0] != "":
             vals = run(lambda pt=pt, srow=srow: _ellipse(pt, srow))
-        for i in range(ELLIPSE_POINTS + 1):
-            for j in (0, 1):
-                if not isinstance(vals, str):
-                    v = vals[i][j]
-                elif vals == "" or (i == 0 and j == 0):
-                    v = vals                  # "" fills the whole range; a message shows in the first cell
-                else:
-                    v = "#N/A"                # what Calc shows beside a one-cell answer in a larger range
-                put("Isochron", top + i, left + j, v)
+        put_outline(top, left, vals)
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         col = ISOCHRON_SUMMARY_COL + 1 + k
         treat = sheet_block(work, "Isochron", ISOCHRON_TREATMENT_ROW, col, ISOCHRON_TREATMENT_ROW, col)[0][0]
@@ -2633,15 +2646,7 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         col = ISOCHRON_SUMMARY_COL + 1 + ISOCHRON_SYSTEMS.index(system)
         line = [cells.get(("Isochron", qrow[q], col), "") for q in ("slope", "initial")]
         vals = "" if pt[0] == "" else run(lambda pt=pt, srow=srow, line=line: _deviation(pt, srow, line))
-        for i in range(ELLIPSE_POINTS + 1):
-            for j in (0, 1):
-                if not isinstance(vals, str):
-                    v = vals[i][j]
-                elif vals == "" or (i == 0 and j == 0):
-                    v = vals
-                else:
-                    v = "#N/A"
-                put("Isochron", top + i, left + j, v)
+        put_outline(top, left, vals)
     return Evaluation(cells, tuple(errors), tuple(warnings))
 
 
