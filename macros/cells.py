@@ -1336,6 +1336,42 @@ def rdWorkbookStandard(quantity: Any, session: Any, material: Any, ratio: Any, m
                                                   table_range("refValues", refValues)))
 
 
+def _name_cell(name: str, v: Any) -> str:
+    """A cell holding a name (an isochron group): text trimmed, a number as %g, empty as ''."""
+    if type(v) is tuple:
+        v = _one(name, v)
+    if isinstance(v, str) and v.startswith(MARKER):
+        raise _passed_on(name, v)
+    if _is_empty(v):
+        return ""
+    return f"{v:g}" if isinstance(v, float) else str(v).strip()
+
+
+@cell_function()
+def rdWorkbookGroup(quantity: Any, group: Any, treatment: Any, samples: Any, results: Any, refValues: Any) -> Any:
+    return cell(engine("workbook").group_value(text("quantity", quantity), _name_cell("group", group),
+                                               text("treatment", treatment, ""), table_range("samples", samples),
+                                               table_range("results", results), table_range("refValues", refValues)))
+
+
+@cell_function(array=True)
+def rdWorkbookGroupPoints(group: Any, samples: Any, results: Any) -> Any:
+    return engine("workbook").group_points(_name_cell("group", group), table_range("samples", samples),
+                                           table_range("results", results))
+
+
+@cell_function(array=True)
+def rdWorkbookGroupOutlines(kind: Any, group: Any, groups: Any, samples: Any, results: Any, refValues: Any) -> Any:
+    return engine("workbook").group_outlines(text("kind", kind), _name_cell("group", group),
+                                             table_range("groups", groups), table_range("samples", samples),
+                                             table_range("results", results), table_range("refValues", refValues))
+
+
+@cell_function()
+def rdWorkbookGroupsUnlisted(groups: Any, samples: Any) -> Any:
+    return cell(engine("workbook").unlisted_groups(table_range("groups", groups), table_range("samples", samples)))
+
+
 @cell_function()
 def rdWorkbookRunRatios(element: Any, spikeIsotope: Any = None) -> Any:
     return cell(engine("workbook").run_ratios(text("element", element), text("spikeIsotope", spikeIsotope, "")))

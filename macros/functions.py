@@ -450,6 +450,38 @@ FUNCTIONS: Tuple[Function, ...] = (
                            "(default 48)."),
               _v("confidence", "Optional: confidence level of the region (default 0.95).")),
              "regression.deviation_points", "array"),
+    Function("rdWorkbookGroup", "RD.WORKBOOK.GROUP", "workbook",
+             "One quantity of the isochron of an isochron group of the RatioDesk template (the Groups sheet's "
+             "cells): its points are the Samples rows naming the group with Use in isochron 1 or empty.",
+             (_c("quantity", "Quantity: system, n, age, age_2s, initial, mswd, p, slope, message, ..."),
+              _c("group", "Group name, as in the Samples column Isochron group."),
+              _c("treatment", "Scatter treatment cell (empty: analytical)."),
+              _t("samples", "The Samples table from its key row down"),
+              _t("results", "The Results table from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
+             "workbook.group_value"),
+    Function("rdWorkbookGroupPoints", "RD.WORKBOOK.GROUPPOINTS", "workbook",
+             "The points of one isochron group: per Samples row of the group its analysis, use (1/0), x, 1 sigma "
+             "x, y, 1 sigma y and rho from the Results sheet. Enter as an array formula (7 columns).",
+             (_c("group", "Group name (an empty cell: empty rows)."),
+              _t("samples", "The Samples table from its key row down"),
+              _t("results", "The Results table from its key row down")),
+             "workbook.group_points", "array"),
+    Function("rdWorkbookGroupOutlines", "RD.WORKBOOK.GROUPOUTLINES", "workbook",
+             "The 95 % error ellipses of an isochron group's used points, stacked for one chart series with an "
+             "empty row between outlines: at full scale (ellipse) or as ppm from the group's fitted line "
+             "(deviation). Enter as an array formula (2 columns).",
+             (_c("kind", "ellipse or deviation."), _c("group", "Group name (an empty cell: empty rows)."),
+              _t("groups", "The Groups table (input columns) from its key row down"),
+              _t("samples", "The Samples table from its key row down"),
+              _t("results", "The Results table from its key row down"),
+              _t("refValues", "The Constants table (reference values) from its key row down")),
+             "workbook.group_outlines", "array"),
+    Function("rdWorkbookGroupsUnlisted", "RD.WORKBOOK.GROUPSUNLISTED", "workbook",
+             "Empty, or which isochron groups the Samples sheet names that the Groups table does not list.",
+             (_t("groups", "The Groups table (input columns) from its key row down"),
+              _t("samples", "The Samples table from its key row down")),
+             "workbook.unlisted_groups"),
 )
 
 BY_METHOD: Dict[str, Function] = {f.method: f for f in FUNCTIONS}

@@ -18,7 +18,7 @@ import os
 import platform
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Dict, List, Mapping, Sequence, Tuple
 
@@ -26,6 +26,8 @@ from . import __version__
 from .errors import RatioDeskError
 from .workbook import (
     FIRST_ROW,
+    GROUP_CHART_ROW,
+    GROUPS,
     ISOCHRON,
     ISOCHRON_BLOCK,
     ISOCHRON_FIRST_Q_ROW,
@@ -83,6 +85,8 @@ class ReduceOutcome:
     report_pdf: Path
     evaluation: Evaluation
     warnings: Tuple[str, ...]
+    #: the name typed on each filled Groups row (sheet row -> name), for the summary
+    group_names: Mapping[int, str] = field(default_factory=dict)
 
 
 def tables_from_grid(grid: Mapping[str, Sequence[Sequence[Any]]]) -> Tuple[Dict[str, List[Dict[str, Any]]],
@@ -91,9 +95,10 @@ def tables_from_grid(grid: Mapping[str, Sequence[Sequence[Any]]]) -> Tuple[Dict[
                                                                            Dict[str, Any]]:
     """Input tables of a read workbook as row dicts (by the key row), for rewriting it as values."""
     tables: Dict[str, List[Dict[str, Any]]] = {}
-    for name in ("Spikes", "Standards", "Samples", "Measured", "Constants"):
+    for name in ("Spikes", "Standards", "Samples", "Measured", "Constants", "Cycles", "Groups"):
         sh = SHEET_BY_NAME[name]
-        block = sheet_block(grid, name, KEY_ROW, 0, table_extent(grid, sh), len(sh.columns) - 1)
+        last = sh.last_row if name == "Groups" else table_extent(grid, sh)   # below Groups: its chart area
+        block = sheet_block(grid, name, KEY_ROW, 0, last, sh.input_width - 1)
         keys = [str(k) for k in block[0]]
         rows = []
         for r in block[1:]:
@@ -185,12 +190,41 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
             continue
         xl, yl = _axis_labels(system)
         panels.append(IsochronPanel(system, xl, yl, tuple(pts), summary, str(treatments.get(system, ""))))
+    panels += _group_panels(data, ev)
     const_rows = tuple(provenance_constant_rows(constants))
     spike_rows = tuple(tuple(s.get(k, "") for k in ("spike", "element", "calibrated", "spike_isotope", "conc_umol_g",
                                                      "conc_sigma_1s")) for s in tables.get("Spikes", ()))
     name = os.path.basename(data.path)
     return ReportData(name, name, __version__, now, tuple(rows), tuple(panels), const_rows, spike_rows,
                       tuple(ev.warnings), _standards_summary(data.grid, ev))
+
+
+def _group_panels(data: WorkbookData, ev: Evaluation) -> List[Any]:
+    """One report panel per fitted row of the Groups sheet (its points from the Samples rows of the group)."""
+    from .report import IsochronPanel, _axis_labels
+    from .workbook import SAMPLES, group_points, table_extent
+
+    sam = sheet_block(data.grid, "Samples", KEY_ROW, 0, table_extent(data.grid, SAMPLES), SAMPLES.input_width - 1)
+    last = max((r for (sheet, r, _c) in ev.cells if sheet == "Results"), default=RESULTS.last_row)
+    res = (tuple(c.key for c in RESULTS.columns),) + tuple(
+        tuple(ev.cells.get(("Results", r, j), "") for j in range(len(RESULTS.columns))) for r in range(FIRST_ROW,
+                                                                                                    last + 1))
+    typed = sheet_block(data.grid, "Groups", FIRST_ROW, 0, GROUPS.last_row, 1)
+    col = {c.key: j for j, c in enumerate(GROUPS.columns)}
+    panels = []
+    for i, (name, treatment) in enumerate(typed):
+        row = FIRST_ROW + i
+        system = ev.cells.get(("Groups", row, col["system"]), "")
+        if name == "" or not isinstance(ev.cells.get(("Groups", row, col["age"])), float):
+            continue
+        label = f"{name:g}" if isinstance(name, float) else str(name).strip()
+        summary = {q: ev.cells.get(("Groups", row, col[q]), "") for q, _l, _u in ISOCHRON_QUANTITIES}
+        pts = tuple((str(a), *vals, use == 1.0) for a, use, *vals in group_points(label, sam, res)
+                    if a != "" and all(isinstance(v, float) for v in vals))
+        xl, yl = _axis_labels(str(system))
+        panels.append(IsochronPanel(str(system), xl, yl, pts, summary, str(treatment or "analytical"),
+                                    name=f"Group {label} ({system})"))
+    return panels
 
 
 def _standards_summary(grid: Mapping[str, Any], ev: Evaluation) -> Tuple[Tuple[Any, ...], ...]:
@@ -253,6 +287,8 @@ def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
     lay = build_layout(tables, constants, selection)
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         lay["Isochron"][(ISOCHRON_TREATMENT_ROW, ISOCHRON_SUMMARY_COL + 1 + k)].value = treatments[system]
+    drawn = sheet_block(data.grid, "Groups", GROUP_CHART_ROW, 1, GROUP_CHART_ROW, 1)[0][0]
+    lay["Groups"][(GROUP_CHART_ROW, 1)].value = _shown_value(drawn)
     fill_values(lay, ev)
     extra = {"Provenance": _provenance(data, constants, tables.get("Spikes", ()), now, drift)}
     if mc_draws:
@@ -264,7 +300,9 @@ def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
     t2 = time.perf_counter()
     write_report(_report_data(data, ev, tables, constants, selection, treatments, now), report)
     progress(f"report drawn ({time.perf_counter() - t2:.1f} s; {time.perf_counter() - t0:.1f} s in all)")
-    return ReduceOutcome(results, report, ev, tuple(drift) + tuple(ev.warnings))
+    names = {FIRST_ROW + i: str(_shown_value(r[0])).strip()
+             for i, r in enumerate(sheet_block(data.grid, "Groups", FIRST_ROW, 0, GROUPS.last_row, 0)) if r[0] != ""}
+    return ReduceOutcome(results, report, ev, tuple(drift) + tuple(ev.warnings), names)
 
 
 # --------------------------------------------------------------------------------------------
@@ -281,22 +319,33 @@ def _progress(msg: str) -> None:
     print(msg, file=sys.stderr, flush=True)
 
 
+def _print_isochron(name: str, q: Mapping[str, Any]) -> None:
+    """One line of the reduce summary for an isochron with an age (and its note, if any)."""
+    age, a2, tot, mswd = (q.get(k) for k in ("age", "age_2s", "age_2s_total", "mswd"))
+    if not isinstance(age, float):
+        return
+    m = f"{mswd:.2f}" if isinstance(mswd, float) else str(mswd)
+    t = f"± {tot:.2f} Ma (2σ, with decay constant and spike calibration)" if isinstance(tot, float) else \
+        f"total: {tot}"
+    lo, hi, msg = (q.get(k) for k in ("mswd_low", "mswd_high", "message"))
+    rng = f" (acceptance range {lo:.2f}-{hi:.2f})" if isinstance(lo, float) and isinstance(hi, float) else ""
+    print(f"  {name}: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), {t}, MSWD {m}{rng}")
+    if isinstance(msg, str) and msg not in ("", "ok"):
+        print(f"    note: {msg}")
+
+
 def _summarise(outcome: ReduceOutcome) -> None:
     ev = outcome.evaluation
     qrow = {q: ISOCHRON_FIRST_Q_ROW + i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         col = ISOCHRON_SUMMARY_COL + 1 + k
-        age, a2, tot, mswd = (ev.cells.get(("Isochron", qrow[q], col)) for q in ("age", "age_2s", "age_2s_total",
-                                                                                  "mswd"))
-        if isinstance(age, float):
-            m = f"{mswd:.2f}" if isinstance(mswd, float) else str(mswd)
-            t = f"± {tot:.2f} Ma (2σ, with decay constant and spike calibration)" if isinstance(tot, float) else \
-                f"total: {tot}"
-            lo, hi, msg = (ev.cells.get(("Isochron", qrow[q], col)) for q in ("mswd_low", "mswd_high", "message"))
-            rng = f" (acceptance range {lo:.2f}-{hi:.2f})" if isinstance(lo, float) and isinstance(hi, float) else ""
-            print(f"  {system} isochron: {age:.2f} ± {a2:.2f} Ma (2σ, slope only), {t}, MSWD {m}{rng}")
-            if isinstance(msg, str) and msg not in ("", "ok"):
-                print(f"    note: {msg}")
+        _print_isochron(f"{system} isochron", {q: ev.cells.get(("Isochron", r, col)) for q, r in qrow.items()})
+    gcol = {c.key: j for j, c in enumerate(GROUPS.columns)}
+    for row in range(FIRST_ROW, GROUPS.last_row + 1):
+        got = {q: ev.cells.get(("Groups", row, j)) for q, j in gcol.items()}
+        if isinstance(got.get("age"), float):
+            name = outcome.group_names.get(row, f"Groups row {row}")
+            _print_isochron(f"group {name} ({got['system']})", got)
     checks = sorted((row, v) for (sheet, row, col), v in ev.cells.items()
                     if sheet == "Results" and col == RESULTS.col_index("check") and isinstance(v, str)
                     and v not in ("", "ok"))

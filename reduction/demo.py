@@ -108,6 +108,10 @@ FRACTIONS = (
     DemoFraction("RS-05", "HM-21", "biotite", "rb-sr", "S-2026-05A", 96.00, 6.5, 0.0250, 0.0200, 0.005, 0.050),
 )
 
+#: Isochron groups of the demo's Samples rows, by (sample, system): one rock per isochron (HM-12's single
+#: omphacite stays out of the groups; the Isochron sheet's by-ID pick keeps it with HM-07).
+DEMO_GROUP = {("HM-07", "sm-nd"): "HM-07 Sm-Nd", ("HM-07", "lu-hf"): "HM-07 Lu-Hf", ("HM-21", "rb-sr"): "HM-21 Rb-Sr"}
+
 # Session offsets of the normalised radiogenic ratio (relative), seen in the reference-material runs.
 SESSION_OFFSET = {"N-2026-03A": +18e-6, "N-2026-03B": -9e-6, "H-2026-04A": +25e-6, "H-2026-04B": +12e-6,
                   "S-2026-05A": +14e-6}
@@ -264,7 +268,8 @@ def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
         samples.append({"analysis": fr.analysis, "sample": fr.sample, "fraction": fr.fraction,
                         "system": SYSTEM_TEXT[fr.system], "session": fr.session,
                         "sample_mass_g": fr.sample_mass_g, "spike": label, "spike_mass_g": fr.spike_mass_g,
-                        "parent_blank_ng": fr.parent_blank_ng, "daughter_blank_ng": fr.daughter_blank_ng})
+                        "parent_blank_ng": fr.parent_blank_ng, "daughter_blank_ng": fr.daughter_blank_ng,
+                        "group": DEMO_GROUP.get((fr.sample, fr.system), "")})
         system = get_system(fr.system)
         betas = {el: BIAS_FACTOR[el] + 0.02 * rng.standard_normal() for el in SYSTEM_ELEMENTS[fr.system]}
         z = {k: float(rng.standard_normal()) for k in ("ws", "wt", "pb", "db", "pd")}
@@ -287,7 +292,9 @@ def demo_tables(seed: int = DEMO_SEED) -> Dict[str, List[Dict[str, object]]]:
                 row["bias_factor_1s"] = LU_BETA_1S
             measured.append(row)
     cycles = _cycle_rows(measured, seed)
-    return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured, "Cycles": cycles}
+    groups = [{"group": g, "treatment": "analytical"} for g in dict.fromkeys(DEMO_GROUP.values())]
+    return {"Spikes": spikes, "Standards": standards, "Samples": samples, "Measured": measured, "Cycles": cycles,
+            "Groups": groups}
 
 
 def _cycle_rows(measured: List[Dict[str, object]], seed: int) -> List[Dict[str, object]]:

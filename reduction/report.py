@@ -28,6 +28,12 @@ class IsochronPanel:
     points: Tuple[Tuple[str, float, float, float, float, float, bool], ...]  # id, x, sx, y, sy, rho, used
     summary: Mapping[str, Any]
     treatment: str = "analytical"
+    #: the isochron's name in titles (an isochron group: its name and system); empty: the system
+    name: str = ""
+
+    @property
+    def label(self) -> str:
+        return self.name or self.system
 
 
 @dataclass(frozen=True)
@@ -127,7 +133,7 @@ def _axis_labels(system: str) -> Tuple[str, str]:
 
 def _age_text(p: IsochronPanel) -> str:
     s = p.summary
-    lines = [f"{p.system} isochron, {p.treatment} treatment"]
+    lines = [f"{p.label} isochron, {p.treatment} treatment"]
     if isinstance(s.get("age"), float):
         lines.append(f"age = {s['age']:.2f} ± {s['age_2s']:.2f} Ma (2σ, slope only)")
         lines.append(f"      ± {s['age_2s_lambda']:.2f} Ma (2σ, with decay constant)")
@@ -189,7 +195,7 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
     ax.set_xlabel(xl)
     ax.set_ylabel(yl)
     ax.ticklabel_format(useOffset=False)
-    ax.set_title(f"{p.system} isochron — {data.title}", fontsize=11, parse_math=False)
+    ax.set_title(f"{p.label} isochron — {data.title}", fontsize=11, parse_math=False)
     ax.text(0.02, 0.98, _age_text(p), transform=ax.transAxes, va="top", ha="left", fontsize=8.5, parse_math=False,
             family="monospace", bbox={"boxstyle": "round", "facecolor": "white", "edgecolor": "#bbbbbb"})
     ax.text(0.98, 0.02, "ellipses: 95 % confidence (2-D); open = not used in the fit", transform=ax.transAxes,
@@ -347,7 +353,7 @@ def write_report(data: ReportData, path: Any) -> None:
         for q, label, unit in ISOCHRON_QUANTITIES:
             fmt = _ISO_FMT.get(q, str)
             iso_rows.append((label, *[fmt(p.summary.get(q, "")) for p in data.isochrons], unit))
-        _table_pages(pdf, "Isochron summaries", ("Quantity", *[p.system for p in data.isochrons], "Unit / level"),
+        _table_pages(pdf, "Isochron summaries", ("Quantity", *[p.label for p in data.isochrons], "Unit / level"),
                      iso_rows, data, fontsize=8, landscape=False, wrap=(56,) + (0,) * (len(data.isochrons) + 1),
                      col_widths=(0.46,) + (0.54 / (len(data.isochrons) + 1),) * (len(data.isochrons) + 1),
                      notes=("Fit: York et al. 2004 (Am. J. Phys. 72, 367). Scatter treatment as stated on each "

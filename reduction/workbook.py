@@ -325,7 +325,8 @@ SAMPLES = Sheet(
     "One row per analysis. Masses in g; blanks in ng of element (procedural blank, subtracted; natural "
     "composition from Constants unless a blank daughter ratio is typed). System: Sm-Nd, Lu-Hf or Rb-Sr. The spike "
     "label must appear on the Spikes sheet. Empty σ columns take the lab defaults of the Constants sheet "
-    "(lab.*); a σ of 0 is named in Check.",
+    "(lab.*); a σ of 0 is named in Check. Isochron group: the analyses of one isochron share a name (listed on the "
+    "Groups sheet); Use 0 leaves a row out of its group's fit.",
     (_c("analysis", "Analysis", "text", width=10), _c("sample", "Sample", "text", width=10),
      _c("fraction", "Fraction type", "text", width=16, help="one of: " + ", ".join(FRACTION_TYPES)),
      _c("system", "System", "text", width=8), _c("session", "Session", "text", width=13),
@@ -341,8 +342,12 @@ SAMPLES = Sheet(
      _c("daughter_blank_ratio", "Blank daughter ratio (empty: natural)", required=False, width=12,
         number_format="0.000000"),
      _c("daughter_blank_ratio_1s", "Blank daughter ratio 1σ (abs)", required=False, width=11,
-        number_format="0.0E+00")),
-    capacity=60)
+        number_format="0.0E+00"),
+     _c("group", "Isochron group", "text", required=False, width=14,
+        help="The isochron this analysis belongs to (a name of the Groups sheet); empty: none."),
+     _c("use", "Use in isochron (1/0)", "flag", required=False, width=10, number_format="0",
+        help="1 or empty: a point of its group's isochron; 0: listed, left out of the fit.")),
+    capacity=120)
 
 MEASURED = Sheet(
     "Measured", "Measured ratios of the spiked mixtures (run means)",
@@ -361,7 +366,7 @@ MEASURED = Sheet(
      _c("bias_factor_1s", "β 1σ (abs)", required=False, width=10, number_format="0.0000"), *_RATIO_COLS[12:],
      _c("ion", "Ion (metal / oxide)", "text", required=False, width=10,
         help="empty or metal; oxide: the ratios are of monoxide beams (e.g. NdO+), oxygen-corrected first")),
-    capacity=120)
+    capacity=240)
 
 _CYCLE_COLS: List[Column] = []
 for _k in range(1, RATIO_SLOTS + 1):
@@ -433,7 +438,7 @@ RESULTS = Sheet(
     "total σ add the spike calibration and the accepted value. ε relative to CHUR (Constants). "
     "Every uncertainty states its level (1σ/2σ) and form (abs/%/ppm).",
     _row_columns(_RESULT_SPEC, width=12),
-    capacity=60)
+    capacity=120)
 
 # Steps: the chain's intermediate values of every analysis, one row per Results row (issue 12)
 _STEP_SPEC = (
@@ -461,7 +466,7 @@ STEPS = Sheet(
     "177Hf, 85Rb, 86Sr), and the session factor that normalises the daughter ratio to the primary reference "
     "material. Read with the Results row of the same analysis.",
     _row_columns(_STEP_SPEC, width=13),
-    capacity=60)
+    capacity=120)
 
 ANALYSIS_QUANTITIES = tuple(q for _k, _h, q, _f in _RESULT_SPEC if q)
 #: Results columns copied from the Samples sheet (no engine call).
@@ -514,12 +519,6 @@ ELLIPSE_COL0 = 13
 ELLIPSE_POINTS = 32
 ELLIPSE_CONFIDENCE = 0.95
 
-SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, CYCLES, RUNS, RESULTS, STEPS,
-                             ISOCHRON)
-#: The computed sheets with one formula row per Samples row.
-ROW_SHEETS: Tuple[Sheet, ...] = (RESULTS, STEPS)
-SHEET_BY_NAME = {s.name: s for s in SHEETS}
-INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured", "Cycles")
 
 #: Isochron selection: one block of rows per system, Sm-Nd first.
 ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10, FIRST_ROW + 17),
@@ -527,6 +526,46 @@ ISOCHRON_BLOCK = {"Sm-Nd": (FIRST_ROW, FIRST_ROW + 7), "Lu-Hf": (FIRST_ROW + 10,
 #: First column of the deviation-ellipse outlines (after every selection row's ellipse, two columns each).
 DEVIATION_COL0 = ELLIPSE_COL0 + 2 * sum(last - first + 1 for first, last in ISOCHRON_BLOCK.values())
 #: Each block has a header row and a key row right above it (rows 3-4 and 13-14).
+
+#: Number formats of the isochron quantities (Isochron summary cells, Groups columns).
+ISOCHRON_FORMATS = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_2s_total": "0.00",
+                    "x_scale_1s_pct": "0.0000", "age_95": "0.00", "initial": "0.0000000", "initial_2s": "0.0E+00",
+                    "eps_t": "0.00", "eps_t_2s": "0.00", "mswd": "0.00", "p": "0.000", "slope": "0.0000000",
+                    "slope_1s": "0.0E+00", "n": "0", "mswd_low": "0.00", "mswd_high": "0.00"}
+
+GROUPS = Sheet(
+    "Groups", "Isochron groups — one isochron per group of Samples rows",
+    "Type each group's name as the Samples sheet's Isochron group column spells it (any case), and its scatter "
+    "treatment (empty: analytical). Every Samples row of the group with Use in isochron 1 or empty is a point; 0 "
+    "leaves it out. One system per group; several groups per system. Below: the points of the group named in the "
+    "chart cell (empty: the first group) and its charts. Ages in Ma; the York regression (York et al. 2004) and "
+    "the Constants sheet's decay constants, as on the Isochron sheet.",
+    (_c("group", "Isochron group", "text", width=16),
+     _c("treatment", "Scatter treatment", "text", required=False, width=14,
+        help="analytical (or empty), expanded, equal-weights or excess-variance"),
+     _c("system", "System", "computed", quantity="system", width=8),
+     *(_c(q, f"{label} ({unit})" if unit and unit != "count" else label, "computed", quantity=q, width=12,
+          number_format=ISOCHRON_FORMATS.get(q, "General")) for q, label, unit in ISOCHRON_QUANTITIES)),
+    capacity=12)
+#: The Groups sheet's chart area: the cell naming the group drawn (column B), its points and outlines below.
+GROUP_CHART_ROW = GROUPS.last_row + 4
+GROUP_UNLISTED_CELL = ("Groups", GROUPS.last_row + 2, 0)
+GROUP_POINT_COLUMNS = (("analysis", "Analysis"), ("use", "Use (1/0)"), ("x", "P/D ratio"),
+                       ("x_1s", "P/D 1σ (abs, random)"), ("y", "D ratio"), ("y_1s", "D ratio 1σ (abs, random)"),
+                       ("rho", "ρ (random)"))
+GROUP_POINTS_TOP = GROUP_CHART_ROW + 4        # header and key rows above it
+#: Points a group can have in the list and the charts (every Samples row of the template).
+GROUP_POINTS_CAP = SAMPLES.capacity
+GROUP_OUTLINE_ROWS = GROUP_POINTS_CAP * (ELLIPSE_POINTS + 2)
+GROUP_ELLIPSE_COL = len(GROUP_POINT_COLUMNS) + 1
+GROUP_DEVIATION_COL = GROUP_ELLIPSE_COL + 2
+
+SHEETS: Tuple[Sheet, ...] = (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, CYCLES, RUNS, RESULTS, STEPS,
+                             ISOCHRON, GROUPS)
+#: The computed sheets with one formula row per Samples row.
+ROW_SHEETS: Tuple[Sheet, ...] = (RESULTS, STEPS)
+SHEET_BY_NAME = {s.name: s for s in SHEETS}
+INPUT_TABLES = ("Spikes", "Standards", "Samples", "Measured", "Cycles", "Groups")
 
 
 # --------------------------------------------------------------------------------------------
@@ -1770,9 +1809,6 @@ def _analysis_cell(quantity: str, outcome: AnalysisOutcome) -> float | str:
 def _isochron(system: str, treatment: str, selection: Rows, results: Rows, constants: Rows
               ) -> Tuple[Any, Any, Any, str]:
     """(fit, age, ε at the age, why no spike-calibration total ('' when there is one))."""
-    from .ages import epsilon, isochron_age
-    from .regression import fit_isochron
-
     sel = Table.from_range(ISOCHRON, selection, ISOCHRON_BLOCK.get(system, (FIRST_ROW, 0))[0])
     res = Table.from_range(RESULTS, results)
     sys_key = _system_of(system)
@@ -1823,16 +1859,38 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
     if used < 2:
         raise CellError("Isochron", None, "B", "Use (1/0)",
                         f"{system}: {used} row(s) selected; an isochron needs at least two")
+    col = ISOCHRON_SUMMARY_COL + 1 + ISOCHRON_SYSTEMS.index(system) if system in ISOCHRON_SYSTEMS else None
+
+    def failed(problem: str) -> CellError:
+        return CellError("Isochron", None, "B", "Use (1/0)", f"{system}: {problem}")
+
+    def bad_treatment(problem: str) -> CellError:
+        return CellError("Isochron", ISOCHRON_TREATMENT_ROW, None if col is None else col_letter(col),
+                         "Scatter treatment", f"{system}: {problem}")
+
+    return _fit_age(sys_key, treatment, (x, sx, y, sy, r), scales, constants, failed, bad_treatment)
+
+
+def _fit_age(sys_key: str, treatment: str, pts: Sequence[Sequence[float]], scales: Mapping[str, float],
+             constants: Rows, failed: Callable[[str], CellError], bad_treatment: Callable[[str], CellError]
+             ) -> Tuple[Any, Any, Any, str]:
+    """(fit, age, ε at the age, why no spike-calibration total) of selected points (x, sx, y, sy, ρ lists).
+
+    The York fit (:func:`reduction.regression.fit_isochron`) and the age (:func:`reduction.ages.isochron_age`)
+    shared by the Isochron and Groups sheets; ``scales`` maps each spike of the points to its P/D calibration
+    (1σ relative); ``failed`` and ``bad_treatment`` make the message of a failed fit or an unknown treatment.
+    """
+    from .ages import epsilon, isochron_age
+    from .regression import fit_isochron
+
     try:
-        fit = fit_isochron(x, sx, y, sy, r, treatment=treatment or "analytical")
+        fit = fit_isochron(*pts, treatment=treatment or "analytical")
     except InputError as exc:
         if exc.argument == "treatment":
-            col = ISOCHRON_SUMMARY_COL + 1 + ISOCHRON_SYSTEMS.index(system) if system in ISOCHRON_SYSTEMS else None
-            raise CellError("Isochron", ISOCHRON_TREATMENT_ROW, None if col is None else col_letter(col),
-                            "Scatter treatment", f"{system}: {exc.problem}") from None
-        raise CellError("Isochron", None, "B", "Use (1/0)", f"{system}: the isochron fit failed: {exc}") from None
+            raise bad_treatment(exc.problem) from None
+        raise failed(f"the isochron fit failed: {exc}") from None
     except RatioDeskError as exc:
-        raise CellError("Isochron", None, "B", "Use (1/0)", f"{system}: the isochron fit failed: {exc}") from None
+        raise failed(f"the isochron fit failed: {exc}") from None
     ref = _refset(constants)
     # one spike: its P/D calibration scales every x alike (a common factor, ages.isochron_age);
     # several spikes: independent factors per group, which one scale factor does not describe
@@ -1846,7 +1904,7 @@ def _isochron(system: str, treatment: str, selection: Rows, results: Rows, const
         age = isochron_age(fit, sys_key, ref, x_scale_sigma_rel=ks)
         eps = epsilon(age.initial, age.initial_sigma_1s, 0.0, age.age_ma, sys_key, ref)
     except RatioDeskError as exc:
-        raise CellError("Isochron", None, "B", "Use (1/0)", f"{system}: no age from this fit: {exc}") from None
+        raise failed(f"no age from this fit: {exc}") from None
     return fit, age, eps, why
 
 
@@ -1898,6 +1956,191 @@ def _isochron_cell(quantity: str, outcome: Tuple[Any, Any, Any, str]) -> float |
         raise InputError("quantity", f"unknown quantity {quantity!r}; use one of {', '.join(table)}")
     v = table[q]()
     return v if isinstance(v, str) else float(v)
+
+
+# --------------------------------------------------------------------------------------------
+# isochron groups (the Groups sheet): the points come from the Samples rows that name the group
+# --------------------------------------------------------------------------------------------
+def _sample_use(samples: Table, i: int) -> bool:
+    """A Samples row's Use in isochron flag: empty or 1 → used, 0 → listed but left out; anything else a problem."""
+    use = samples.get(i, "use")
+    if use == "":
+        return True
+    if isinstance(use, LogicalCell):
+        raise samples.error(i, "use", f"is {str.__str__(use)} (a logical value): type 1 (or leave it empty) to use "
+                            "the row in its group's isochron, 0 to leave it out")
+    if isinstance(use, SpecialCell) or use not in (0.0, 1.0):
+        raise samples.error(i, "use", f"must be 1, 0 or empty, got {shown(use) if isinstance(use, str) else repr(use)}")
+    return use == 1.0
+
+
+#: A group's member: (analysis, used, [x, sx, y, sy, ρ] or the message of the Results cell that has none,
+#: Samples sheet row).
+Member = Tuple[str, bool, Any, int]
+
+
+@lru_cache(maxsize=64)
+def _group_members(group: str, samples: Rows, results: Rows) -> Tuple[str, Tuple[Member, ...], Dict[str, float]]:
+    """(system key, the group's Samples rows in sheet order, P/D calibration 1σ of each spike of the used rows)."""
+    sam = Table.from_range(SAMPLES, samples)
+    res = Table.from_range(RESULTS, results)
+    want = _norm(group)
+    members: List[Member] = []
+    system: Optional[Tuple[str, int]] = None
+    scales: Dict[str, float] = {}
+    for i in range(len(sam.rows)):
+        g = sam.get(i, "group")
+        if not sam.filled(i) or g == "" or isinstance(g, SpecialCell) or _norm(g) != want:
+            continue
+        row = sam.first_row + i
+        a = sam.text(i, "analysis")
+        used = _sample_use(sam, i)
+        try:
+            key = _system_of(sam.text(i, "system"))
+        except InputError as exc:
+            raise sam.error(i, "system", f"group {shown(group)}: {exc.problem}") from None
+        if system is None:
+            system = (key, row)
+        elif key != system[0]:
+            raise sam.error(i, "group", f"group {shown(group)} mixes {WORKBOOK_SYSTEMS.get(system[0], system[0])} "
+                            f"(row {system[1]}) and {WORKBOOK_SYSTEMS.get(key, key)} (this row): one system per group")
+        vals: Any = []
+        if i < len(res.rows):
+            for k in ("x", "x_1s", "y", "y_1s", "rho"):
+                v = res.get(i, k)
+                if not isinstance(v, float):
+                    vals = (f"Results row {row} has no {res.header(k)}: "
+                            f"{_cell_message(v) if isinstance(v, str) and v.strip() else 'empty'}")
+                    break
+                vals.append(v)
+        else:
+            vals = f"Results row {row} is beyond the Results table"
+        if used and isinstance(vals, str):
+            raise sam.error(i, "group", f"group {shown(group)}: analysis {shown(a)}: {vals} (fix the analysis, or "
+                            "type 0 in Use in isochron to leave it out)")
+        if used and "spike" in res.keys and "x_spike_1s_pct" in res.keys:
+            scales.setdefault(res.text(i, "spike"), res.number(i, "x_spike_1s_pct") / 100.0)
+        members.append((a, used, vals, row))
+    if system is None:
+        raise CellError("Groups", None, "A", "Isochron group", f"no Samples row names the group {shown(group)} "
+                        "(Samples column Isochron group)")
+    return system[0], tuple(members), scales
+
+
+@lru_cache(maxsize=64)
+def _group_isochron(group: str, treatment: str, samples: Rows, results: Rows, constants: Rows
+                    ) -> Tuple[Any, Any, Any, str]:
+    """(fit, age, ε at the age, why no spike-calibration total) of one group's used points."""
+    sys_key, members, scales = _group_members(group, samples, results)
+    used = [m[2] for m in members if m[1]]
+    if len(used) < 2:
+        raise CellError("Groups", None, "A", "Isochron group",
+                        f"group {shown(group)}: {len(used)} row(s) used; an isochron needs at least two")
+
+    def failed(problem: str) -> CellError:
+        return CellError("Groups", None, "A", "Isochron group", f"group {shown(group)}: {problem}")
+
+    def bad_treatment(problem: str) -> CellError:
+        return CellError("Groups", None, "B", "Scatter treatment", f"group {shown(group)}: {problem}")
+
+    pts = [list(c) for c in zip(*used)]
+    return _fit_age(sys_key, treatment, pts, scales, constants, failed, bad_treatment)
+
+
+def group_value(quantity: str, group: Any, treatment: Any, samples: Any, results: Any, constants: Any
+                ) -> float | str:
+    """One quantity of a group's isochron (the Groups sheet's computed cells).
+
+    The points are the Samples rows whose Isochron group is ``group`` (trimmed, any case) and whose Use in
+    isochron is 1 or empty, with x, sx, y, sy and ρ from the Results row of the same sheet row. ``quantity`` is
+    ``system`` or one of :data:`ISOCHRON_QUANTITIES`; the fit is :func:`reduction.regression.fit_isochron`
+    (York et al. 2004, Am. J. Phys. 72, 367) and the age :func:`reduction.ages.isochron_age`, as on the
+    Isochron sheet.
+    """
+    g = str(group).strip()
+    if not g:
+        raise InputError("group", "is empty")
+    if quantity.strip().lower() == "system":
+        key = _group_members(g, as_rows(samples), as_rows(results))[0]
+        return WORKBOOK_SYSTEMS.get(key, key)
+    return _isochron_cell(quantity, _group_isochron(g, str(treatment or "").strip().lower(), as_rows(samples),
+                                                    as_rows(results), as_rows(constants)))
+
+
+def group_points(group: Any, samples: Any, results: Any) -> Tuple[Tuple[Any, ...], ...]:
+    """The Groups sheet's point list of one group: analysis, use (1/0), x, sx, y, sy, ρ per member row, padded
+    with empty rows to :data:`GROUP_POINTS_CAP` rows (an unused row without numbers shows why)."""
+    g = str(group).strip()
+    rows: List[Tuple[Any, ...]] = []
+    if g:
+        _key, members, _scales = _group_members(g, as_rows(samples), as_rows(results))
+        for a, used, vals, _row in members:
+            nums = tuple(vals) if not isinstance(vals, str) else (MARKER + vals, "", "", "", "")
+            rows.append((a, 1.0 if used else 0.0) + nums)
+    if len(rows) > GROUP_POINTS_CAP:
+        raise InputError("group", f"group {shown(g)} has {len(rows)} rows, more than the {GROUP_POINTS_CAP} the "
+                         "list holds")
+    return tuple(rows) + (("",) * len(GROUP_POINT_COLUMNS),) * (GROUP_POINTS_CAP - len(rows))
+
+
+def group_outlines(kind: str, group: Any, groups: Any, samples: Any, results: Any, constants: Any
+                   ) -> Tuple[Tuple[Any, Any], ...]:
+    """The 95 % error ellipses of a group's used points, stacked for one chart series: each outline
+    (ELLIPSE_POINTS + 1 rows of x, y, closed) followed by an empty row, padded to :data:`GROUP_OUTLINE_ROWS`.
+
+    ``kind`` ``ellipse``: at full scale (:func:`reduction.regression.ellipse_points`); ``deviation``: x against
+    the deviation from the group's fitted line in ppm (:func:`reduction.regression.deviation_points`), the line
+    fitted with the treatment the Groups table gives the group.
+    """
+    from .regression import deviation_points, ellipse_points
+
+    k = kind.strip().lower()
+    if k not in ("ellipse", "deviation"):
+        raise InputError("kind", f"unknown kind {kind!r}; use ellipse or deviation")
+    g = str(group).strip()
+    out: List[Tuple[Any, Any]] = []
+    if g:
+        _key, members, _scales = _group_members(g, as_rows(samples), as_rows(results))
+        line: Tuple[float, float] = (0.0, 0.0)
+        if k == "deviation":
+            tab = Table.from_range(GROUPS, as_rows(groups))
+            hits = tab.find(group=g)
+            treatment = tab.text(hits[0], "treatment", required=False).lower() if hits else ""
+            outcome = _group_isochron(g, treatment, as_rows(samples), as_rows(results), as_rows(constants))
+            line = (float(_isochron_cell("slope", outcome)), float(_isochron_cell("initial", outcome)))
+        for a, used, vals, row in members:
+            if not used:
+                continue
+            try:
+                if k == "ellipse":
+                    xs, ys = ellipse_points(*vals, n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
+                else:
+                    xs, ys = deviation_points(*vals, *line, n_points=ELLIPSE_POINTS, confidence=ELLIPSE_CONFIDENCE)
+            except RatioDeskError as exc:
+                raise CellError("Samples", row, None, "", f"group {shown(g)}: the ellipse of analysis {shown(a)}: "
+                                f"{exc}") from None
+            out += [(float(u), float(v)) for u, v in zip(xs.tolist(), ys.tolist())] + [("", "")]
+    return tuple(out) + (("", ""),) * (GROUP_OUTLINE_ROWS - len(out))
+
+
+def unlisted_groups(groups: Any, samples: Any) -> str:
+    """Empty, or a message naming the groups the Samples sheet names that the Groups table does not list."""
+    tab = Table.from_range(GROUPS, as_rows(groups))
+    listed = {_norm(tab.get(i, "group")) for i in range(len(tab.rows)) if tab.filled(i)}
+    sam = Table.from_range(SAMPLES, as_rows(samples))
+    missing: Dict[str, List[int]] = {}
+    if "group" not in sam.keys:         # a Samples sheet of an earlier template: no groups
+        return ""
+    for i in range(len(sam.rows)):
+        g = sam.get(i, "group")
+        if sam.filled(i) and g != "" and not isinstance(g, SpecialCell) and _norm(g) not in listed:
+            missing.setdefault(str(g).strip(), []).append(sam.first_row + i)
+    if not missing:
+        return ""
+    names = "; ".join(f"{shown(g)} (Samples row{'s' if len(r) > 1 else ''} {', '.join(map(str, r[:5]))}"
+                      f"{', …' if len(r) > 5 else ''})" for g, r in missing.items())
+    return (f"{MARKER}groups named on Samples but not listed above, so not fitted: {names} — type each name in "
+            "column A")
 
 
 def _none_text(v: Optional[float], text: str) -> float | str:
@@ -2026,12 +2269,38 @@ def array_formulas() -> Dict[Tuple[str, int, int], Tuple[Formula, Tuple[int, int
     """The template's table-wide array formulas: (sheet, top row, left column) -> (formula, (rows, columns)).
 
     The Cycles sheet's Kept column and the whole Runs sheet are each one call over the Cycles table, so a
-    cycle edit recalculates them once (not once per cell).
+    cycle edit recalculates them once (not once per cell); the Groups sheet's point list and the two outline
+    columns of its charts are one call each.
     """
     cyc = (table_ref(CYCLES), table_ref(CONSTANTS))
+    drawn = Ref("Groups", 2, GROUP_CHART_ROW)
+    books = (table_ref(SAMPLES), table_ref(RESULTS))
+    outline = (drawn, table_ref(GROUPS)) + books + (table_ref(CONSTANTS),)
     return {("Cycles", FIRST_ROW, CYCLES.col_index("kept")): (Formula("rdWorkbookCycleKept", cyc),
                                                              (CYCLES.capacity, 1)),
-            ("Runs", FIRST_ROW, 0): (Formula("rdWorkbookCycleRuns", cyc), (RUNS.capacity, len(RUNS.columns)))}
+            ("Runs", FIRST_ROW, 0): (Formula("rdWorkbookCycleRuns", cyc), (RUNS.capacity, len(RUNS.columns))),
+            ("Groups", GROUP_POINTS_TOP, 0): (Formula("rdWorkbookGroupPoints", (drawn,) + books),
+                                              (GROUP_POINTS_CAP, len(GROUP_POINT_COLUMNS))),
+            ("Groups", GROUP_POINTS_TOP, GROUP_ELLIPSE_COL): (
+                Formula("rdWorkbookGroupOutlines", ("ellipse",) + outline), (GROUP_OUTLINE_ROWS, 2)),
+            ("Groups", GROUP_POINTS_TOP, GROUP_DEVIATION_COL): (
+                Formula("rdWorkbookGroupOutlines", ("deviation",) + outline), (GROUP_OUTLINE_ROWS, 2))}
+
+
+def group_formula(column: Column, row: int) -> Formula:
+    """The formula of one computed Groups cell (a quantity of the row's group isochron)."""
+    def here(key: str) -> Ref:
+        return Ref("Groups", GROUPS.col_index(key), row, absolute=False, abs_col_only=True)
+
+    return Formula("rdWorkbookGroup", (column.quantity, here("group"), here("treatment"), table_ref(SAMPLES),
+                                       table_ref(RESULTS), table_ref(CONSTANTS)), guard=here("group"))
+
+
+def group_drawn_formula() -> Formula:
+    """The group the Groups charts draw: the chart cell (column B), or when it is empty the first group."""
+    typed, first = Ref("Groups", 1, GROUP_CHART_ROW), Ref("Groups", 0, FIRST_ROW)
+    fallback = Formula("IF", (Formula("ISBLANK", (first,), addin=False), "", first), addin=False)
+    return Formula("IF", (Formula("ISBLANK", (typed,), addin=False), fallback, typed), addin=False)
 
 
 def standards_formula(column: Column, row: int) -> Formula:
@@ -2203,6 +2472,12 @@ def expected_formulas() -> Dict[Tuple[str, int, int], Formula]:
         tcell = Ref("Isochron", col, ISOCHRON_TREATMENT_ROW)
         for q_i, (q, _label, _unit) in enumerate(ISOCHRON_QUANTITIES):
             out[("Isochron", ISOCHRON_FIRST_Q_ROW + q_i, col)] = isochron_summary_formula(q, system, tcell)
+    for row in range(FIRST_ROW, GROUPS.last_row + 1):
+        for j, c in enumerate(GROUPS.columns):
+            if c.computed:
+                out[("Groups", row, j)] = group_formula(c, row)
+    out[GROUP_UNLISTED_CELL] = Formula("rdWorkbookGroupsUnlisted", (table_ref(GROUPS), table_ref(SAMPLES)))
+    out[("Groups", GROUP_CHART_ROW, 2)] = group_drawn_formula()
     out[CAPACITY_CELL] = capacity_formula()
     out[ORPHAN_CELL] = orphan_formula()
     return out
@@ -2647,7 +2922,66 @@ def evaluate(grid: Mapping[str, Sequence[Sequence[Cell]]], *, strict: bool = Tru
         line = [cells.get(("Isochron", qrow[q], col), "") for q in ("slope", "initial")]
         vals = "" if pt[0] == "" else run(lambda pt=pt, srow=srow, line=line: _deviation(pt, srow, line))
         put_outline(top, left, vals)
+    _evaluate_groups(work, book.rows["Samples"], results, book.rows["Constants"], put, run, warnings)
     return Evaluation(cells, tuple(errors), tuple(warnings))
+
+
+def _label(v: Any) -> str:
+    """A cell typed as a name (a group), as the cell functions receive it: numbers as ``%g``, trimmed."""
+    return (f"{v:g}" if isinstance(v, float) else str(v)).strip()
+
+
+def _evaluate_groups(work: Mapping[str, Sequence[Sequence[Cell]]], samples: Rows, results: Rows, constants: Rows,
+                     put: Callable[[str, int, int, Any], None], run: Callable[[Callable[[], Any]], Any],
+                     warnings: List[str]) -> None:
+    """The Groups sheet's computed cells as Calc computes them (the batch path's part of :func:`evaluate`)."""
+    groups = sheet_block(work, "Groups", KEY_ROW, 0, GROUPS.last_row, GROUPS.input_width - 1)
+    tab = Table.from_range(GROUPS, groups)
+    below = sheet_block(work, "Groups", GROUPS.last_row + 1, 0, GROUPS.last_row + 1, GROUPS.input_width - 1)[0]
+    if any(v != "" for v in below):
+        run(lambda: _raise(CellError("Groups", GROUPS.last_row + 1, None, "", f"a group below the table's "
+                                     f"{GROUPS.capacity} rows (rows {FIRST_ROW}-{GROUPS.last_row}) is not fitted: "
+                                     "move it into the table")))
+    for i in range(len(tab.rows)):
+        g = tab.get(i, "group")
+        for j, c in enumerate(GROUPS.columns):
+            if not c.computed:
+                continue
+            if g == "":
+                v: Any = ""
+            elif isinstance(g, SpecialCell):
+                v = run(lambda i=i: tab.text(i, "group"))
+            else:
+                t = tab.get(i, "treatment")
+                if isinstance(t, SpecialCell):
+                    v = run(lambda i=i: tab.text(i, "treatment"))
+                else:
+                    v = run(lambda c=c, g=g, t=t: group_value(c.quantity, _label(g), t, samples, results, constants))
+            put("Groups", FIRST_ROW + i, j, v)
+    unlisted = run(lambda: unlisted_groups(groups, samples))
+    put(*GROUP_UNLISTED_CELL, unlisted)
+    if unlisted:
+        warnings.append(f"Groups!A{GROUP_UNLISTED_CELL[1]}: {unlisted[len(MARKER):]}")
+    typed = sheet_block(work, "Groups", GROUP_CHART_ROW, 1, GROUP_CHART_ROW, 1)[0][0]
+    first = tab.get(0, "group") if tab.rows else ""
+    drawn = _label(typed) if typed != "" else ("" if first == "" else _label(first))
+    put("Groups", GROUP_CHART_ROW, 2, drawn)
+
+    def put_array(top: int, left: int, width: int, rows: Any, n: int) -> None:
+        for r in range(n):
+            for k in range(width):
+                if not isinstance(rows, str):
+                    v = rows[r][k]
+                else:
+                    v = rows if (r == 0 and k == 0) else "#N/A"
+                put("Groups", top + r, left + k, v)
+
+    put_array(GROUP_POINTS_TOP, 0, len(GROUP_POINT_COLUMNS),
+              run(lambda: group_points(drawn, samples, results)), GROUP_POINTS_CAP)
+    for kind, col in (("ellipse", GROUP_ELLIPSE_COL), ("deviation", GROUP_DEVIATION_COL)):
+        put_array(GROUP_POINTS_TOP, col, 2, run(lambda kind=kind: group_outlines(kind, drawn, groups, samples,
+                                                                                 results, constants)),
+                  GROUP_OUTLINE_ROWS)
 
 
 def _check_standard_runs(std_t: Table, run: Callable[[Callable[[], Any]], Any]) -> None:
@@ -2710,8 +3044,8 @@ ABOUT_LINES = (
     ("", "plain"),
     ("Yellow cells are inputs: type here. Blue cells are computed: they are protected against accidental "
      "typing (Tools ▸ Protect Sheet, no password, unprotects).", "plain"),
-    ("Order of work: Constants (reference values) → Spikes → Standards → Samples → Measured → read Results "
-     "and Isochron.", "plain"),
+    ("Order of work: Constants (reference values) → Spikes → Standards → Samples (with each analysis's "
+     "isochron group) → Measured → read Results, then the ages on Groups (by group) or Isochron (by ID).", "plain"),
     ("Uncertainties: every column states its level (1σ or 2σ) and form (abs = absolute, % or ppm = relative).",
      "plain"),
     ("Results depend on the spike calibrations and on the reference-material accepted values; state them "
@@ -2746,7 +3080,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
     lay: Layout = {ABOUT_SHEET: {}}
     for k, (text, style) in enumerate(about, start=1):
         lay[ABOUT_SHEET][(k, 0)] = CellSpec(text, style=style)
-    for sheet in (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, CYCLES):
+    for sheet in (CONSTANTS, SPIKES, STANDARDS, SAMPLES, MEASURED, CYCLES, GROUPS):
         cells: Dict[Tuple[int, int], CellSpec] = {}
         rows = constants if sheet is CONSTANTS else tables.get(sheet.name, ())
         _table_layout(sheet, list(rows or (constants_rows() if sheet is CONSTANTS else ())), cells)
@@ -2785,23 +3119,22 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
         iso[(ISOCHRON_TREATMENT_ROW, col0 + 1 + k)] = CellSpec("analytical", style="input")
     iso[(ISOCHRON_TREATMENT_ROW, unit_col)] = CellSpec("analytical, expanded, equal-weights, excess-variance",
                                                         style="note")
-    fmt = {"age": "0.00", "age_2s": "0.00", "age_2s_lambda": "0.00", "age_2s_total": "0.00", "x_scale_1s_pct": "0.0000",
-           "age_95": "0.00", "initial": "0.0000000",
-           "initial_2s": "0.0E+00", "eps_t": "0.00", "eps_t_2s": "0.00", "mswd": "0.00", "p": "0.000",
-           "slope": "0.0000000", "slope_1s": "0.0E+00", "n": "0", "mswd_low": "0.00", "mswd_high": "0.00"}
+    fmt = ISOCHRON_FORMATS
     for q_i, (q, label, unit) in enumerate(ISOCHRON_QUANTITIES):
         iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0)] = CellSpec(label, style="label")
         iso[(ISOCHRON_FIRST_Q_ROW + q_i, unit_col)] = CellSpec(unit, style="note")
         for k in range(len(ISOCHRON_SYSTEMS)):
             iso[(ISOCHRON_FIRST_Q_ROW + q_i, col0 + 1 + k)] = CellSpec(style="computed",
                                                                        number_format=fmt.get(q, "General"))
-    targets = {**row_sheets, "Isochron": iso, "Standards": lay["Standards"], "Spikes": lay["Spikes"]}
+    targets = {**row_sheets, "Isochron": iso, "Standards": lay["Standards"], "Spikes": lay["Spikes"],
+               "Groups": lay["Groups"]}
+    _group_chart_cells(lay["Groups"])
     for (sheet, row, col), f in formulas.items():
         target = targets[sheet]
         spec = target.get((row, col)) or CellSpec(style="computed")
         spec.formula, spec.style = f, "computed"
         columns = SHEET_BY_NAME[sheet].columns
-        if sheet != "Isochron" or col < len(columns):
+        if sheet not in ("Isochron", "Groups") or (col < len(columns) and row <= SHEET_BY_NAME[sheet].last_row):
             spec.number_format = columns[col].number_format
         target[(row, col)] = spec
     shapes = [(k, f, f"Ellipse of row {srow}: x", "y (95 % outline)")
@@ -2818,7 +3151,7 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
                                     array=(ELLIPSE_POINTS + 1, 2))
     for (sheet, top, left), (f, (nr, nc)) in array_formulas().items():
         target = lay[sheet] if sheet in lay else row_sheets[sheet]
-        cols = SHEET_BY_NAME[sheet].columns
+        cols = SHEET_BY_NAME[sheet].columns if sheet != "Groups" else _GROUP_ARRAY_COLUMNS
         for r in range(nr):
             for c in range(nc):
                 target[(top + r, left + c)] = CellSpec(style="computed", number_format=cols[left + c].number_format)
@@ -2827,6 +3160,33 @@ def build_layout(tables: Optional[Mapping[str, Sequence[Mapping[str, Any]]]] = N
     lay.update(row_sheets)
     lay["Isochron"] = iso
     return lay
+
+
+#: Number formats of the Groups sheet's arrays, by column: the point list, then the two outline pairs.
+_GROUP_ARRAY_COLUMNS = tuple(_c(k, h, number_format=f) for (k, h), f in zip(
+    GROUP_POINT_COLUMNS + (("", ""),) + (("", ""),) * 4,
+    ("General", "0", "0.000000", "0.0E+00", "0.0000000", "0.0E+00", "0.000", "General") + ("0.000000E+00",) * 4))
+
+
+def _group_chart_cells(cells: Dict[Tuple[int, int], CellSpec]) -> None:
+    """The Groups sheet's static cells below the table: the chart cell and the headers of the point list."""
+    cells[(GROUP_CHART_ROW, 0)] = CellSpec("Group drawn below (type a group; empty: the first group)", style="label")
+    cells[(GROUP_CHART_ROW, 1)] = CellSpec("", style="input")
+    cells[(GROUP_CHART_ROW + 1, 0)] = CellSpec("Its points (every Samples row of the group) and the outlines of the "
+                                              "used ones (95 % ellipses; deviation in ppm from the group's line)",
+                                              style="note")
+    heads = [h for _k, h in GROUP_POINT_COLUMNS]
+    keys = [k for k, _h in GROUP_POINT_COLUMNS]
+    for j, (h, k) in enumerate(zip(heads, keys)):
+        cells[(GROUP_POINTS_TOP - 2, j)] = CellSpec(h, style="header")
+        cells[(GROUP_POINTS_TOP - 1, j)] = CellSpec(k, style="key")
+    for col, what in ((GROUP_ELLIPSE_COL, "ellipse"), (GROUP_DEVIATION_COL, "deviation")):
+        cells[(GROUP_POINTS_TOP - 2, col)] = CellSpec("Ellipses: x" if what == "ellipse" else "Deviation: x",
+                                                     style="header")
+        cells[(GROUP_POINTS_TOP - 2, col + 1)] = CellSpec("y (95 % outline)" if what == "ellipse" else
+                                                         "ppm from the line (95 %)", style="header")
+        cells[(GROUP_POINTS_TOP - 1, col)] = CellSpec(f"{what}_x", style="key")
+        cells[(GROUP_POINTS_TOP - 1, col + 1)] = CellSpec(f"{what}_y", style="key")
 
 
 def layout_grid(lay: Layout) -> Dict[str, List[List[Cell]]]:
@@ -2855,7 +3215,7 @@ def fill_values(lay: Layout, ev: Evaluation) -> None:
 
 
 SHEET_ORDER = (ABOUT_SHEET, "Constants", "Spikes", "Standards", "Samples", "Measured", "Cycles", "Runs", "Results",
-               "Steps", "Isochron")
+               "Steps", "Isochron", "Groups")
 _FILL = {"input": "FFF6D5", "computed": "E2ECF8", "header": "D9D9D9"}
 WIDTHS: Dict[str, Dict[int, float]] = {s.name: {j: c.width for j, c in enumerate(s.columns)} for s in SHEETS}
 WIDTHS[ABOUT_SHEET] = {0: 110}
@@ -2947,6 +3307,13 @@ def choices() -> Tuple[Choice, ...]:
         out.append(Choice(f"rd_treatment{k + 1}", "Isochron", ISOCHRON_SUMMARY_COL + 1 + k,
                           (ISOCHRON_TREATMENT_ROW,), TREATMENTS, title=f"{system} scatter treatment",
                           help="How scatter beyond the analytical errors is treated."))
+    out.append(Choice("rd_group", "Samples", SAMPLES.col_index("group"), rows(SAMPLES), source=("Groups", "group"),
+                      strict=False, title="Isochron group",
+                      help="A group of the Groups sheet; a new name is kept (Calc asks first): list it there."))
+    out.append(Choice("rd_sample_use", "Samples", SAMPLES.col_index("use"), rows(SAMPLES), whole_0_1=True,
+                      title="Use in isochron", help="1 or empty = a point of its group's isochron, 0 = leave it out."))
+    out.append(Choice("rd_group_treatment", "Groups", GROUPS.col_index("treatment"), rows(GROUPS), TREATMENTS,
+                      title="Scatter treatment", help="How scatter beyond the analytical errors is treated."))
     return tuple(out)
 
 
@@ -3038,7 +3405,7 @@ def write_xlsx(lay: Layout, path: Any, *, values_only: bool = False, protect: bo
             ws.protection.formatColumns = False
             ws.protection.formatRows = False
         ws.freeze_panes = None if name == ABOUT_SHEET else f"A{FIRST_ROW}"
-        if name == "Isochron":
+        if name in ("Isochron", "Groups"):
             _xlsx_charts(ws)
         if not values_only:
             _xlsx_validations(ws, name)
@@ -3112,43 +3479,73 @@ def _xlsx_value(cell: Any, v: Any, sheet: str) -> None:
         cell.value = v
 
 
-def isochron_charts() -> List[Tuple[str, str, Tuple[str, str], str, List[int], Tuple[int, int]]]:
-    """The Isochron sheet's charts, both file formats: (name, title, (x, y) axis titles, y number format,
-    first columns of the outline pairs it draws, anchor (row, 0-based column)).
+@dataclass(frozen=True)
+class ChartSpec:
+    """One chart of the template, both file formats: an x-y chart of outline series, lines without markers.
 
-    Per system: the isochron at full scale (the ellipse outlines), then beside it in the column the
-    deviation plot (the same ellipses as ppm from the fitted line), so garnet ellipses are visible.
+    ``series`` holds (first column of the x, y pair, first row, last row) on ``sheet``; ``anchor`` is the
+    (row, 0-based column) of the chart's top-left corner.
     """
+
+    name: str
+    title: str
+    axes: Tuple[str, str]
+    y_format: str
+    sheet: str
+    series: Tuple[Tuple[int, int, int], ...]
+    anchor: Tuple[int, int]
+
+
+def isochron_charts() -> List[ChartSpec]:
+    """The template's charts: per system on the Isochron sheet the isochron at full scale (the ellipse outlines)
+    and below it the deviation plot (the same ellipses as ppm from the fitted line), so garnet ellipses are
+    visible; on the Groups sheet the same two for the group drawn (one stacked series each)."""
     sel = selection_rows()
     dev = {srow: left for (_t, left), (_f, srow, _s) in deviation_formulas().items()}
     ell = {srow: left for (_t, left), (_f, srow) in ellipse_formulas().items()}
     base = ISOCHRON_FIRST_Q_ROW + len(ISOCHRON_QUANTITIES) + 2
+    last = FIRST_ROW + ELLIPSE_POINTS
     out = []
     for k, system in enumerate(ISOCHRON_SYSTEMS):
         rows = [r for s_name, r in sel if s_name == system]
         xt, yt = axis_titles(system)
-        out.append((f"{system} isochron chart", f"{system} isochron — 95 % error ellipses", (xt, yt), "0.0000",
-                    [ell[r] for r in rows], (base + 40 * k, ISOCHRON_SUMMARY_COL)))
-        out.append((f"{system} deviation chart", f"{system} — deviation from the fitted line, 95 % ellipses",
-                    (xt, f"{yt}: deviation (ppm)"), "0", [dev[r] for r in rows],
-                    (base + 40 * k + 20, ISOCHRON_SUMMARY_COL)))
+        out.append(ChartSpec(f"{system} isochron chart", f"{system} isochron — 95 % error ellipses", (xt, yt), "0.0000",
+                             "Isochron", tuple((ell[r], FIRST_ROW, last) for r in rows),
+                             (base + 40 * k, ISOCHRON_SUMMARY_COL)))
+        out.append(ChartSpec(f"{system} deviation chart", f"{system} — deviation from the fitted line, 95 % ellipses",
+                             (xt, f"{yt}: deviation (ppm)"), "0", "Isochron", tuple((dev[r], FIRST_ROW, last)
+                                                                                  for r in rows),
+                             (base + 40 * k + 20, ISOCHRON_SUMMARY_COL)))
+    g_last = GROUP_POINTS_TOP + GROUP_OUTLINE_ROWS - 1
+    axes = ("Parent/daughter ratio (147Sm/144Nd, 176Lu/177Hf or 87Rb/86Sr)",
+            "Daughter ratio (143Nd/144Nd, 176Hf/177Hf or 87Sr/86Sr)")
+    col = GROUP_DEVIATION_COL + 3
+    out.append(ChartSpec("Group isochron chart", "Group drawn — isochron, 95 % error ellipses", axes, "0.0000",
+                         "Groups", ((GROUP_ELLIPSE_COL, GROUP_POINTS_TOP, g_last),), (GROUP_CHART_ROW, col)))
+    out.append(ChartSpec("Group deviation chart", "Group drawn — deviation from its fitted line, 95 % ellipses",
+                         (axes[0], "Deviation of the daughter ratio (ppm)"), "0", "Groups",
+                         ((GROUP_DEVIATION_COL, GROUP_POINTS_TOP, g_last),), (GROUP_CHART_ROW + 20, col)))
     return out
 
 
 def _xlsx_charts(ws: Any) -> None:
-    """The scatter charts of :func:`isochron_charts`: outlines as lines, no markers."""
+    """The scatter charts of :func:`isochron_charts` on this sheet: outlines as lines, no markers; an empty
+    row between two outlines of one series is a gap."""
     from openpyxl.chart import Reference, ScatterChart, Series
 
-    for _name, title, (xt, yt), yfmt, lefts, (row, col0) in isochron_charts():
+    for spec in isochron_charts():
+        if spec.sheet != ws.title:
+            continue
         ch = ScatterChart()
-        ch.title = title
+        ch.title = spec.title
         ch.style = 13
-        ch.x_axis.title, ch.y_axis.title = xt, yt
+        ch.x_axis.title, ch.y_axis.title = spec.axes
         ch.legend = None
         ch.height, ch.width = 9.5, 16
-        for left in lefts:
-            xs = Reference(ws, min_col=left + 1, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
-            ys = Reference(ws, min_col=left + 2, min_row=FIRST_ROW, max_row=FIRST_ROW + ELLIPSE_POINTS)
+        ch.display_blanks = "gap"
+        for left, top, bottom in spec.series:
+            xs = Reference(ws, min_col=left + 1, min_row=top, max_row=bottom)
+            ys = Reference(ws, min_col=left + 2, min_row=top, max_row=bottom)
             series = Series(ys, xs)
             series.marker.symbol = "none"
             series.smooth = False
@@ -3156,8 +3553,9 @@ def _xlsx_charts(ws: Any) -> None:
         ch.x_axis.delete = False
         ch.y_axis.delete = False
         ch.x_axis.number_format = "0.00"
-        ch.y_axis.number_format = yfmt
+        ch.y_axis.number_format = spec.y_format
         ch.x_axis.majorGridlines = None
+        row, col0 = spec.anchor
         ws.add_chart(ch, f"{col_letter(col0)}{row}")
 
 
@@ -3545,9 +3943,13 @@ def read_workbook(path: Any) -> WorkbookData:
                                    "in a spreadsheet program") from None
 
 
+#: Sheets a workbook made by an earlier template may lack (read as empty).
+OPTIONAL_SHEETS = ("Groups",)
+
+
 def check_sheets(data: WorkbookData) -> None:
     """Every sheet the definition reads must be present (named exactly)."""
     for s in SHEETS:
-        if s.name not in data.grid:
+        if s.name not in data.grid and s.name not in OPTIONAL_SHEETS:
             raise CellError(s.name, None, None, "", f"sheet missing from {data.path} (sheets there: "
                                                     f"{', '.join(data.grid) or 'none'})")

@@ -16,8 +16,6 @@ from typing import Any, Dict, List, Mapping, Optional, Sequence, Tuple
 from xml.sax.saxutils import escape, quoteattr
 
 from reduction.workbook import (
-    ELLIPSE_POINTS,
-    FIRST_ROW,
     SHEET_ORDER,
     WIDTHS,
     CellSpec,
@@ -174,21 +172,22 @@ CHART_NS = ('xmlns:office="urn:oasis:names:tc:opendocument:xmlns:office:1.0" '
             'xmlns:xlink="http://www.w3.org/1999/xlink"')
 
 
-def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
-    """(object name, chart content.xml, draw:frame xml, anchor cell) of the Isochron sheet's charts
-    (reduction.workbook.isochron_charts: per system the isochron and its deviation plot).
+def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int], str]]:
+    """(object name, chart content.xml, draw:frame xml, anchor cell, sheet) of the template's charts
+    (reduction.workbook.isochron_charts: per system the isochron and its deviation plot; the group drawn).
 
     Each frame is anchored to a cell (the .xlsx chart's anchor, below the summary block), so row
-    heights do not move it onto the cells.
+    heights do not move it onto the cells. An empty row between two outlines of one series is a gap.
     """
-    last = FIRST_ROW + ELLIPSE_POINTS
     out = []
-    for k, (frame_name, title, (xl, yl), yfmt, lefts, anchor) in enumerate(isochron_charts()):
+    for k, spec in enumerate(isochron_charts()):
+        frame_name, title, (xl, yl), yfmt, anchor, sh = (spec.name, spec.title, spec.axes, spec.y_format,
+                                                         spec.anchor, spec.sheet)
         series, ranges = [], []
-        for left in lefts:
+        for left, top, last in spec.series:
             xc, yc = col_letter(left), col_letter(left + 1)
-            xr, yr = f"Isochron.{xc}{FIRST_ROW}:Isochron.{xc}{last}", f"Isochron.{yc}{FIRST_ROW}:Isochron.{yc}{last}"
-            ranges.append(f"Isochron.{xc}{FIRST_ROW}:Isochron.{yc}{last}")
+            xr, yr = f"{sh}.{xc}{top}:{sh}.{xc}{last}", f"{sh}.{yc}{top}:{sh}.{yc}{last}"
+            ranges.append(f"{sh}.{xc}{top}:{sh}.{yc}{last}")
             series.append(f'<chart:series chart:style-name="ser" chart:class="chart:scatter" '
                           f'chart:values-cell-range-address="{yr}"><chart:domain table:cell-range-address="{xr}"/>'
                           f"</chart:series>")
@@ -196,7 +195,7 @@ def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
         content = (f'<?xml version="1.0" encoding="UTF-8"?><office:document-content {CHART_NS} office:version="1.2">'
                    "<office:automatic-styles>"
                    '<style:style style:name="pa" style:family="chart"><style:chart-properties chart:lines="true" '
-                   'chart:symbol-type="none"/></style:style>'
+                   'chart:symbol-type="none" chart:treat-empty-cells="leave-gap"/></style:style>'
                    '<style:style style:name="ser" style:family="chart"><style:chart-properties chart:lines="true" '
                    'chart:symbol-type="none"/><style:graphic-properties draw:stroke="solid" '
                    'svg:stroke-color="#1f3a68" svg:stroke-width="0.03cm"/></style:style>'
@@ -223,7 +222,7 @@ def _isochron_charts() -> List[Tuple[str, str, str, Tuple[int, int]]]:
                  'svg:width="16cm" svg:height="8.6cm" svg:x="0cm" svg:y="0cm"><draw:object '
                  f'draw:notify-on-update-of-ranges="{" ".join(ranges)}" xlink:href="./{name}" xlink:type="simple" '
                  'xlink:show="embed" xlink:actuate="onLoad"/></draw:frame>')
-        out.append((name, content, frame, anchor))
+        out.append((name, content, frame, anchor, sh))
     return out
 
 
@@ -294,11 +293,11 @@ def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: boo
     styles = _Styles()
     names = [s for s in SHEET_ORDER if s in lay] + [s for s in lay if s not in SHEET_ORDER]
     tables: List[str] = []
-    charts = _isochron_charts() if "Isochron" in lay and not values_only else []
+    charts = [c for c in _isochron_charts() if c[4] in lay] if not values_only else []
     for name in names:
         tables.append(_table_xml(name, lay[name], styles, values_only,
                                  protect and not values_only and name != SHEET_ORDER[0],
-                                 anchored={a: f for _n, _c, f, a in charts} if name == "Isochron" else None))
+                                 anchored={a: f for _n, _c, f, a, sh in charts if sh == name}))
     for name, rows in (extra_sheets or {}).items():
         tables.append(_table_xml(name, _rows_as_cells(rows), styles, True, False))
     validations = "" if values_only else _validations_xml()
@@ -319,14 +318,14 @@ def write_ods(lay: Layout, path: Any, *, values_only: bool = False, protect: boo
                 + "".join(f'<manifest:file-entry manifest:full-path="{n}/" manifest:version="1.2" '
                           'manifest:media-type="application/vnd.oasis.opendocument.chart"/>'
                           f'<manifest:file-entry manifest:full-path="{n}/content.xml" manifest:media-type="text/xml"/>'
-                          for n, _c, _f, _a in charts)
+                          for n, _c, _f, _a, _s in charts)
                 + "</manifest:manifest>")
     with zipfile.ZipFile(str(path), "w") as z:
         z.writestr(zipfile.ZipInfo("mimetype"), "application/vnd.oasis.opendocument.spreadsheet",
                    compress_type=zipfile.ZIP_STORED)
         z.writestr("content.xml", content, compress_type=zipfile.ZIP_DEFLATED)
         z.writestr("styles.xml", styles_xml, compress_type=zipfile.ZIP_DEFLATED)
-        for n, c, _f, _a in charts:
+        for n, c, _f, _a, _s in charts:
             z.writestr(f"{n}/content.xml", c, compress_type=zipfile.ZIP_DEFLATED)
         z.writestr("META-INF/manifest.xml", manifest, compress_type=zipfile.ZIP_DEFLATED)
 

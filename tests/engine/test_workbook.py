@@ -64,7 +64,7 @@ def demo_grid():
 # ------------------------------------------------------------------ definition
 def test_sheet_names_and_every_uncertainty_header_states_level_and_form():
     assert [s.name for s in SHEETS] == ["Constants", "Spikes", "Standards", "Samples", "Measured", "Cycles", "Runs",
-                                        "Results", "Steps", "Isochron"]
+                                        "Results", "Steps", "Isochron", "Groups"]
     for s in SHEETS:
         for c in s.columns:
             if "σ" in c.header:

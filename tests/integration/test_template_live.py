@@ -219,6 +219,13 @@ if __name__ != "__main__":
             from reduction.workbook import STANDARDS
 
             name = {"z": "z_1s"}.get(STANDARDS.columns[col].key, STANDARDS.columns[col].key)   # z divides by a σ
+        elif sheet == "Groups":
+            from reduction.workbook import GROUP_ELLIPSE_COL, GROUP_POINT_COLUMNS, GROUP_POINTS_TOP, GROUPS
+
+            if row >= GROUP_POINTS_TOP:
+                name = "ellipse_1s" if col >= GROUP_ELLIPSE_COL else GROUP_POINT_COLUMNS[col][0]
+            else:
+                name = GROUPS.columns[col].key if col < len(GROUPS.columns) else ""
         elif col >= ELLIPSE_COL0:
             name = "ellipse_1s"      # outline = centre + Cholesky factor of the covariance: σ-derived
         elif col < len(ISOCHRON.columns):
@@ -329,6 +336,20 @@ if __name__ != "__main__":
             col = ISOCHRON_SUMMARY_COL + 1 + k
             for row, q in _scatter_rows().items():
                 out[("Isochron", row, col)] = fit.mswd if q == "mswd" else fit.p_value
+        # the Groups sheet: the group drawn (its point list shows the grid's points); the other groups' MSWD and p
+        # have no grid points to refit and are held with the σ tolerance (_is_sigma)
+        from reduction.workbook import GROUP_CHART_ROW, GROUP_POINTS_CAP, GROUP_POINTS_TOP, GROUPS
+
+        drawn = vals.get(("Groups", GROUP_CHART_ROW, 2))
+        pts = []
+        for row in range(GROUP_POINTS_TOP, GROUP_POINTS_TOP + GROUP_POINTS_CAP):
+            p = [vals.get(("Groups", row, c)) for c in range(1, 7)]
+            if all(isinstance(v, float) for v in p) and p[0] == 1.0:
+                pts.append(p[1:])
+        if len(pts) >= 3 and drawn:          # the chart cell is empty in the live book: the drawn group is row 5's
+            fit = york_fit(*zip(*pts))
+            out[("Groups", FIRST_ROW, GROUPS.col_index("mswd"))] = fit.mswd
+            out[("Groups", FIRST_ROW, GROUPS.col_index("p"))] = fit.p_value
         return out
 
     def _compare(cells, got, ev):
@@ -358,17 +379,21 @@ if __name__ != "__main__":
         return bad
 
     def _is_deviation(key):
-        from reduction.workbook import DEVIATION_COL0
+        from reduction.workbook import DEVIATION_COL0, GROUP_DEVIATION_COL, GROUP_POINTS_TOP
 
-        sheet, _row, col = key
+        sheet, row, col = key
+        if sheet == "Groups":
+            return row >= GROUP_POINTS_TOP and col == GROUP_DEVIATION_COL + 1
         return sheet == "Isochron" and col >= DEVIATION_COL0 and (col - DEVIATION_COL0) % 2 == 1
 
     def _is_rho(key):
-        from reduction.workbook import ELLIPSE_COL0, ISOCHRON
+        from reduction.workbook import ELLIPSE_COL0, GROUP_POINT_COLUMNS, GROUP_POINTS_TOP, ISOCHRON
 
-        sheet, _row, col = key
+        sheet, row, col = key
         if sheet == "Results":
             return RESULTS.columns[col].key == "rho"
+        if sheet == "Groups":
+            return row >= GROUP_POINTS_TOP and col < len(GROUP_POINT_COLUMNS) and GROUP_POINT_COLUMNS[col][0] == "rho"
         return sheet == "Isochron" and col < min(ELLIPSE_COL0, len(ISOCHRON.columns)) and \
             ISOCHRON.columns[col].key == "rho"
 
