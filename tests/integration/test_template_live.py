@@ -40,22 +40,31 @@ ABS_TOL_DEVIATION_PPM = 1e-6
 # driver side (system Python with uno)
 # ============================================================================================
 def _cells_of(doc: Any, wanted: List[List[Any]]) -> List[Any]:
-    out = []
-    sheets = doc.getSheets()
+    """The shown value of each wanted cell (a number, a text, or {"error": code}), read per sheet in one
+    getDataArray over the cells' bounding range, with the error cells found by one formula-result query."""
+    by_sheet: Dict[str, List[Any]] = {}
     for sheet, row, col in wanted:
-        cell = sheets.getByName(sheet).getCellByPosition(col, row - 1)
-        err = cell.getError()
-        if err:
-            out.append({"error": err})
-            continue
-        # FormulaResultType2: 1 = VALUE, 2 = TEXT (com.sun.star.sheet.FormulaResult)
-        if cell.getType().value == "FORMULA":
-            out.append(cell.getValue() if cell.FormulaResultType2 == 1 else cell.getString())
-        elif cell.getType().value == "VALUE":
-            out.append(cell.getValue())
-        else:
-            out.append(cell.getString())
-    return out
+        by_sheet.setdefault(sheet, []).append((row, col))
+    got: Dict[Any, Any] = {}
+    sheets = doc.getSheets()
+    for sheet, keys in by_sheet.items():
+        sh = sheets.getByName(sheet)
+        r1, r2 = min(r for r, _c in keys), max(r for r, _c in keys)
+        c1, c2 = min(c for _r, c in keys), max(c for _r, c in keys)
+        rng = sh.getCellRangeByPosition(c1, r1 - 1, c2, r2 - 1)
+        data = rng.getDataArray()
+        errors = set()
+        # com.sun.star.sheet.FormulaResult.ERROR = 4: the formula cells of the range that show an error
+        for addr in rng.queryFormulaCells(4).getRangeAddresses():
+            for r in range(addr.StartRow, addr.EndRow + 1):
+                for c in range(addr.StartColumn, addr.EndColumn + 1):
+                    errors.add((r + 1, c))
+        for row, col in keys:
+            if (row, col) in errors:
+                got[(sheet, row, col)] = {"error": sh.getCellByPosition(col, row - 1).getError()}
+            else:
+                got[(sheet, row, col)] = data[row - r1][col - c1]
+    return [got[(sheet, row, col)] for sheet, row, col in wanted]
 
 
 def _set(doc: Any, sheet: str, row: int, col: int, value: float) -> None:
