@@ -345,24 +345,30 @@ if __name__ != "__main__":
             col = ISOCHRON_SUMMARY_COL + 1 + k
             for row, q in _scatter_rows().items():
                 out[("Isochron", row, col)] = fit.mswd if q == "mswd" else fit.p_value
-        # the Groups sheet: the group drawn (its point list shows the grid's points); the other groups' MSWD and p
-        # have no grid points to refit and are held with the σ tolerance (_is_sigma)
-        from reduction.workbook import GROUP_CHART_ROW, GROUP_POINTS_CAP, GROUP_POINTS_TOP, GROUPS
+        # the Groups sheet: each demo group refitted to the grid's Results points of its Samples rows (the live
+        # book's groups are the demo's, every row used)
+        from reduction.workbook import GROUPS, RESULTS
 
-        drawn = vals.get(("Groups", GROUP_CHART_ROW, 2))
-        pts = []
-        for row in range(GROUP_POINTS_TOP, GROUP_POINTS_TOP + GROUP_POINTS_CAP):
-            p = [vals.get(("Groups", row, c)) for c in range(1, 7)]
-            if all(isinstance(v, float) for v in p) and p[0] == 1.0:
-                pts.append(p[1:])
-        if len(pts) >= 3 and drawn:          # the chart cell is empty in the live book: the drawn group is row 5's
-            fit = york_fit(*zip(*pts))
-            out[("Groups", FIRST_ROW, GROUPS.col_index("mswd"))] = fit.mswd
-            out[("Groups", FIRST_ROW, GROUPS.col_index("p"))] = fit.p_value
+        names = list(dict.fromkeys(demo.DEMO_GROUP.values()))
+        for g_row, name in enumerate(names, start=FIRST_ROW):
+            pts = []
+            for k, fr in enumerate(demo.FRACTIONS):
+                if demo.DEMO_GROUP.get((fr.sample, fr.system)) != name:
+                    continue
+                p = [vals.get(("Results", FIRST_ROW + k, RESULTS.col_index(q))) for q in ("x", "x_1s", "y", "y_1s",
+                                                                                          "rho")]
+                if all(isinstance(v, float) for v in p):
+                    pts.append(p)
+            if len(pts) >= 3:
+                fit = york_fit(*zip(*pts))
+                out[("Groups", g_row, GROUPS.col_index("mswd"))] = fit.mswd
+                out[("Groups", g_row, GROUPS.col_index("p"))] = fit.p_value
         return out
 
     def _compare(cells, got, ev):
         """Grid vs the batch path in the venv: values to REL_TOL, σ/ρ-derived cells to the named hard case."""
+        from reduction.workbook import GROUPS
+
         bad = []
         refit = _refit_from_grid(cells, got)
         vals = dict(zip(cells, got))
@@ -373,6 +379,13 @@ if __name__ != "__main__":
             if sheet == "Isochron" and row == q["age_95"] and col > ISOCHRON_SUMMARY_COL and isinstance(want, float):
                 # t·√MSWD-expanded: the batch value carried to the grid's own MSWD (see _refit_from_grid)
                 m_grid, m_batch = vals.get(("Isochron", q["mswd"], col)), ev.cells.get(("Isochron", q["mswd"], col))
+                if isinstance(m_grid, float) and isinstance(m_batch, float):
+                    want *= (max(m_grid, 1.0) / max(m_batch, 1.0)) ** 0.5
+            if sheet == "Groups" and row <= GROUPS.last_row and col == GROUPS.col_index("age_95") and \
+                    isinstance(want, float):
+                # the same carry on the Groups sheet (its MSWD is refitted to the grid's points)
+                mcol = GROUPS.col_index("mswd")
+                m_grid, m_batch = vals.get(("Groups", row, mcol)), ev.cells.get(("Groups", row, mcol))
                 if isinstance(m_grid, float) and isinstance(m_batch, float):
                     want *= (max(m_grid, 1.0) / max(m_batch, 1.0)) ** 0.5
             tol = REL_TOL_SIGMA_ACROSS_NUMPY if _is_sigma(key) else REL_TOL
