@@ -139,14 +139,24 @@ def compat_run(ver: tuple, exe: Path) -> int:
 
 
 def cmd_bench(args: list) -> int:
+    """Run ``tests/bench/bench_*.py`` (those whose name contains an argument, when given) one after the other.
+
+    Each prints its figures next to their targets with PASS/FAIL and exits 1 when a target is missed; this
+    exits 1 when any benchmark did, after a last line naming them.
+    """
     benches = sorted((ROOT / "tests" / "bench").glob("bench_*.py"))
     if args:
         benches = [b for b in benches if any(a in b.name for a in args)]
-    worst = 0
+    if not benches:
+        print(f"no benchmark matches {' '.join(args)}", flush=True)
+        return 2
+    failed = []
     for b in benches:
         print(f"\n=== {b.name} ===", flush=True)
-        worst = max(worst, run(PY, b, check=False))
-    return worst
+        if run(PY, b, check=False) != 0:
+            failed.append(b.stem)
+    print(f"\nbenchmarks failed ({len(failed)} of {len(benches)}): {', '.join(failed) or 'none'}", flush=True)
+    return 1 if failed else 0
 
 
 COMMANDS = {"demo": cmd_demo, "test": cmd_test, "bench": cmd_bench, "oxt": cmd_oxt,

@@ -375,7 +375,7 @@ FUNCTIONS: Tuple[Function, ...] = (
               _v("external", "Optional: TRUE to add an external scatter, estimated by maximum likelihood, to every "
                              "sigma (default FALSE).")),
              "regression.weighted_mean", "array"),
-    # -- the template workbook (reduction/workbook.py evaluates the same cells in batch) -----------
+    # -- the template workbook (reduction/workbook/ evaluates the same cells in batch) -----------
     Function("rdWorkbookAnalysis", "RD.WORKBOOK.ANALYSIS", "workbook",
              "One result of one analysis of the RatioDesk template, computed from its sheets' tables (the "
              "Results sheet's cells).",

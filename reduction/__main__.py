@@ -1,6 +1,6 @@
 """``python -m reduction`` is the ``ratiodesk`` command."""
 import sys
 
-from .cli import main
+from .workbook.cli import main
 
 sys.exit(main())

@@ -173,10 +173,18 @@ def finite_result(what: str, **values: Any) -> None:
     for k, v in values.items():
         if v is None:
             continue
+        if type(v) is float:       # the common case, without an array round trip
+            if v - v == 0.0:       # False for inf and NaN alone
+                continue
+            _not_finite(what, k)
         a = np.asarray(v)
         if a.dtype.kind not in "fc":
             a = a.astype(float)
         if a.size and not np.all(np.isfinite(a)):
-            raise UndefinedResultError(
-                f"{what}: the {k} is not a finite number (the inputs are so large, so small or so close "
-                "together that double precision cannot hold the result); check the inputs and their units")
+            _not_finite(what, k)
+
+
+def _not_finite(what: str, k: str) -> None:
+    raise UndefinedResultError(
+        f"{what}: the {k} is not a finite number (the inputs are so large, so small or so close "
+        "together that double precision cannot hold the result); check the inputs and their units")

@@ -574,7 +574,8 @@ def reduce_spiked_analysis(system: Union[str, IsotopeSystem], parent_mix: Mappin
     # (or its σ, for inputs that are 0) so that h² terms vanish below double precision.
     steps = 1e-20 * np.maximum(np.abs(x0), np.array(sig))
     steps[steps == 0] = 1e-20
-    prop = propagate_linear(model, x0, cov, groups=groups, names=OUTPUTS, method="complex", abs_step=steps)
+    prop = propagate_linear(model, x0, cov, groups=groups, names=OUTPUTS, method="complex", abs_step=steps,
+                            value=y0)
     cov_y = prop.cov
     cr = prop.parts.get("random", np.zeros((4, 4)))
     cs = prop.parts.get("systematic", np.zeros((4, 4)))

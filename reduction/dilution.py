@@ -22,6 +22,7 @@ practice) is M = R_mix·|R_s − R_t| / (|R_mix − R_s|·|R_t − R_mix|), smal
 """
 from __future__ import annotations
 
+import functools
 import json
 import math
 from dataclasses import dataclass, replace
@@ -35,7 +36,7 @@ from ._validate import as_count, as_name, as_scalar, broadcast_shape, finite_res
 from .composition import NaturalComposition, natural_composition
 from .constants import isotope_mass, normalising_ratio
 from .errors import ConvergenceError, InputError, UndefinedResultError
-from .massbias import _checked, bias_correct
+from .massbias import _checked, _factor, _gain, _law
 from .massbias import _out as _bias_out
 from .massbias import bias_factor as _bias_factor_of
 
@@ -81,12 +82,21 @@ def _el(iso: str) -> str:
 
 def element_isotopes(element: str) -> Tuple[str, ...]:
     """Isotopes of an element listed in the reference data (``reduction/data/isotopes.json``)."""
-    # the isotope table is the single source; constants exposes entries one at a time only
-    table = constants._load("isotopes")["isotopes"]  # noqa: SLF001 - same package, read-only
-    isos = tuple(k for k in table if _el(k) == element)
+    isos = _isotopes_by_element().get(element) if isinstance(element, str) else None
     if not isos:
         raise InputError("element", f"no isotope data for element {element!r}")
     return isos
+
+
+@functools.lru_cache(maxsize=1)
+def _isotopes_by_element() -> Dict[str, Tuple[str, ...]]:
+    """Element -> its isotopes in the table's order (the table is read once per process)."""
+    # the isotope table is the single source; constants exposes entries one at a time only
+    table = constants._load("isotopes")["isotopes"]  # noqa: SLF001 - same package, read-only
+    out: Dict[str, Tuple[str, ...]] = {}
+    for k in table:
+        out[_el(k)] = out.get(_el(k), ()) + (k,)
+    return out
 
 
 def sample_composition(element: str, reference_isotope: str,
@@ -560,8 +570,14 @@ def _isotope_dilution(spike: Spike, element: str, ref: str, k_iso: str, n_iso: O
     fixed_free = set(sample_ratios or {})
     free = [i for i in meas if i not in (k_iso, n_iso) and f"{i}/{ref}" not in fixed_free]
 
+    law_name = _law(law)
+    m_arr = {i: np.asarray(m, dtype=float) for i, m in mass.items()}
+    m_r_arr = np.asarray(m_r, dtype=float)
+
     def corr(i: str, beta: Any) -> Any:
-        return bias_correct(meas[i], mass[i], m_r, beta, law)
+        # bias_correct's arithmetic without its argument checks: the ratios, masses and law are checked
+        # above, and _gain refuses a factor that overflows (every pass, a few per analysis, on the hot path)
+        return meas[i] * _gain(m_arr[i], m_r_arr, np.asarray(beta), law_name)
 
     rule = (f"iterate until |({n_iso}/{ref})_sample / true - 1| < {tol:g} (max {max_iter} passes)"
             if n_iso else "external bias factor: no iteration")
@@ -583,7 +599,7 @@ def _isotope_dilution(spike: Spike, element: str, ref: str, k_iso: str, n_iso: O
             if it >= max_iter:
                 raise ConvergenceError(f"isotope dilution: spike stripping with {norm_ratio} did not converge in "
                                        f"{max_iter} iterations (worst misfit {float(np.max(mis)):.3g}; rule: {rule})")
-            beta = beta + np.asarray(_bias_factor_of(s_n, r_true, mass[n_iso], m_r, law))
+            beta = beta + np.asarray(_factor(s_n, r_true, m_arr[n_iso], m_r_arr, law_name)[0])
     else:
         beta = np.asarray(bias_factor)
         it = 1

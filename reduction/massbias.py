@@ -163,6 +163,14 @@ def bias_factor(measured_norm: Any, true_norm: Any, mass_num: Any, mass_den: Any
     rt = _positive("true_norm", true_norm)
     mk, ml = _check_masses(mass_num, mass_den)
     broadcast_shape(measured_norm=rm, true_norm=rt, mass_num=mk, mass_den=ml)
+    f, q = _factor(rm, rt, mk, ml, law)
+    finite_result("mass-bias factor", **{"bias factor": f, "ratio true/measured": q})
+    return _out(f)
+
+
+def _factor(rm: Any, rt: Any, mk: Any, ml: Any, law: str) -> Tuple[Any, Any]:
+    """(factor, true/measured) of :func:`bias_factor` on checked inputs (``law`` already read by ``_law``);
+    for the engine's inner loops (the spike-stripping iteration), which check their own results."""
     with np.errstate(**_QUIET):
         q = rt / rm
         if law == "exponential":
@@ -171,8 +179,7 @@ def bias_factor(measured_norm: Any, true_norm: Any, mass_num: Any, mass_den: Any
             f = q ** (1.0 / (mk - ml)) - 1.0
         else:
             f = (q - 1.0) / (mk - ml)
-    finite_result("mass-bias factor", **{"bias factor": f, "ratio true/measured": q})
-    return _out(f)
+    return f, q
 
 
 def bias_correct(measured: Any, mass_num: Any, mass_den: Any, factor: Any, law: str = "exponential") -> Any:

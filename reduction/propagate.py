@@ -229,7 +229,7 @@ class Propagated:
 
 def propagate_linear(f: Model, x: Any, cov: Any, *, groups: Optional[Mapping[str, Sequence[int]]] = None,
                      names: Sequence[str] = (), method: str = "central", rel_step: float = 1e-6,
-                     abs_step: Optional[Sequence[float]] = None) -> Propagated:
+                     abs_step: Optional[Sequence[float]] = None, value: Optional[Any] = None) -> Propagated:
     """First-order propagation cov_y = J cov_x Jᵀ (GUM, JCGM 100:2008, eq. 13), with a split by input group.
 
     Parameters
@@ -245,6 +245,10 @@ def propagate_linear(f: Model, x: Any, cov: Any, *, groups: Optional[Mapping[str
         covariances are ignored in the parts (they are included in ``cov``).
     names : sequence of str
         Output names, carried into the result.
+    value : array_like (n_out,), optional
+        ``f(x)`` when the caller has already evaluated it (it is then not evaluated again: a model that
+        costs milliseconds, such as a whole reduction chain, is called once for its value and once for its
+        Jacobian).
     """
     x0 = _vec("x", x, min_len=1)
     c = _cov(cov, x0.size)
@@ -263,9 +267,13 @@ def propagate_linear(f: Model, x: Any, cov: Any, *, groups: Optional[Mapping[str
         index[g] = ii.astype(int)
     J = jacobian(f, x0, method=method, rel_step=rel_step, abs_step=abs_step)
     try:
-        y0 = np.asarray(f(x0), dtype=float).ravel()
+        y0 = np.asarray(f(x0) if value is None else value, dtype=float).ravel()
     except (TypeError, ValueError, OverflowError):
-        raise InputError("f", "the model returned something that is not an array of numbers") from None
+        raise InputError("f" if value is None else "value",
+                         "the model returned something that is not an array of numbers" if value is None
+                         else "must be an array of numbers (the model's value at x)") from None
+    if value is not None and y0.size != J.shape[0]:
+        raise InputError("value", f"holds {y0.size} numbers but the model has {J.shape[0]} outputs")
     if y0.size != J.shape[0]:
         raise InputError("f", f"returns {y0.size} outputs for one point but {J.shape[0]} per column of a batch: "
                               "it must be vectorised over the trailing axis")

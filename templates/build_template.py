@@ -3,8 +3,8 @@
 
     .venv/bin/python templates/build_template.py [--out DIR]
 
-The sheets, columns and formulas come from the single definition in ``reduction/workbook.py``;
-the demo data from ``reduction/demo.py`` (an invented, forward-modelled scenario). Computed cells
+The sheets, columns and formulas come from the single definition in ``reduction/workbook/``;
+the demo data from ``reduction/workbook/demo.py`` (an invented, forward-modelled scenario). Computed cells
 carry the engine's values as cached values, so the files show numbers before any recalculation.
 """
 from __future__ import annotations
@@ -19,8 +19,8 @@ sys.path[:0] = [str(ROOT), str(HERE)]
 
 from odswriter import write_ods  # noqa: E402
 
-from reduction.demo import demo_layout  # noqa: E402
 from reduction.workbook import build_layout, write_xlsx  # noqa: E402
+from reduction.workbook.demo import demo_layout  # noqa: E402
 
 TEMPLATE = "ratiodesk-template"
 DEMO = "ratiodesk-demo"

@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 from cases import CYC, MARK, SLOPE, SX, SY, X, Y
 
-from reduction import cycles, demo, regression, standards
-from reduction.workbook import SHEETS, build_layout, layout_grid, sheet_block
+from reduction import cycles, regression, standards
+from reduction.workbook import SHEETS, build_layout, demo, layout_grid, sheet_block
 
 #: "No single cell call may take more than a few seconds" (issue 10).
 BUDGET_S = 5.0

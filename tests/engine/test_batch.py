@@ -7,9 +7,7 @@ import hashlib
 import pytest
 from openpyxl import load_workbook
 
-import reduction.demo as demo
-from reduction.batch import reduce_workbook, write_demo_workbook
-from reduction.cli import main
+import reduction.workbook.demo as demo
 from reduction.workbook import (
     FIRST_ROW,
     ISOCHRON_FIRST_Q_ROW,
@@ -20,6 +18,8 @@ from reduction.workbook import (
     build_layout,
     write_xlsx,
 )
+from reduction.workbook.batch import reduce_workbook, write_demo_workbook
+from reduction.workbook.cli import main
 
 Q = {q: i for i, (q, _l, _u) in enumerate(ISOCHRON_QUANTITIES)}
 

@@ -2,7 +2,7 @@
 silently, no traceback on a foreign file, no logical value read as a number.
 
 Every test goes the user's way: it writes a workbook (``build_layout`` + ``write_xlsx`` or the .ods
-writer), runs ``ratiodesk reduce BOOK -o DIR`` through :func:`reduction.cli.main`, reads the exit
+writer), runs ``ratiodesk reduce BOOK -o DIR`` through :func:`reduction.workbook.cli.main`, reads the exit
 status, stderr and ``results.xlsx``, and checks that the input file's bytes are unchanged.
 """
 from __future__ import annotations
@@ -18,8 +18,7 @@ from pathlib import Path
 import pytest
 from openpyxl import load_workbook
 
-import reduction.demo as demo
-from reduction.cli import main
+import reduction.workbook.demo as demo
 from reduction.workbook import (
     CAPACITY_CELL,
     CONSTANTS,
@@ -43,6 +42,7 @@ from reduction.workbook import (
     read_workbook,
     write_xlsx,
 )
+from reduction.workbook.cli import main
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2] / "templates"))
 from odswriter import write_ods  # noqa: E402

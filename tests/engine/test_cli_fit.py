@@ -1,4 +1,4 @@
-"""``ratiodesk isochron`` / ``ratiodesk wmean`` through reduction.cli.main (and once via subprocess).
+"""``ratiodesk isochron`` / ``ratiodesk wmean`` through reduction.workbook.cli.main (and once via subprocess).
 
 Numbers are checked against the Pearson (1901) data with York (1966) weights (REFERENCE.md §6a)
 and against the engine functions; bad input must give one line naming the file line and column.
@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from reduction.cli import main
+from reduction.workbook.cli import main
 
 DATA = Path(__file__).with_name("data")
 PEARSON = DATA / "pearson_york.csv"

@@ -11,7 +11,7 @@ import math
 
 import pytest
 
-import reduction.demo as demo
+import reduction.workbook.demo as demo
 from reduction.workbook import (
     FIRST_ROW,
     ISOCHRON_FIRST_Q_ROW,

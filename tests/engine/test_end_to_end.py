@@ -25,7 +25,6 @@ from openpyxl import load_workbook
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import independent_forward as ind  # noqa: E402
 
-from reduction.cli import main  # noqa: E402
 from reduction.workbook import (  # noqa: E402
     FIRST_ROW,
     ISOCHRON_BLOCK,
@@ -38,6 +37,7 @@ from reduction.workbook import (  # noqa: E402
     build_layout,
     write_xlsx,
 )
+from reduction.workbook.cli import main  # noqa: E402
 
 LAMBDA = {"sm-nd": 6.54e-12, "lu-hf": 1.867e-11, "rb-sr": 1.42e-11}
 # NIST SRM 987 87Sr/86Sr = 0.710248 (Thirlwall 1991, Chem. Geol. 94, 85; recalled from memory)

@@ -29,9 +29,9 @@ from hypothesis import strategies as st
 
 import reduction
 from reduction import ages, blank, cycles, dilution, interference, massbias, propagate, regression, standards
-from reduction.cli import main as cli_main
 from reduction.composition import natural_composition
 from reduction.errors import InputError, RatioDeskError, UndefinedResultError
+from reduction.workbook.cli import main as cli_main
 
 NAN, INF = float("nan"), float("inf")
 #: The awkward numbers every argument is tried with.

@@ -18,7 +18,6 @@ import pytest
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import test_end_to_end as e2e  # noqa: E402
 
-from reduction.cli import main  # noqa: E402
 from reduction.workbook import (  # noqa: E402
     FIRST_ROW,
     GROUP_POINTS_TOP,
@@ -26,6 +25,7 @@ from reduction.workbook import (  # noqa: E402
     KEY_ROW,
     SAMPLES,
 )
+from reduction.workbook.cli import main  # noqa: E402
 
 
 def _group_set(spec, prefix, group):

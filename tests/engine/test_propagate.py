@@ -33,6 +33,27 @@ def test_linear_equals_analytic_formula_for_a_ratio():
     assert p.names == ("a/b", "a*c")
 
 
+def test_a_value_given_is_used_as_is_and_a_wrong_one_is_refused():
+    # the model is not called for its value when the caller passes it; the covariance is the model's own
+    calls = []
+
+    def counted(X):
+        calls.append(np.asarray(X).ndim)
+        return ratio_product(X)
+
+    x = np.array([0.5121, 0.7219, 3.0])
+    s = np.array([5e-6, 4e-6, 0.01])
+    plain = propagate_linear(ratio_product, x, s ** 2, method="complex", rel_step=1e-20)
+    given_y = propagate_linear(counted, x, s ** 2, method="complex", rel_step=1e-20, value=ratio_product(x))
+    assert calls == [2]                                     # one batch call (the Jacobian), no call at x
+    np.testing.assert_array_equal(given_y.value, plain.value)
+    np.testing.assert_array_equal(given_y.cov, plain.cov)
+    with pytest.raises(InputError, match="value"):
+        propagate_linear(ratio_product, x, s ** 2, value=[1.0, 2.0, 3.0])
+    with pytest.raises(InputError, match="value"):
+        propagate_linear(ratio_product, x, s ** 2, value="a")
+
+
 def test_groups_split_adds_up_when_groups_are_independent():
     x = np.array([0.5121, 0.7219, 3.0])
     s = np.array([5e-6, 4e-6, 0.01])

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-import reduction.demo as demo
+import reduction.workbook.demo as demo
 from reduction.errors import InputError
 from reduction.workbook import (
     CONSTANTS,

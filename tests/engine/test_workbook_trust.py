@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-import reduction.demo as demo
+import reduction.workbook.demo as demo
 from reduction.regression import wendt_carl_limits
 from reduction.workbook import (
     CONSTANTS,

@@ -160,7 +160,7 @@ def _driver_main() -> int:
 if __name__ != "__main__":
     import pytest
 
-    import reduction.demo as demo
+    import reduction.workbook.demo as demo
     from reduction.workbook import (
         CAPACITY_CELL,
         CONSTANTS,

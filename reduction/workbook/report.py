@@ -159,7 +159,7 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
     import numpy as np
     from matplotlib.patches import Polygon
 
-    from .regression import ellipse_points
+    from ..regression import ellipse_points
 
     fig, (ax, axr) = plt.subplots(2, 1, figsize=(8.27, 11.69), gridspec_kw={"height_ratios": [3, 1.4]})
     xl, yl = _axis_labels(p.system)
@@ -324,8 +324,25 @@ def _wrapped_table(ax: Any, header: Sequence[str], cells: Sequence[Sequence[str]
             cell._loc = "left" if wrap[_c] else "right"
 
 
-def write_report(data: ReportData, path: Any) -> None:
-    """Write the PDF report to ``path``."""
+#: Rows of each per-analysis table the report prints by default (10 pages); every analysis is on the Results
+#: sheet of results.xlsx whatever this is, and a table that stops here says so in its title and notes.
+REPORT_ROWS = 260
+
+
+def table_cut_note(shown_rows: int, total: int) -> str:
+    """The note of a per-analysis table that lists only its first ``shown_rows`` of ``total`` analyses."""
+    return (f"This table lists the first {shown_rows:,} of {total:,} analyses (the report's limit, set with "
+            f"`ratiodesk reduce --report-rows N`, 0 = all); every analysis is on the Results sheet of results.xlsx, "
+            "written with this report.")
+
+
+def write_report(data: ReportData, path: Any, *, max_rows: int = REPORT_ROWS) -> None:
+    """Write the PDF report to ``path``.
+
+    ``max_rows`` bounds the rows of each per-analysis table (0 = every analysis): drawing a table page costs
+    about a second, so a report of thousands of analyses would take minutes and run to hundreds of pages. A
+    table that stops at the bound says so in its title and in a note naming results.xlsx, which holds them all.
+    """
     import matplotlib
 
     matplotlib.use("Agg", force=True)
@@ -344,10 +361,15 @@ def write_report(data: ReportData, path: Any) -> None:
                           for k in ("analysis", "sample", "fraction", "system"))
         for title, spec, widths in (("Concentrations per analysis", _TABLE_CONC, None),
                                     ("Isochron inputs per analysis", _TABLE_RATIOS, None)):
-            rows = [tuple(f(r.get(k, "")) for k, _h, f in spec) for r in data.results]
+            shown_results = data.results[:max_rows] if max_rows > 0 else data.results
+            rows = [tuple(f(r.get(k, "")) for k, _h, f in spec) for r in shown_results]
+            cut = len(shown_results) < len(data.results)
+            if cut:
+                title += f" (first {len(shown_results):,} of {len(data.results):,})"
             _table_pages(pdf, title, tuple(h for _k, h, _f in spec), rows, data, col_widths=widths, fontsize=7,
-                         notes=legend + ((SHORTENED_NOTE,) if long_labels else ()) + tuple(data.notes))
-        from .workbook import ISOCHRON_QUANTITIES
+                         notes=(((table_cut_note(len(shown_results), len(data.results)),) if cut else ()) + legend
+                                + ((SHORTENED_NOTE,) if long_labels else ()) + tuple(data.notes)))
+        from .sheets import ISOCHRON_QUANTITIES
 
         iso_rows: List[Tuple[Any, ...]] = []
         for q, label, unit in ISOCHRON_QUANTITIES:
@@ -362,7 +384,7 @@ def write_report(data: ReportData, path: Any) -> None:
                             "enters the total only (first order, added in quadrature). The reference-material "
                             "accepted value scales every y alike and is not included (its relative σ is far smaller).",
                             CAUTION))
-        from .workbook import PROVENANCE_HEADER
+        from .provenance import PROVENANCE_HEADER
 
         _table_pages(pdf, "Reference values used (Constants sheet)", PROVENANCE_HEADER, data.constants, data,
                      col_widths=(0.11, 0.13, 0.08, 0.07, 0.27, 0.04, 0.30), fontsize=6, rows_per_page=12,

@@ -25,10 +25,10 @@ from typing import Any, Dict, List, Mapping, Tuple
 
 import numpy as np
 
-from .composition import natural_composition
-from .constants import isotope_mass, reference_material, reference_set
-from .dilution import Spike, element_isotopes, forward_mixture, make_spike, sample_composition
-from .systems import get_system
+from ..composition import natural_composition
+from ..constants import isotope_mass, reference_material, reference_set
+from ..dilution import Spike, element_isotopes, forward_mixture, make_spike, sample_composition
+from ..systems import get_system
 
 __all__ = ["DEMO_SEED", "FRACTIONS", "LAB_SIGMAS", "SCENARIO", "TRUE_AGES_MA", "DemoFraction", "demo_constants",
            "demo_spikes", "demo_tables", "true_values"]
@@ -334,7 +334,7 @@ def demo_selection() -> Dict[str, List[Tuple[str, int]]]:
 
 def demo_constants() -> List[Dict[str, Any]]:
     """The Constants rows of the demo: the default reference set with the invented lab's σ defaults."""
-    from .workbook import constants_rows
+    from .provenance import constants_rows
 
     rows = constants_rows()
     for row in rows:
@@ -346,7 +346,8 @@ def demo_constants() -> List[Dict[str, Any]]:
 
 def demo_layout(seed: int = DEMO_SEED) -> Any:
     """The demo workbook's cells (inputs filled, computed cells carrying engine values)."""
-    from .workbook import ABOUT_LINES, build_layout, evaluate, fill_values, layout_grid
+    from .evaluate import evaluate
+    from .layout import ABOUT_LINES, build_layout, fill_values, layout_grid
 
     about = (("RatioDesk demo workbook — invented data", "title"),
              (SCENARIO["note"], "note"), ("", "plain"),

@@ -3,7 +3,7 @@
 The commands read a CSV with a header line, check every cell (a bad cell is reported by the
 line number the user sees in the file and the column name), convert the uncertainties to 1σ
 absolute, call :mod:`reduction.regression` / :mod:`reduction.ages`, and print a table or one
-JSON object. Errors are raised as :class:`~reduction.errors.InputError`; ``reduction.cli``
+JSON object. Errors are raised as :class:`~reduction.errors.InputError`; ``reduction.workbook.cli``
 turns them into one line and exit status 1.
 """
 from __future__ import annotations
@@ -17,11 +17,11 @@ from typing import Any, Dict, List, Optional, Sequence, Tuple
 
 import numpy as np
 
-from .ages import isochron_age
-from .constants import list_reference_sets, reference_set
-from .errors import InputError
-from .regression import TREATMENTS, IsochronFit, fit_isochron, mswd_notes, mswd_position, weighted_mean
-from .systems import SYSTEMS, get_system
+from ..ages import isochron_age
+from ..constants import list_reference_sets, reference_set
+from ..errors import InputError
+from ..regression import TREATMENTS, IsochronFit, fit_isochron, mswd_notes, mswd_position, weighted_mean
+from ..systems import SYSTEMS, get_system
 
 __all__ = ["add_arguments_isochron", "add_arguments_wmean", "read_columns", "run_isochron", "run_wmean"]
 

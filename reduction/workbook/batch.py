@@ -20,12 +20,17 @@ import sys
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Dict, List, Mapping, Sequence, Tuple
+from typing import Any, Callable, Dict, List, Mapping, Optional, Sequence, Tuple
 
-from . import __version__
-from .errors import RatioDeskError
-from .workbook import (
-    FIRST_ROW,
+from .. import __version__
+from .._validate import as_count
+from ..errors import RatioDeskError
+from .evaluate import Evaluation, evaluate, sheet_block, table_extent
+from .files import check_sheets, read_workbook
+from .formulas import formula_drift
+from .layout import build_layout, fill_values
+from .provenance import PROVENANCE_HEADER, provenance_constant_rows
+from .sheets import (
     GROUP_CHART_ROW,
     GROUPS,
     ISOCHRON,
@@ -35,26 +40,12 @@ from .workbook import (
     ISOCHRON_SUMMARY_COL,
     ISOCHRON_SYSTEMS,
     ISOCHRON_TREATMENT_ROW,
-    KEY_ROW,
-    MARKER,
-    PROVENANCE_HEADER,
     RESULTS,
     SHEET_BY_NAME,
     STANDARDS,
-    Evaluation,
-    FormulaCell,
-    WorkbookData,
-    build_layout,
-    check_sheets,
-    evaluate,
-    fill_values,
-    formula_drift,
-    provenance_constant_rows,
-    read_workbook,
-    sheet_block,
-    table_extent,
-    write_xlsx,
 )
+from .values import FIRST_ROW, KEY_ROW, MARKER, FormulaCell
+from .xlsx import WorkbookData, write_xlsx
 
 __all__ = ["BatchError", "ReduceOutcome", "add_arguments_demo", "add_arguments_reduce", "reduce_workbook",
            "run_demo", "run_reduce", "tables_from_grid", "write_demo_workbook"]
@@ -201,8 +192,10 @@ def _report_data(data: WorkbookData, ev: Evaluation, tables: Mapping[str, Any], 
 
 def _group_panels(data: WorkbookData, ev: Evaluation) -> List[Any]:
     """One report panel per fitted row of the Groups sheet (its points from the Samples rows of the group)."""
+    from .evaluate import table_extent
+    from .isochrons import group_points
     from .report import IsochronPanel, _axis_labels
-    from .workbook import SAMPLES, group_points, table_extent
+    from .sheets import SAMPLES
 
     sam = sheet_block(data.grid, "Samples", KEY_ROW, 0, table_extent(data.grid, SAMPLES), SAMPLES.input_width - 1)
     last = max((r for (sheet, r, _c) in ev.cells if sheet == "Results"), default=RESULTS.last_row)
@@ -248,7 +241,7 @@ def _standards_summary(grid: Mapping[str, Any], ev: Evaluation) -> Tuple[Tuple[A
 
 def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str], None]) -> List[Tuple[Any, ...]]:
     """Monte Carlo σ of every analysis (seeded), reported beside the linear σ."""
-    from .workbook import BookTables
+    from .evaluate import BookTables
 
     book = BookTables(ev_grid)
     ids = [r[0] for r in book.rows["Samples"][1:] if r and r[0] != ""]
@@ -263,10 +256,16 @@ def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str
     return out
 
 
-def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
+def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0, report_rows: Optional[int] = None,
                     progress: Callable[[str], None] = lambda s: None) -> ReduceOutcome:
-    """Reduce one workbook; write results.xlsx and report.pdf into ``out_dir``."""
-    from .report import write_report
+    """Reduce one workbook; write results.xlsx and report.pdf into ``out_dir``.
+
+    ``report_rows`` bounds the rows of the report's per-analysis tables (default
+    :data:`~reduction.workbook.report.REPORT_ROWS`, 0 = all); results.xlsx always holds every analysis.
+    """
+    from .report import REPORT_ROWS, write_report
+
+    max_rows = REPORT_ROWS if report_rows is None else as_count("report_rows", report_rows, 0, 10 ** 9)
 
     t0 = time.perf_counter()
     data = read_workbook(path)
@@ -298,7 +297,10 @@ def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0,
     report = out / "report.pdf"
     progress("drawing the report")
     t2 = time.perf_counter()
-    write_report(_report_data(data, ev, tables, constants, selection, treatments, now), report)
+    write_report(_report_data(data, ev, tables, constants, selection, treatments, now), report, max_rows=max_rows)
+    if 0 < max_rows < n:
+        progress(f"the report's per-analysis tables list the first {max_rows:,} of {n:,} analyses (--report-rows 0 "
+                 "lists all); results.xlsx holds every analysis")
     progress(f"report drawn ({time.perf_counter() - t2:.1f} s; {time.perf_counter() - t0:.1f} s in all)")
     names = {FIRST_ROW + i: str(_shown_value(r[0])).strip()
              for i, r in enumerate(sheet_block(data.grid, "Groups", FIRST_ROW, 0, GROUPS.last_row, 0)) if r[0] != ""}
@@ -313,6 +315,9 @@ def add_arguments_reduce(p: argparse.ArgumentParser) -> None:
     p.add_argument("-o", "--out", default="out/reduce", help="output directory (default: out/reduce)")
     p.add_argument("--mc", type=int, default=0, metavar="N",
                    help="also run a seeded Monte Carlo with N draws per analysis (progress is shown)")
+    p.add_argument("--report-rows", type=int, default=None, metavar="N",
+                   help="rows of each per-analysis table in report.pdf (default 260; 0 = every analysis); "
+                        "results.xlsx always holds every analysis")
 
 
 def _progress(msg: str) -> None:
@@ -359,7 +364,8 @@ def _summarise(outcome: ReduceOutcome) -> None:
 
 
 def run_reduce(args: argparse.Namespace) -> int:
-    outcome = reduce_workbook(args.workbook, args.out, mc_draws=args.mc, progress=_progress)
+    outcome = reduce_workbook(args.workbook, args.out, mc_draws=args.mc, report_rows=args.report_rows,
+                              progress=_progress)
     _summarise(outcome)
     return 0
 

@@ -11,15 +11,15 @@ import importlib
 import sys
 from typing import List, Optional
 
-from . import __version__
-from .errors import RatioDeskError
+from .. import __version__
+from ..errors import RatioDeskError
 
 # name -> (module, one-line help)
 SUBCOMMANDS = {
-    "demo": ("reduction.batch", "reduce the embedded demo workbook into out/demo/ (report + results)"),
-    "reduce": ("reduction.batch", "reduce a filled RatioDesk workbook (.xlsx or .ods) without LibreOffice"),
-    "isochron": ("reduction.cli_fit", "fit an isochron (York regression) to a CSV of x, sx, y, sy, rho"),
-    "wmean": ("reduction.cli_fit", "weighted mean of a CSV of value, sigma"),
+    "demo": ("reduction.workbook.batch", "reduce the embedded demo workbook into out/demo/ (report + results)"),
+    "reduce": ("reduction.workbook.batch", "reduce a filled RatioDesk workbook (.xlsx or .ods) without LibreOffice"),
+    "isochron": ("reduction.workbook.cli_fit", "fit an isochron (York regression) to a CSV of x, sx, y, sy, rho"),
+    "wmean": ("reduction.workbook.cli_fit", "weighted mean of a CSV of value, sigma"),
 }
 
 
