@@ -256,6 +256,12 @@ def _monte_carlo(ev_grid: Mapping[str, Any], draws: int, progress: Callable[[str
     return out
 
 
+#: The sheet of results.xlsx that lists every warning of the reduction (the report prints the first ones).
+WARNINGS_SHEET = "Warnings"
+#: Warnings the command prints; the rest are counted (all are on the Warnings sheet).
+PRINTED_WARNINGS = 20
+
+
 def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0, report_rows: Optional[int] = None,
                     progress: Callable[[str], None] = lambda s: None) -> ReduceOutcome:
     """Reduce one workbook; write results.xlsx and report.pdf into ``out_dir``.
@@ -290,6 +296,9 @@ def reduce_workbook(path: Any, out_dir: Any, *, mc_draws: int = 0, report_rows: 
     lay["Groups"][(GROUP_CHART_ROW, 1)].value = _shown_value(drawn)
     fill_values(lay, ev)
     extra = {"Provenance": _provenance(data, constants, tables.get("Spikes", ()), now, drift)}
+    warned = tuple(drift) + tuple(ev.warnings)
+    if warned:
+        extra[WARNINGS_SHEET] = [("Warning (where: what)",)] + [(w,) for w in warned]
     if mc_draws:
         extra["Monte Carlo"] = _monte_carlo(data.grid, mc_draws, progress)
     results = out / "results.xlsx"
@@ -357,8 +366,11 @@ def _summarise(outcome: ReduceOutcome) -> None:
     if checks:
         print(f"  {len(checks)} analyses have Check warnings (Results column {RESULTS.letter('check')}), "
               f"e.g. row {checks[0][0]}: {checks[0][1].lstrip(MARKER)}")
-    for w in outcome.warnings:
+    for w in outcome.warnings[:PRINTED_WARNINGS]:
         print(f"  warning: {w}")
+    if len(outcome.warnings) > PRINTED_WARNINGS:
+        print(f"  … and {len(outcome.warnings) - PRINTED_WARNINGS:,} more warnings: every one is on the "
+              f"{WARNINGS_SHEET} sheet of {outcome.results_xlsx.name}")
     print(f"wrote {outcome.results_xlsx}")
     print(f"wrote {outcome.report_pdf}")
 

@@ -9,7 +9,7 @@ rest on, with the caution that the results depend on them.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, List, Mapping, Optional, Sequence, Tuple
+from typing import Any, Dict, List, Mapping, Optional, Sequence, Tuple
 
 __all__ = ["CAUTION", "IsochronPanel", "ReportData", "write_report"]
 
@@ -154,10 +154,14 @@ def _age_text(p: IsochronPanel) -> str:
     return "\n".join(lines)
 
 
+#: Points of an isochron page labelled with their analysis IDs (more would overprint each other).
+LABELLED_POINTS = 30
+
+
 def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
     import matplotlib.pyplot as plt
     import numpy as np
-    from matplotlib.patches import Polygon
+    from matplotlib.collections import PolyCollection
 
     from ..regression import ellipse_points
 
@@ -168,20 +172,36 @@ def _isochron_page(pdf: Any, p: IsochronPanel, data: ReportData) -> None:
     slope = p.summary.get("slope")
     inter = p.summary.get("initial")
     have_fit = isinstance(slope, float) and isinstance(inter, float)
+    labelled = len(pts) <= LABELLED_POINTS
+    polys: Dict[bool, List[Any]] = {True: [], False: []}
+    devs: Dict[bool, List[Any]] = {True: [], False: []}
     for aid, x, sx, y, sy, rho, used in pts:
         ex, ey = ellipse_points(x, sx, y, sy, rho, n_points=64, confidence=0.95)
-        face = "#4c72b0" if used else "none"
-        ax.add_patch(Polygon(np.column_stack([ex, ey]), closed=True, facecolor=face, alpha=0.55 if used else 1,
-                             edgecolor="#1f3a68" if used else "#999999", lw=0.8))
-        ax.plot([x], [y], marker="o", ms=3, color="#1f3a68" if used else "#999999")
-        ax.annotate(_label(aid), (x, y), xytext=(6, -10), textcoords="offset points", fontsize=7, color="#333333",
-                    parse_math=False)
+        polys[bool(used)].append(np.column_stack([ex, ey]))
+        if labelled:
+            ax.annotate(_label(aid), (x, y), xytext=(6, -10), textcoords="offset points", fontsize=7,
+                        color="#333333", parse_math=False)
         if have_fit:
             dev = (ey - (inter + slope * ex)) / (inter + slope * ex) * 1e6
-            axr.add_patch(Polygon(np.column_stack([ex, dev]), closed=True, facecolor=face, alpha=0.55 if used else 1,
-                                  edgecolor="#1f3a68" if used else "#999999", lw=0.8))
-            axr.annotate(_label(aid), (x, float(np.mean(dev))), xytext=(6, 0), textcoords="offset points",
-                         fontsize=7, parse_math=False)
+            devs[bool(used)].append(np.column_stack([ex, dev]))
+            if labelled:
+                axr.annotate(_label(aid), (x, float(np.mean(dev))), xytext=(6, 0), textcoords="offset points",
+                             fontsize=7, parse_math=False)
+    # one collection per style (used / not used) and axis: a page of a hundred points draws in a blink
+    for used in (True, False):
+        style = {"facecolors": "#4c72b0" if used else "none", "alpha": 0.55 if used else 1,
+                 "edgecolors": "#1f3a68" if used else "#999999", "linewidths": 0.8}
+        for axis, shapes in ((ax, polys[used]), (axr, devs[used])):
+            if shapes:
+                axis.add_collection(PolyCollection(shapes, closed=True, **style))
+        centres = [(q[1], q[3]) for q in pts if bool(q[6]) == used]
+        if centres:
+            ax.plot([c[0] for c in centres], [c[1] for c in centres], ls="none", marker="o", ms=3,
+                    color="#1f3a68" if used else "#999999")
+    if not labelled:
+        ax.text(0.98, 0.06, f"{len(pts)} points: not labelled (more than {LABELLED_POINTS}); the point list is on "
+                "the workbook's sheet", transform=ax.transAxes, ha="right", va="bottom", fontsize=7, color="#555555",
+                parse_math=False)
     span = xs.max() - xs.min() if len(xs) > 1 else 1.0
     lo, hi = xs.min() - 0.08 * span, xs.max() + 0.08 * span
     xx = np.linspace(max(lo, 0.0) if xs.min() >= 0 else lo, hi, 50)
@@ -324,6 +344,19 @@ def _wrapped_table(ax: Any, header: Sequence[str], cells: Sequence[Sequence[str]
             cell._loc = "left" if wrap[_c] else "right"
 
 
+#: Warnings printed under each table page; more are listed on the report's Warnings pages instead.
+NOTES_PER_PAGE = 6
+
+
+def _page_notes(notes: Sequence[str]) -> Tuple[str, ...]:
+    """The warnings printed under a table page: all of them when few, else a count pointing to the Warnings
+    pages (thousands of analyses can each carry one; printed on every page they would fill it)."""
+    if len(notes) <= NOTES_PER_PAGE:
+        return tuple(notes)
+    return (f"{len(notes):,} warnings: see the Warnings pages after the per-analysis tables and the Warnings sheet of "
+            "results.xlsx.",)
+
+
 #: Rows of each per-analysis table the report prints by default (10 pages); every analysis is on the Results
 #: sheet of results.xlsx whatever this is, and a table that stops here says so in its title and notes.
 REPORT_ROWS = 260
@@ -368,7 +401,14 @@ def write_report(data: ReportData, path: Any, *, max_rows: int = REPORT_ROWS) ->
                 title += f" (first {len(shown_results):,} of {len(data.results):,})"
             _table_pages(pdf, title, tuple(h for _k, h, _f in spec), rows, data, col_widths=widths, fontsize=7,
                          notes=(((table_cut_note(len(shown_results), len(data.results)),) if cut else ()) + legend
-                                + ((SHORTENED_NOTE,) if long_labels else ()) + tuple(data.notes)))
+                                + ((SHORTENED_NOTE,) if long_labels else ()) + _page_notes(data.notes)))
+        if len(data.notes) > NOTES_PER_PAGE:
+            shown_notes = data.notes[:max_rows] if max_rows > 0 else data.notes
+            _table_pages(pdf, "Warnings" + (f" (first {len(shown_notes):,} of {len(data.notes):,})"
+                                            if len(shown_notes) < len(data.notes) else ""),
+                         ("Warning (where: what)",), [(_printable(w),) for w in shown_notes], data, fontsize=7,
+                         rows_per_page=20, col_widths=(1.0,), wrap=(200,),
+                         notes=(f"Every warning ({len(data.notes):,}) is on the Warnings sheet of results.xlsx.",))
         from .sheets import ISOCHRON_QUANTITIES
 
         iso_rows: List[Tuple[Any, ...]] = []

@@ -44,13 +44,19 @@ sys.path[:0] = [str(ROOT / "tests" / "engine"), str(ROOT)]
 import test_end_to_end as e2e  # noqa: E402  (the end-to-end test's forward model and template filling)
 from openpyxl import load_workbook  # noqa: E402
 
-from reduction.workbook import FIRST_ROW, ISOCHRON_BLOCK, KEY_ROW, MAX_DATA_ROWS  # noqa: E402
+from reduction.workbook import FIRST_ROW, GROUPS, ISOCHRON_BLOCK, KEY_ROW, MAX_DATA_ROWS  # noqa: E402
 
 TARGET_ANALYSES = 5000
 TARGET_SECONDS = 10.0
 TARGET_RSS_BYTES = 1 << 30
-#: Analyses per isochron group (within the 120 points the Groups sheet's point list holds).
+#: Analyses per isochron group at least; more when the Groups table's rows (GROUPS.capacity) would not hold
+#: the groups otherwise (``ratiodesk reduce`` fits a group of any size).
 GROUP_SIZE = 100
+
+
+def group_size(n: int) -> int:
+    """Analyses per group for a book of ``n`` analyses: the groups fill at most the Groups table's rows."""
+    return max(GROUP_SIZE, math.ceil(n / GROUPS.capacity))
 #: Measured rows per analysis (a Sm run and a Nd run).
 RUNS_PER_ANALYSIS = 2
 LABEL = "demo-SmNd-149-150"
@@ -75,8 +81,9 @@ def tables(n: int):
     lam = e2e.LAMBDA["sm-nd"]
     samples, measured, truth = [], [], {}
     groups = []
+    size = group_size(n)
     for i in range(n):
-        g, k = divmod(i, GROUP_SIZE)
+        g, k = divmod(i, size)
         name = f"G{g + 1:03d}"
         if k == 0:
             groups.append({"group": name})
@@ -96,7 +103,7 @@ def tables(n: int):
             "Standards": e2e.standard_rows(SESSION, "JNdi-1", "143Nd/144Nd"),
             "Samples": samples, "Measured": measured, "Groups": groups}
     first, last = ISOCHRON_BLOCK["Sm-Nd"]
-    pick = {"Sm-Nd": list(truth)[:min(GROUP_SIZE, last - first + 1)]}
+    pick = {"Sm-Nd": list(truth)[:min(size, last - first + 1)]}
     return book, truth, pick
 
 
@@ -155,7 +162,7 @@ def main(argv=None) -> int:
         e2e.fill_template(book, book_tables, pick)
         t_fill = time.perf_counter() - t0
         print(f"bench_reduce: {n} invented spiked Sm-Nd analyses ({n * RUNS_PER_ANALYSIS} Measured runs, "
-              f"{math.ceil(n / GROUP_SIZE)} isochron groups); the template holds {cap} analyses "
+              f"{math.ceil(n / group_size(n))} isochron groups of {group_size(n)}); the template holds {cap} analyses "
               f"(MAX_DATA_ROWS = {MAX_DATA_ROWS} rows per sheet)")
         print(f"  forward model {t_model:.1f} s, template filled by its key row {t_fill:.1f} s "
               f"({book.stat().st_size / 1e6:.1f} MB; not timed)")

@@ -135,3 +135,41 @@ def test_provenance_sheet_and_report_carry_how_sigma_was_set(tmp_path):
     out = {r[0]: r for r in provenance_constant_rows(edited)}
     assert out["decay.Sm147"][4].startswith("EDITED in this workbook")
     assert not out["decay.Lu176"][4].startswith("EDITED")
+
+
+def test_report_rows_bounds_the_report_tables_never_results_and_every_warning_is_kept(book, tmp_path, capsys):
+    """--report-rows N: the report's per-analysis tables stop at N rows and say so; results.xlsx keeps every
+    analysis on Results and every warning on its Warnings sheet; a bad N is refused before anything runs."""
+    import shutil
+    import subprocess
+
+    from reduction.workbook import KEY_ROW
+    from reduction.workbook.batch import WARNINGS_SHEET
+
+    full = reduce_workbook(book, tmp_path / "full")
+    cut = reduce_workbook(book, tmp_path / "cut", report_rows=2)
+    n = sum(1 for (sheet, _r, c), v in cut.evaluation.cells.items() if sheet == "Results" and c == 0 and v)
+    assert n > 2
+    wb = load_workbook(cut.results_xlsx, read_only=True)
+    ids = [r[0] for r in wb["Results"].iter_rows(min_row=FIRST_ROW, values_only=True) if r and r[0]]
+    assert len(ids) == n                                                  # results.xlsx: every analysis
+    keys = next(wb["Results"].iter_rows(min_row=KEY_ROW, max_row=KEY_ROW, values_only=True))
+    assert keys[0] is not None
+    if cut.warnings:
+        listed = [r[0] for r in wb[WARNINGS_SHEET].iter_rows(min_row=2, values_only=True)]
+        assert listed == list(cut.warnings)
+    pages = (tmp_path / "full" / "report.pdf").read_bytes().count(b"/Type /Page")
+    assert (tmp_path / "cut" / "report.pdf").read_bytes().count(b"/Type /Page") <= pages
+    if shutil.which("pdftotext"):
+        text = subprocess.run(["pdftotext", str(tmp_path / "cut" / "report.pdf"), "-"], capture_output=True,
+                              text=True, check=True).stdout
+        assert f"first 2 of {n}" in text and "results.xlsx" in text
+        full_text = subprocess.run(["pdftotext", str(tmp_path / "full" / "report.pdf"), "-"],
+                                   capture_output=True, text=True, check=True).stdout
+        assert "first 2 of" not in full_text
+    assert full.evaluation.cells == cut.evaluation.cells                  # the bound changes the report only
+    capsys.readouterr()
+    rc = main(["reduce", str(book), "-o", str(tmp_path / "bad"), "--report-rows", "-1"])
+    err = capsys.readouterr()
+    assert rc != 0 and "report_rows" in err.out + err.err
+    assert not (tmp_path / "bad" / "results.xlsx").exists()
