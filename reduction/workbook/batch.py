@@ -212,7 +212,7 @@ def _group_panels(data: WorkbookData, ev: Evaluation) -> List[Any]:
             continue
         label = f"{name:g}" if isinstance(name, float) else str(name).strip()
         summary = {q: ev.cells.get(("Groups", row, col[q]), "") for q, _l, _u in ISOCHRON_QUANTITIES}
-        pts = tuple((str(a), *vals, use == 1.0) for a, use, *vals in group_points(label, sam, res)
+        pts = tuple((str(a), *vals, use == 1.0) for a, use, *vals in group_points(label, sam, res, cap=None)
                     if a != "" and all(isinstance(v, float) for v in vals))
         xl, yl = _axis_labels(str(system))
         panels.append(IsochronPanel(str(system), xl, yl, pts, summary, str(treatment or "analytical"),
@@ -366,10 +366,12 @@ def _summarise(outcome: ReduceOutcome) -> None:
     if checks:
         print(f"  {len(checks)} analyses have Check warnings (Results column {RESULTS.letter('check')}), "
               f"e.g. row {checks[0][0]}: {checks[0][1].lstrip(MARKER)}")
-    for w in outcome.warnings[:PRINTED_WARNINGS]:
+    # the workbook-wide warnings first: the per-analysis Check warnings are counted above
+    ordered = sorted(outcome.warnings, key=lambda w: w.startswith("Results!"))
+    for w in ordered[:PRINTED_WARNINGS]:
         print(f"  warning: {w}")
-    if len(outcome.warnings) > PRINTED_WARNINGS:
-        print(f"  … and {len(outcome.warnings) - PRINTED_WARNINGS:,} more warnings: every one is on the "
+    if len(ordered) > PRINTED_WARNINGS:
+        print(f"  … and {len(ordered) - PRINTED_WARNINGS:,} more warnings: every one is on the "
               f"{WARNINGS_SHEET} sheet of {outcome.results_xlsx.name}")
     print(f"wrote {outcome.results_xlsx}")
     print(f"wrote {outcome.report_pdf}")

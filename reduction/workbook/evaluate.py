@@ -543,6 +543,16 @@ def _evaluate_groups(work: Mapping[str, Sequence[Sequence[Cell]]], samples: Rows
                     v = rows if (r == 0 and k == 0) else "#N/A"
                 put("Groups", top + r, left + k, v)
 
+    size = run(lambda: fits.size(drawn)) if drawn != "" else 0
+    if isinstance(size, int) and size > GROUP_POINTS_CAP:
+        # a group of any size is fitted (above); only its point list and charts have fixed rows
+        why = (MARKER + f"group {shown(drawn)} has {size:,} rows: the point list and charts hold {GROUP_POINTS_CAP}, "
+               f"so it is not drawn (its fit on the Groups table uses all {size:,}); type a group of at most "
+               f"{GROUP_POINTS_CAP} rows in B{GROUP_CHART_ROW} to draw it")
+        warnings.append(f"Groups!A{GROUP_POINTS_TOP}: {why[len(MARKER):]}")
+        for col, width in ((0, len(GROUP_POINT_COLUMNS)), (GROUP_ELLIPSE_COL, 2), (GROUP_DEVIATION_COL, 2)):
+            put_array(GROUP_POINTS_TOP, col, width, why, GROUP_POINTS_CAP if col == 0 else GROUP_OUTLINE_ROWS)
+        return
     put_array(GROUP_POINTS_TOP, 0, len(GROUP_POINT_COLUMNS),
               run(lambda: group_points(drawn, samples, results)), GROUP_POINTS_CAP)
     for kind, col in (("ellipse", GROUP_ELLIPSE_COL), ("deviation", GROUP_DEVIATION_COL)):

@@ -296,6 +296,10 @@ class GroupFits:
         self.samples, self.results, self.constants = as_rows(samples), as_rows(results), as_rows(constants)
         self._fits: Dict[Tuple[str, str], Tuple[Any, Optional[BaseException]]] = {}
 
+    def size(self, group: Any) -> int:
+        """Samples rows of a group (used or not)."""
+        return len(_group_members(str(group).strip(), self.samples, self.results)[1])
+
     def value(self, quantity: str, group: Any, treatment: Any) -> float | str:
         """One quantity of one group's isochron, as :func:`group_value`."""
         g = str(group).strip()
@@ -317,9 +321,11 @@ class GroupFits:
         return _isochron_cell(quantity, got[0])
 
 
-def group_points(group: Any, samples: Any, results: Any) -> Tuple[Tuple[Any, ...], ...]:
+def group_points(group: Any, samples: Any, results: Any, cap: Optional[int] = GROUP_POINTS_CAP
+                 ) -> Tuple[Tuple[Any, ...], ...]:
     """The Groups sheet's point list of one group: analysis, use (1/0), x, sx, y, sy, ρ per member row, padded
-    with empty rows to :data:`GROUP_POINTS_CAP` rows (an unused row without numbers shows why)."""
+    with empty rows to ``cap`` rows (:data:`GROUP_POINTS_CAP`, the list's rows; an unused row without numbers
+    shows why). ``cap=None``: every member row, unpadded (the report draws a group of any size)."""
     g = str(group).strip()
     rows: List[Tuple[Any, ...]] = []
     if g:
@@ -327,10 +333,12 @@ def group_points(group: Any, samples: Any, results: Any) -> Tuple[Tuple[Any, ...
         for a, used, vals, _row in members:
             nums = tuple(vals) if not isinstance(vals, str) else (MARKER + vals, "", "", "", "")
             rows.append((a, 1.0 if used else 0.0) + nums)
-    if len(rows) > GROUP_POINTS_CAP:
-        raise InputError("group", f"group {shown(g)} has {len(rows)} rows, more than the {GROUP_POINTS_CAP} the "
+    if cap is None:
+        return tuple(rows)
+    if len(rows) > cap:
+        raise InputError("group", f"group {shown(g)} has {len(rows)} rows, more than the {cap} the "
                          "list holds")
-    return tuple(rows) + (("",) * len(GROUP_POINT_COLUMNS),) * (GROUP_POINTS_CAP - len(rows))
+    return tuple(rows) + (("",) * len(GROUP_POINT_COLUMNS),) * (cap - len(rows))
 
 
 def group_outlines(kind: str, group: Any, groups: Any, samples: Any, results: Any, constants: Any

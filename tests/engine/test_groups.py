@@ -93,6 +93,26 @@ def test_two_sm_nd_groups_one_of_100_points_come_back(tmp_path):
     assert len(listed) == 101 and listed["A-OUT"] == 0 and listed["A001"] == 1
 
 
+def test_a_group_longer_than_the_point_list_is_fitted_whole_and_said_not_drawn(tmp_path, capsys):
+    """A group of 130 rows (the point list and charts hold 120): ``ratiodesk reduce`` fits all 130 (age and
+    initial as modelled) and writes results.xlsx; the point list says why the group is not drawn, and so does a
+    warning — never a failed reduction, never a list cut at 120."""
+    spec = _spec(1200.0, 0.51010, 130, 0.10, 1.10)
+    samples, measured, truth = _group_set(spec, "L", "Long belt")
+    tables = {"Spikes": e2e.spike_rows("demo-SmNd-149-150", ("Sm", "Nd")),
+              "Standards": e2e.standard_rows("S1", "JNdi-1", "143Nd/144Nd"), "Samples": samples,
+              "Measured": measured, "Groups": [{"group": "Long belt"}]}
+    results, _ages, wb = e2e.reduce_and_read(tmp_path, tables, {})
+    e2e._assert_every_analysis_comes_back(results, truth)
+    g = _groups_sheet(wb)["Long belt"]
+    assert g["n"] == 130
+    assert g["age"] == pytest.approx(1200.0, rel=1e-6) and g["initial"] == pytest.approx(0.51010, rel=1e-8)
+    top = wb["Groups"].cell(GROUP_POINTS_TOP, 1).value
+    assert "130 rows" in top and "not drawn" in top and "120" in top
+    out = capsys.readouterr().out
+    assert f"warning: Groups!A{GROUP_POINTS_TOP}:" in out and "not drawn" in out
+
+
 def test_group_problems_are_named_and_nothing_is_written(tmp_path, capsys):
     """A group mixing two systems and a Use that is not 1/0 are named at their Samples cells; reduce stops."""
     tables, truths = e2e._tables((e2e.SMND, e2e.LUHF), e2e.standard_rows("S1", "JNdi-1", "143Nd/144Nd")
