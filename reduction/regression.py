@@ -58,7 +58,11 @@ TREATMENTS: Tuple[str, ...] = ("analytical", "expanded", "equal-weights", "exces
 
 _CHUNK_VALUES = 65536   # values per array in one batch chunk (512 kB: fastest in bench_regression)
 _BLAS_MAX = 4096  # below this length a single fit uses np.dot for its sums
-_SCALAR_MAX = 40  # up to this length a single fit runs in Python floats (measured crossover ~60 points)
+#: Up to this length a single fit would run in Python floats (_york_scalar; crossover measured at ~60 points).
+#: Off (0): with it, the excess-variance treatment's maximum-likelihood fit of tests/cells/cases.py differed by
+#: 3e-10 between numpy 1.24 (bundled, Python 3.8) and numpy 2.4, where the array solver agrees; until that
+#: is understood every fit uses the array solver.
+_SCALAR_MAX = 0
 _ATOL = 1e-300  # absolute floor of the convergence test, only matters for a slope of exactly 0
 _FLOOR_RTOL = 1e-12  # a repeated update within this of its input ends the iteration (rounding floor)
 #: Upper bound of ``max_iter`` (York fits converge in tens of steps; the bound keeps a typo from
